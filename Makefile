@@ -1,0 +1,40 @@
+# Two commands do all set-up on a fresh machine with Python 3.11+:
+#   make run   -> create .venv if missing, install, run the default sweep on all cores
+#   make test  -> same set-up plus test tools, then the test suite
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed-$(shell cat pyproject.toml | cksum | cut -d' ' -f1)
+
+.PHONY: run test lint bench clean-results install
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+$(STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	rm -f $(VENV)/.installed-*
+	touch $@
+
+install: $(STAMP)
+
+run: $(STAMP)
+	$(BIN)/eigensweep run --config config/config.yaml --cores $(or $(CORES),$(shell nproc 2>/dev/null || echo 2))
+
+# pytest exits 5 when it collects no test: treat that as a failure, deliberately.
+test: $(STAMP)
+	@$(BIN)/python -m pytest -q $(PYTEST_ARGS); rc=$$?; \
+	if [ $$rc -eq 5 ]; then echo "make test: no tests were collected" >&2; exit 1; fi; exit $$rc
+
+lint: $(STAMP)
+	$(BIN)/ruff check src workflow/scripts tests benchmarks
+	$(BIN)/ruff format --check src workflow/scripts tests benchmarks
+	$(BIN)/snakemake --lint --configfile config/config.yaml
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/bench_mapping.py
+	$(BIN)/python benchmarks/bench_optimize.py
+
+clean-results:
+	rm -rf results/integrals results/hamiltonian results/taper results/optimize results/plots results/summary.csv logs .snakemake

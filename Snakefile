@@ -1,0 +1,27 @@
+# eigensweep: a variational-eigensolver sweep as a cached stage chain.
+#   integrals -> hamiltonian -> taper -> optimize -> collect
+# Every stage file is results/<stage>/<key>.h5, key = hash of the stage's resolved
+# parameters and its parents' keys (see src/eigensweep/plan.py).
+
+from snakemake.utils import min_version
+
+min_version("8.20")
+
+
+if not config:
+
+    configfile: "config/config.yaml"
+
+
+include: "workflow/rules/common.smk"
+include: "workflow/rules/integrals.smk"
+include: "workflow/rules/hamiltonian.smk"
+include: "workflow/rules/taper.smk"
+include: "workflow/rules/optimize.smk"
+include: "workflow/rules/collect.smk"
+
+
+rule all:
+    input:
+        get_final_outputs(),
+    default_target: True

@@ -1,0 +1,189 @@
+"""The ``eigensweep`` command: run, plan, show (more subcommands join as stages land).
+
+Errors for bad input are printed as one line (``eigensweep: <what>; <what to do>``) with exit
+status 2; ``--debug`` shows the traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+from .errors import EigensweepError
+
+DEFAULT_CONFIG = "config/config.yaml"
+
+
+def _default_config() -> Path:
+    local = Path(DEFAULT_CONFIG)
+    if local.is_file():
+        return local
+    from .paths import repo_root
+
+    return repo_root() / DEFAULT_CONFIG
+
+
+def _load_plan(config: str | None):
+    from .config import load_config
+    from .plan import build_plan
+
+    path = Path(config) if config else _default_config()
+    cfg = load_config(path)
+    return path, cfg, build_plan(cfg, base_dir=Path.cwd())
+
+
+def _status(node, results: Path) -> str:
+    from .store import read_stage
+
+    f = results / node.stage / f"{node.key}.h5"
+    if not f.exists():
+        return "pending"
+    try:
+        read_stage(f, stage=node.stage, key=node.key)
+    except EigensweepError:
+        return "damaged (will be recomputed)"
+    return "cached"
+
+
+def cmd_plan(args) -> int:
+    path, cfg, plan = _load_plan(args.config)
+    results = Path("results")
+    counts: dict[str, dict[str, int]] = {}
+    lines = []
+    for node in plan.nodes.values():
+        st = _status(node, results)
+        counts.setdefault(node.stage, {}).setdefault(st.split()[0], 0)
+        counts[node.stage][st.split()[0]] += 1
+        if args.verbose:
+            lines.append(f"{node.stage:<12} {node.key}  {st}")
+    print(f"plan for {path}: {len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs")
+    print(f"{'stage':<12} {'total':>6} {'cached':>7} {'pending':>8} {'damaged':>8}")
+    for stage in ("integrals", "hamiltonian", "taper", "optimize"):
+        c = counts.get(stage, {})
+        total = sum(c.values())
+        print(f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}")
+    if args.verbose:
+        print("\n".join(lines))
+    return 0
+
+
+def _snakemake_cmd(args, config: Path) -> list[str]:
+    from .paths import repo_root
+
+    root = repo_root()
+    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(root / "Snakefile"),
+           "--configfile", str(config.resolve()), "--directory", str(Path.cwd())]
+    profile = args.profile or "local"
+    prof_dir = Path(profile) if Path(profile).is_dir() else root / "profiles" / profile
+    if not prof_dir.is_dir():
+        raise EigensweepError(f"--profile {profile}: no such profile; use local, slurm or a folder with config.yaml")
+    cmd += ["--workflow-profile", str(prof_dir)]
+    cmd += ["--cores", str(args.cores or os.cpu_count() or 1)]
+    if args.dry_run:
+        cmd.append("--dry-run")
+    return cmd + list(args.snakemake_args or [])
+
+
+def cmd_run(args) -> int:
+    path, cfg, plan = _load_plan(args.config)
+    from .chem import check_molecule
+
+    for node in plan.by_stage("integrals"):
+        p = node.params
+        check_molecule(atoms=p["atoms"], basis=p["basis"], charge=p["charge"],
+                       multiplicity=p["multiplicity"], unit=p["unit"],
+                       frozen_core=p["frozen_core"], active=p["active"],
+                       where=_where(cfg, plan, node.key))
+    results = Path("results")
+    pending = [n for n in plan.nodes.values() if _status(n, results) != "cached"]
+    print(f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
+          f"{len(plan.nodes) - len(pending)} cached, {len(pending)} to run", flush=True)
+    cmd = _snakemake_cmd(args, path)
+    t0 = time.perf_counter()
+    proc = subprocess.run(cmd)
+    dt = time.perf_counter() - t0
+    if proc.returncode != 0:
+        print(f"eigensweep: the sweep stopped with errors after {dt:.1f} s; see the lines above and "
+              "logs/<stage>/<key>.log; finished stages are kept, rerun to resume", file=sys.stderr)
+        return proc.returncode
+    if not args.dry_run:
+        print(f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/")
+    return 0
+
+
+def _where(cfg, plan, key: str) -> str:
+    for row in plan.rows:
+        if row["key_integrals"] == key:
+            return f"molecule {row['molecule']} point {row['point']}"
+    return f"integrals {key}"
+
+
+def cmd_show(args) -> int:
+    from .store import read_stage
+
+    sd = read_stage(args.file)
+    print(f"{args.file}: eigensweep stage file, stage {sd.stage}, key {sd.key}")
+    for k in ("format_version", "stage_version", "created", "host", "wall_s"):
+        print(f"  {k}: {sd.attrs.get(k)}")
+    print(f"  parents: {json.dumps(sd.parents)}")
+    print(f"  software: {sd.attrs.get('software')}")
+    print(f"  parameters: {json.dumps(sd.params, sort_keys=True)}")
+    print("  arrays:")
+    for name, a in sorted(sd.arrays.items()):
+        print(f"    {name:<24} {str(a.dtype):<8} {a.shape}")
+    print("  results:")
+    for k, v in sd.meta.items():
+        text = json.dumps(v)
+        print(f"    {k}: {text if len(text) < 200 else text[:197] + '...'}")
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    ap = argparse.ArgumentParser(prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules.")
+    ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
+    sub = ap.add_subparsers(dest="command", required=True)
+
+    p = sub.add_parser("run", help="run the sweep (Snakemake), computing only what is not cached")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("--cores", type=int, help="cores to use (default: all)")
+    p.add_argument("--profile", help="Snakemake profile: local (default), slurm, or a folder")
+    p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
+    p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
+    p.set_defaults(func=cmd_run)
+
+    p = sub.add_parser("plan", help="list the stage jobs of a sweep: cached or pending")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
+    p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser("show", help="provenance and contents of a stage file")
+    p.add_argument("file")
+    p.set_defaults(func=cmd_show)
+    return ap
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    if getattr(args, "snakemake_args", None) and args.snakemake_args[:1] == ["--"]:
+        args.snakemake_args = args.snakemake_args[1:]
+    if args.debug:
+        os.environ["EIGENSWEEP_DEBUG"] = "1"
+    try:
+        return args.func(args)
+    except EigensweepError as exc:
+        if args.debug:
+            raise
+        print(f"eigensweep: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("eigensweep: interrupted; finished stages are kept, rerun to resume", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,253 @@
+"""The planner: a validated configuration -> the stage jobs of a sweep, keyed by content.
+
+Each stage job (a :class:`Node`) has a key: the first 16 hex digits of SHA-256 over the canonical
+JSON of ``{stage, stage format version, fully resolved parameters, parent keys}``. Keys therefore
+form a Merkle chain: changing the optimizer changes the ``optimize`` key and nothing upstream, so
+integrals and Hamiltonians are reused, also across sweeps that share them.
+
+:func:`build_plan` is a pure function of the configuration (it reads only molecule XYZ files named
+by the configuration); Snakemake rules look nodes up by key.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import json
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .errors import ConfigError
+
+#: Stage format versions. Bump one when its stored content changes meaning: new keys follow.
+STAGE_VERSIONS: dict[str, int] = {"integrals": 1, "hamiltonian": 1, "taper": 1, "optimize": 1}
+
+_PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
+
+
+@dataclass(frozen=True)
+class Node:
+    """One stage job: ``results/<stage>/<key>.h5``."""
+
+    stage: str
+    key: str
+    params: dict
+    parents: dict[str, str] = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        return {"stage": self.stage, "key": self.key, "params": self.params, "parents": self.parents}
+
+
+@dataclass
+class Plan:
+    """All stage jobs of a sweep plus one row of labels per optimize job."""
+
+    nodes: dict[str, Node]
+    rows: list[dict]
+
+    def by_stage(self, stage: str) -> list[Node]:
+        return [n for n in self.nodes.values() if n.stage == stage]
+
+    def node(self, key: str) -> Node:
+        try:
+            return self.nodes[key]
+        except KeyError:
+            raise ConfigError(f"stage key {key} is not part of this sweep's plan") from None
+
+
+def canonical_json(obj: Any) -> str:
+    """Deterministic JSON: sorted keys, no spaces, numpy scalars converted, floats as repr."""
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), default=_json_default)
+
+
+def _json_default(o: Any) -> Any:
+    if isinstance(o, np.integer):
+        return int(o)
+    if isinstance(o, np.floating):
+        return float(o)
+    if isinstance(o, np.ndarray):
+        return o.tolist()
+    raise TypeError(f"cannot serialise {type(o).__name__}")
+
+
+def stage_key(stage: str, params: dict, parents: dict[str, str]) -> str:
+    """First 16 hex digits of SHA-256 over the canonical JSON of the stage's identity."""
+    blob = canonical_json(
+        {"stage": stage, "version": STAGE_VERSIONS[stage], "params": params, "parents": parents}
+    )
+    return hashlib.sha256(blob.encode()).hexdigest()[:16]
+
+
+def _format_value(v: float) -> str:
+    return format(float(v), ".10g")
+
+
+def scan_points(mol: dict, where: str) -> list[dict[str, float]]:
+    """Expand a molecule's ``scan`` into a list of {variable: value} points (config order)."""
+    scan = mol.get("scan") or {}
+    axes: dict[str, list[float]] = {}
+    for var, spec in scan.items():
+        if isinstance(spec, dict):
+            vals = np.linspace(spec["start"], spec["stop"], spec["num"]).tolist()
+        else:
+            vals = [float(v) for v in spec]
+        axes[var] = [round(v, 12) for v in vals]
+    if not axes:
+        return [{}]
+    names = list(axes)
+    if mol.get("scan_mode", "product") == "zip":
+        lengths = {len(v) for v in axes.values()}
+        if len(lengths) > 1:
+            raise ConfigError(
+                f"{where}: scan_mode zip needs equally long scans, got "
+                + ", ".join(f"{k}: {len(v)}" for k, v in axes.items())
+                + "; give each variable the same number of values or use scan_mode: product"
+            )
+        combos = list(zip(*axes.values(), strict=True))
+    else:
+        combos = list(itertools.product(*axes.values()))
+    return [dict(zip(names, c, strict=True)) for c in combos]
+
+
+def point_label(point: dict[str, float]) -> str:
+    return ",".join(f"{k}={_format_value(v)}" for k, v in point.items()) or "single"
+
+
+def molecule_geometry(mol: dict, where: str, base_dir: Path) -> str:
+    """The molecule's atom string template (from ``atoms`` or an XYZ file)."""
+    has_atoms, has_xyz = "atoms" in mol, "xyz" in mol
+    if has_atoms == has_xyz:
+        raise ConfigError(f"{where}: give exactly one of 'atoms' or 'xyz'")
+    if has_atoms:
+        return mol["atoms"]
+    from .chem.geometry import read_xyz  # reads a file; no PySCF needed
+
+    path = Path(mol["xyz"])
+    if not path.is_absolute():
+        path = base_dir / path
+    return read_xyz(path)
+
+
+def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
+    """Substitute {placeholders}; checks placeholders and scan variables match exactly."""
+    used = set(_PLACEHOLDER.findall(template))
+    given = set(point)
+    if used - given:
+        missing = sorted(used - given)[0]
+        raise ConfigError(
+            f"{where}: atoms uses {{{missing}}} but scan has no values for it; add scan: {{{missing}: [...]}}"
+        )
+    if given - used:
+        extra = sorted(given - used)[0]
+        raise ConfigError(
+            f"{where}: scan variable {extra!r} does not appear as {{{extra}}} in atoms; remove it or use it"
+        )
+    text = _PLACEHOLDER.sub(lambda m: _format_value(point[m.group(1)]), template)
+    if "{" in text or "}" in text:
+        raise ConfigError(f"{where}: atoms has a malformed placeholder; use {{name}} with letters, digits, _")
+    # normalise whitespace so cosmetic edits do not change keys
+    return "; ".join(" ".join(a.split()) for a in re.split(r"[;\n]", text) if a.strip())
+
+
+def method_label(entry: dict) -> str:
+    """Short readable label: name plus non-default options, e.g. ``kupccgsd(k=2)``."""
+    opts = {k: v for k, v in entry.items() if k != "name"}
+    if not opts:
+        return entry["name"]
+    return entry["name"] + "(" + ",".join(f"{k}={v}" for k, v in sorted(opts.items())) + ")"
+
+
+def build_plan(cfg: dict, base_dir: str | Path = ".") -> Plan:
+    """Expand a validated configuration into stage nodes with Merkle keys.
+
+    Args:
+        cfg: output of :func:`eigensweep.config.validate_config` (defaults filled).
+        base_dir: folder against which relative XYZ paths are resolved.
+
+    Returns:
+        The :class:`Plan`; ``rows`` are ordered molecule, point, then methods.
+    """
+    base_dir = Path(base_dir)
+    nodes: dict[str, Node] = {}
+
+    def add(stage: str, params: dict, parents: dict[str, str]) -> str:
+        key = stage_key(stage, params, parents)
+        nodes.setdefault(key, Node(stage, key, params, dict(parents)))
+        return key
+
+    refs = cfg["references"]
+    meth = cfg["methods"]
+    combos = list(
+        itertools.product(meth["mapping"], meth["taper"], meth["ansatz"], meth["optimizer"], meth["estimator"])
+    )
+    rows: list[dict] = []
+    for im, mol in enumerate(cfg["molecules"]):
+        where = f"molecules[{im}] ({mol['name']})"
+        template = molecule_geometry(mol, where, base_dir)
+        points = scan_points(mol, where)
+        prev_int: str | None = None
+        prev_opt: dict[int, str] = {}
+        for point in points:
+            atoms = fill_geometry(template, point, f"{where} point {point_label(point)}")
+            int_params = {
+                "atoms": atoms,
+                "unit": mol["unit"],
+                "charge": mol["charge"],
+                "multiplicity": mol["multiplicity"],
+                "basis": mol["basis"].lower(),
+                "symmetry": mol["symmetry"],
+                "frozen_core": mol["frozen_core"],
+                "active": mol["active"],
+                "fci_max_determinants": refs["fci_max_determinants"],
+                "stability": refs["stability"],
+                "neighbour_start": mol["neighbour_start"] and prev_int is not None,
+            }
+            int_parents = {"guess": prev_int} if int_params["neighbour_start"] else {}
+            k_int = add("integrals", int_params, int_parents)
+            prev_int = k_int
+            for ic, (mapping, taper, ansatz, optimizer, estimator) in enumerate(combos):
+                k_ham = add("hamiltonian", {"mapping": mapping}, {"integrals": k_int})
+                k_tap = add("taper", {"taper": taper}, {"hamiltonian": k_ham})
+                opt_params = {
+                    "ansatz": ansatz,
+                    "optimizer": optimizer,
+                    "estimator": estimator,
+                    "seed": cfg["seed"],
+                    "warm_start": bool(meth["warm_start"] and ic in prev_opt),
+                }
+                opt_parents = {"taper": k_tap, "integrals": k_int}
+                if opt_params["warm_start"]:
+                    opt_parents["warm"] = prev_opt[ic]
+                k_opt = add("optimize", opt_params, opt_parents)
+                prev_opt[ic] = k_opt
+                rows.append(
+                    {
+                        "molecule": mol["name"],
+                        "point": point_label(point),
+                        **{f"scan_{k}": v for k, v in point.items()},
+                        "basis": mol["basis"].lower(),
+                        "charge": mol["charge"],
+                        "multiplicity": mol["multiplicity"],
+                        "mapping": mapping,
+                        "tapered": taper,
+                        "ansatz": method_label(ansatz),
+                        "optimizer": method_label(optimizer),
+                        "estimator": method_label(estimator),
+                        "key": k_opt,
+                        "key_integrals": k_int,
+                        "key_hamiltonian": k_ham,
+                        "key_taper": k_tap,
+                    }
+                )
+    return Plan(nodes=nodes, rows=rows)
+
+
+def parent_files(node: Node, results: str = "results") -> dict[str, str]:
+    """Input files of a node by role (``guess`` and ``warm`` point at sibling stage files)."""
+    stage_of = {"integrals": "integrals", "hamiltonian": "hamiltonian", "taper": "taper",
+                "guess": "integrals", "warm": "optimize"}
+    return {role: f"{results}/{stage_of[role]}/{key}.h5" for role, key in node.parents.items()}

@@ -1,0 +1,170 @@
+"""Stage actions: read parent stage files, call the science, write the stage file.
+
+One function per stage, each ``run_<stage>(node, inputs, output, progress=None)``. The Snakemake
+scripts in ``workflow/scripts/`` only unpack ``snakemake.params``/``input``/``output`` and call
+these, so every stage can be run and tested without Snakemake.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+
+from .errors import StageFileError
+from .plan import Node
+from .store import Timer, read_stage, write_stage
+
+Progress = Callable[[str], None] | None
+
+
+def _say(progress: Progress, msg: str) -> None:
+    if progress is not None:
+        progress(msg)
+
+
+def load_integrals(path: str | Path):
+    """The :class:`~eigensweep.chem.IntegralsResult` stored in an integrals stage file."""
+    from .chem import IntegralsResult
+
+    sd = read_stage(path, stage="integrals")
+    return IntegralsResult.from_store(sd.arrays, sd.meta)
+
+
+def load_taper(path: str | Path):
+    """The :class:`~eigensweep.qubit.TaperResult` stored in a taper stage file."""
+    from .qubit import TaperResult
+
+    sd = read_stage(path, stage="taper")
+    return TaperResult.from_store(sd.arrays, sd.meta), sd
+
+
+def run_integrals(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """SCF, active-space integrals and the classical reference ladder for one geometry point."""
+    from .chem import compute_integrals
+
+    p = node.params
+    guess = None
+    if "guess" in inputs:
+        prev = load_integrals(inputs["guess"])
+        guess = (prev.mo_coeff, prev.mo_occ)
+    with Timer() as t:
+        res = compute_integrals(
+            atoms=p["atoms"],
+            basis=p["basis"],
+            charge=p["charge"],
+            multiplicity=p["multiplicity"],
+            unit=p["unit"],
+            symmetry=p["symmetry"],
+            frozen_core=p["frozen_core"],
+            active=p["active"],
+            fci_max_determinants=p["fci_max_determinants"],
+            stability=p["stability"],
+            guess=guess,
+            label=f"integrals {node.key} ({p['atoms']})",
+        )
+    arrays, meta = res.to_store()
+    _say(progress, f"integrals {node.key}: HF {res.references['hf']:.8f} Eh, exact {res.references['casci']:.8f} Eh")
+    write_stage(output, stage="integrals", key=node.key, params=p, parents=node.parents,
+                arrays=arrays, meta=meta, units={"h1e": "hartree", "eri": "hartree",
+                                                 "mo_energy": "hartree"}, wall_s=t.seconds)
+
+
+def run_hamiltonian(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Map the active-space Hamiltonian to qubits; number and S_z operators; measurement costs."""
+    from .qubit import (
+        map_hamiltonian,
+        number_operator,
+        qwc_groups,
+        reference_bits,
+        shots_for_precision,
+        sz_operator,
+    )
+
+    ints = load_integrals(inputs["integrals"])
+    mapping = node.params["mapping"]
+    with Timer() as t:
+        ham = map_hamiltonian(ints.h1e, ints.eri, ints.e_core, mapping)
+        n_qubits = ham.n_qubits
+        num = number_operator(n_qubits, mapping)
+        sz = sz_operator(n_qubits, mapping)
+        ref = reference_bits(ints.nelec, ints.norb, mapping)
+        groups = qwc_groups(ham)
+        shots = shots_for_precision(ham, groups=groups)
+    arrays = {**ham.to_store("ham_"), **num.to_store("num_"), **sz.to_store("sz_"),
+              "reference_bits": np.asarray(ref, dtype=np.uint8)}
+    meta = {
+        "mapping": mapping,
+        "n_qubits": n_qubits,
+        "n_terms": ham.n_terms,
+        "one_norm": float(ham.one_norm),
+        "n_qwc_groups": len(groups),
+        "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
+        "nelec": list(ints.nelec),
+        "norb": ints.norb,
+    }
+    _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
+    write_stage(output, stage="hamiltonian", key=node.key, params=node.params, parents=node.parents,
+                arrays=arrays, meta=meta, wall_s=t.seconds)
+
+
+def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Z2 tapering (or the identity stage that records 'no tapering')."""
+    from .qubit import PauliSum, no_taper, taper
+
+    sd = read_stage(inputs["hamiltonian"], stage="hamiltonian")
+    ham = PauliSum.from_store(sd.arrays, "ham_")
+    ref = sd.arrays["reference_bits"]
+    with Timer() as t:
+        res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
+    arrays, meta = res.to_store()
+    meta = {**meta, "mapping": sd.meta["mapping"], "nelec": sd.meta["nelec"], "norb": sd.meta["norb"],
+            "tapered": bool(node.params["taper"])}
+    _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
+    write_stage(output, stage="taper", key=node.key, params=node.params, parents=node.parents,
+                arrays=arrays, meta=meta, wall_s=t.seconds)
+
+
+def run_optimize(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Variational optimization of one ansatz x optimizer x estimator on one qubit problem."""
+    from .vqe import run_optimize as optimize_kernel
+
+    p = node.params
+    ints = load_integrals(inputs["integrals"])
+    tap, tap_sd = load_taper(inputs["taper"])
+    init = None
+    if "warm" in inputs:
+        prev = read_stage(inputs["warm"], stage="optimize")
+        init = np.asarray(prev.arrays["params"], dtype=float)
+
+    def report(i: int, energy: float) -> None:
+        if progress is not None and (i < 5 or i % 25 == 0):
+            progress(f"optimize {node.key}: evaluation {i}, energy {energy:.8f} Eh")
+
+    with Timer() as t:
+        res = optimize_kernel(
+            h1e=ints.h1e, eri=ints.eri, e_core=ints.e_core, norb=ints.norb, nelec=tuple(ints.nelec),
+            ansatz=p["ansatz"], optimizer=p["optimizer"], estimator=p["estimator"],
+            qubit_hamiltonian=tap.hamiltonian, reference_bits=tap.reference_bits,
+            mapping=tap_sd.meta["mapping"], tapering=tap,
+            initial_params=init, seed=p["seed"], progress=report,
+        )
+    if not math.isfinite(res.energy):
+        raise StageFileError(f"optimize {node.key}: the optimizer returned a non-finite energy; check the method options")
+    arrays, meta = res.to_store()
+    meta = {**meta, "n_qubits_problem": tap.hamiltonian.n_qubits, "mapping": tap_sd.meta["mapping"],
+            "tapered": tap_sd.meta["tapered"]}
+    _say(progress, f"optimize {node.key}: E = {res.energy:.8f} Eh after {res.n_evaluations} evaluations")
+    write_stage(output, stage="optimize", key=node.key, params=p, parents=node.parents,
+                arrays=arrays, meta=meta, units={"trace_energy": "hartree", "params": "radian"},
+                wall_s=t.seconds)
+
+
+STAGE_ACTIONS = {
+    "integrals": run_integrals,
+    "hamiltonian": run_hamiltonian,
+    "taper": run_taper,
+    "optimize": run_optimize,
+}

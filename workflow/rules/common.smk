@@ -1,0 +1,65 @@
+# Helpers shared by the rule files: validate the config, build the plan, look nodes up by key.
+import sys
+from pathlib import Path
+
+from eigensweep.config import validate_config
+from eigensweep.errors import EigensweepError
+from eigensweep.plan import build_plan, parent_files
+from eigensweep.resources import stage_resources
+
+try:
+    CFG = validate_config(config, source="config")
+    PLAN = build_plan(CFG, base_dir=Path.cwd())
+except EigensweepError as exc:
+    sys.stderr.write(f"eigensweep: {exc}\n")
+    sys.exit(1)
+
+
+wildcard_constraints:
+    key="[0-9a-f]{16}",
+
+
+def get_node(wildcards):
+    """Parameters of one stage job (the plan node, as a plain dict)."""
+    return PLAN.node(wildcards.key).as_dict()
+
+
+def get_parent_files(wildcards):
+    """Parent stage files of one stage job, by role."""
+    return parent_files(PLAN.node(wildcards.key))
+
+
+def get_mem_mb(wildcards, attempt):
+    """Memory request (MB) grown from the problem size; doubled on each retry."""
+    return stage_resources(PLAN.node(wildcards.key), PLAN)["mem_mb"] * attempt
+
+
+def get_runtime(wildcards, attempt):
+    """Runtime request (minutes) grown from the problem size; doubled on each retry."""
+    return stage_resources(PLAN.node(wildcards.key), PLAN)["runtime"] * attempt
+
+
+def get_optimize_files(wildcards=None):
+    return [f"results/optimize/{row['key']}.h5" for row in PLAN.rows]
+
+
+def get_integrals_files(wildcards=None):
+    return sorted({f"results/integrals/{row['key_integrals']}.h5" for row in PLAN.rows})
+
+
+def get_rows(wildcards=None):
+    return PLAN.rows
+
+
+def get_accuracy_mha(wildcards=None):
+    return CFG["collect"]["accuracy_mha"]
+
+
+def get_plot_files():
+    mols = list(dict.fromkeys(row["molecule"] for row in PLAN.rows))
+    files = [f"results/plots/{m}_{kind}.png" for m in mols for kind in ("energy", "error")]
+    return files + ["results/plots/convergence.png"]
+
+
+def get_final_outputs():
+    return ["results/summary.csv"] + get_plot_files()

@@ -1,0 +1,19 @@
+rule hamiltonian:
+    input:
+        unpack(get_parent_files),
+    output:
+        "results/hamiltonian/{key}.h5",
+    log:
+        "logs/hamiltonian/{key}.log",
+    benchmark:
+        "logs/benchmark/hamiltonian/{key}.tsv"
+    params:
+        node=get_node,
+    threads: 1
+    resources:
+        mem_mb=get_mem_mb,
+        runtime=get_runtime,
+    conda:
+        "../../envs/eigensweep.yaml"
+    script:
+        "../scripts/hamiltonian.py"
