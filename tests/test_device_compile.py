@@ -1,0 +1,196 @@
+"""Compilation of Pauli rotations, measurement basis changes and unitary folding."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from test_device_support import dense_pauli, dense_rotation, random_pauli_sum  # noqa: E402
+
+from eigensweep.circuit import Circuit, Gate, inverse_gate  # noqa: E402
+from eigensweep.device.compile import (  # noqa: E402
+    circuit_from_rotations,
+    fold_circuit,
+    group_basis,
+    measurement_circuit,
+    unfold_circuit,
+)
+from eigensweep.device.synthetic import statevector  # noqa: E402
+from eigensweep.qubit.statevector import (  # noqa: E402
+    apply_pauli_rotation,
+    basis_state,
+    expectation,
+    simulate,
+)
+
+ALLOWED = {"x", "h", "s", "sdg", "rx", "ry", "rz", "cx"}
+
+
+def _random_rotations(n, k, rng, force_y=True):
+    rots = []
+    for i in range(k):
+        x = rng.random(n) < 0.5
+        z = rng.random(n) < 0.5
+        if force_y and i == 0:
+            x[0] = z[0] = True  # make sure Y appears
+        if not (x | z).any():
+            z[rng.integers(n)] = True  # identity rotations are a global phase, tested apart
+        rots.append((x, z, float(rng.uniform(-np.pi, np.pi))))
+    return rots
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_compiled_rotations_equal_product_of_pauli_rotations(seed):
+    # reference: dense matrices exp(-i t/2 P) = cos(t/2) - i sin(t/2) P, and the project's
+    # apply_pauli_rotation; exact including global phase
+    rng = np.random.default_rng(seed)
+    n = 2 + seed % 3
+    ref = rng.integers(0, 2, size=n)
+    rots = _random_rotations(n, 6, rng)
+    circ = circuit_from_rotations(ref, rots)
+    assert {g.name for g in circ.gates} <= ALLOWED
+    psi = basis_state(ref)
+    dense = basis_state(ref)
+    for x, z, t in rots:
+        psi = apply_pauli_rotation(psi, x, z, t)
+        dense = dense_rotation(x, z, t) @ dense
+    out = simulate(circ)
+    assert np.max(np.abs(out - psi)) < 1e-12
+    assert np.max(np.abs(out - dense)) < 1e-12
+    assert np.max(np.abs(statevector(circ) - out)) < 1e-12  # batched kernel agrees
+
+
+@pytest.mark.parametrize("letter", ["X", "Y", "Z"])
+def test_single_qubit_rotation_conjugation(letter):
+    # reference: exp(-i t/2 Y) = ry(t) and exp(-i t/2 X) = rx(t) (textbook identities)
+    t = 0.7317
+    x, z = {"X": ([1], [0]), "Y": ([1], [1]), "Z": ([0], [1])}[letter]
+    circ = circuit_from_rotations([0], [(x, z, t)])
+    direct = Circuit(1)
+    direct.append({"X": "rx", "Y": "ry", "Z": "rz"}[letter], (0,), (t,))
+    assert np.max(np.abs(simulate(circ) - simulate(direct))) < 1e-12
+    if letter == "Y":
+        assert [g.name for g in circ.gates] == ["sdg", "h", "rz", "h", "s"]
+
+
+def test_identity_rotation_is_skipped_and_reference_is_prepared():
+    circ = circuit_from_rotations([1, 0, 1], [([0, 0, 0], [0, 0, 0], 0.3)])
+    assert [g.name for g in circ.gates] == ["x", "x"]
+    assert np.argmax(np.abs(simulate(circ))) == 0b101
+
+
+def test_bad_rotation_inputs():
+    with pytest.raises(ValueError):
+        circuit_from_rotations([0, 2], [])
+    with pytest.raises(ValueError):
+        circuit_from_rotations([0, 1], [([1], [0], 0.1)])
+    with pytest.raises(ValueError):
+        circuit_from_rotations([0, 1], [([1, 0], [0, 0], float("nan"))])
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_measurement_circuit_gives_pauli_expectations(seed):
+    # reference: <psi|P|psi> from dense matrices vs parity of bits after the basis change
+    rng = np.random.default_rng(10 + seed)
+    n = 3
+    base = circuit_from_rotations(rng.integers(0, 2, n), _random_rotations(n, 4, rng))
+    psi = simulate(base)
+    basis = "".join(rng.choice(list("IXYZ"), size=n))
+    meas = measurement_circuit(base, basis)
+    assert {g.name for g in meas.gates[len(base.gates) :]} <= {"h", "sdg"}
+    probs = np.abs(simulate(meas)) ** 2
+    idx = np.arange(2**n)
+    # every label whose letters are the basis letter or I is measured by this circuit
+    for mask in range(1, 2**n):
+        label = "".join(basis[k] if (mask >> (n - 1 - k)) & 1 else "I" for k in range(n))
+        if set(label) == {"I"}:
+            continue
+        sup = [(mask >> (n - 1 - k)) & 1 and basis[k] != "I" for k in range(n)]
+        parity = np.zeros(2**n, dtype=int)
+        for k in range(n):
+            if sup[k]:
+                parity ^= (idx >> (n - 1 - k)) & 1
+        measured = float(np.sum(probs * (1 - 2 * parity)))
+        exact = float(np.real(np.vdot(psi, dense_pauli(label) @ psi)))
+        assert abs(measured - exact) < 1e-12
+
+
+def test_group_basis_merges_and_rejects_non_qwc():
+    assert group_basis(["XIZ", "XYI", "IIZ"]) == "XYZ"
+    with pytest.raises(ValueError, match="qubit-wise"):
+        group_basis(["XI", "ZI"])
+
+
+@pytest.mark.parametrize("scale", [1, 3, 5, 7])
+def test_fold_preserves_state_and_scales_gate_count(scale):
+    # Giurgica-Tiron et al. 2020: folding G (G^dagger G)^k implements G with (2k+1)x the gates
+    rng = np.random.default_rng(scale)
+    circ = circuit_from_rotations([1, 0, 1], _random_rotations(3, 4, rng))
+    folded = fold_circuit(circ, scale)
+    assert len(folded.gates) == scale * len(circ.gates)
+    assert folded.cnot_count == scale * circ.cnot_count
+    assert folded.gates[: len(circ.gates)] == circ.gates  # invariant: starts with G
+    assert np.max(np.abs(simulate(folded) - simulate(circ))) < 1e-12
+    assert unfold_circuit(folded, scale).gates == circ.gates
+
+
+def test_fold_unfold_identity_and_inverse():
+    # common practice: G^dagger G = identity, so the folded copies cancel exactly
+    rng = np.random.default_rng(5)
+    circ = circuit_from_rotations([0, 1, 1, 0], _random_rotations(4, 5, rng))
+    both = circ.copy()
+    both.extend(circ.inverse())
+    psi0 = basis_state([1, 0, 1, 1])
+    assert np.max(np.abs(simulate(both, psi0) - psi0)) < 1e-12
+    with pytest.raises(ValueError):
+        unfold_circuit(circ, 3)
+
+
+def test_fold_handles_every_known_gate_including_sx():
+    circ = Circuit(2)
+    for name in ("x", "y", "z", "h", "s", "sdg", "sx"):
+        circ.append(name, (0,))
+    for name in ("rx", "ry", "rz"):
+        circ.append(name, (1,), (0.4,))
+    circ.append("cx", (1, 0))
+    folded = fold_circuit(circ, 3)
+    assert np.max(np.abs(simulate(folded) - simulate(circ))) < 1e-12
+    # sx has a two-gate inverse: count is 3 * len + 1 extra per fold
+    assert len(folded.gates) == 3 * len(circ.gates) + 1
+    assert unfold_circuit(folded, 3).gates == circ.gates
+    assert inverse_gate(Gate("sdg", (0,))) == [Gate("s", (0,))]
+
+
+@pytest.mark.parametrize("bad", [0, 2, -1, 4, 1.5, True])
+def test_fold_rejects_even_or_nonpositive_scale(bad):
+    with pytest.raises(ValueError, match="odd positive"):
+        fold_circuit(Circuit(1), bad)
+
+
+def test_circuit_append_validates():
+    c = Circuit(2)
+    for args in (("cx", (0, 0)), ("h", (2,)), ("rz", (0,), ()), ("h", (0, 1)), ("h", (0,), (1,))):
+        with pytest.raises(ValueError):
+            c.append(*args)
+
+
+def test_random_hamiltonian_energy_from_measurement_circuits():
+    # reference: project expectation(); energies re-assembled from per-group parities
+    rng = np.random.default_rng(7)
+    ham = random_pauli_sum(3, 8, rng)
+    circ = circuit_from_rotations([1, 0, 0], _random_rotations(3, 4, rng))
+    psi = simulate(circ)
+    total = 0.0
+    for lab, c in zip(ham.labels(), ham.coeffs, strict=True):
+        probs = np.abs(simulate(measurement_circuit(circ, lab))) ** 2
+        idx = np.arange(8)
+        par = np.zeros(8, dtype=int)
+        for k, ch in enumerate(lab):
+            if ch != "I":
+                par ^= (idx >> (2 - k)) & 1
+        total += c * float(np.sum(probs * (1 - 2 * par)))
+    assert abs(total - expectation(psi, ham)) < 1e-12
