@@ -6,7 +6,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-$(shell cat pyproject.toml | cksum | cut -d' ' -f1)
 
-.PHONY: run test lint bench clean-results install
+.PHONY: run test test-cluster lint bench clean-results install
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -38,3 +38,7 @@ bench: $(STAMP)
 
 clean-results:
 	rm -rf results/integrals results/hamiltonian results/taper results/optimize results/plots results/summary.csv logs .snakemake
+
+# Real one-node Slurm cluster on this machine (root; installs Debian's slurm-wlm and munge).
+test-cluster: $(STAMP)
+	bash tests/cluster/run-slurm-test.sh

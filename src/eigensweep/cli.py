@@ -32,9 +32,13 @@ def _load_plan(config: str | None):
     from .config import load_config
     from .plan import build_plan
 
+    from .preflight import check_plan_chemistry
+
     path = Path(config) if config else _default_config()
     cfg = load_config(path)
-    return path, cfg, build_plan(cfg, base_dir=Path.cwd())
+    plan = build_plan(cfg, base_dir=Path.cwd())
+    check_plan_chemistry(plan)
+    return path, cfg, plan
 
 
 def _status(node, results: Path) -> str:
@@ -91,14 +95,6 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
 
 def cmd_run(args) -> int:
     path, cfg, plan = _load_plan(args.config)
-    from .chem import check_molecule
-
-    for node in plan.by_stage("integrals"):
-        p = node.params
-        check_molecule(atoms=p["atoms"], basis=p["basis"], charge=p["charge"],
-                       multiplicity=p["multiplicity"], unit=p["unit"],
-                       frozen_core=p["frozen_core"], active=p["active"],
-                       where=_where(cfg, plan, node.key))
     results = Path("results")
     pending = [n for n in plan.nodes.values() if _status(n, results) != "cached"]
     print(f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
@@ -114,13 +110,6 @@ def cmd_run(args) -> int:
     if not args.dry_run:
         print(f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/")
     return 0
-
-
-def _where(cfg, plan, key: str) -> str:
-    for row in plan.rows:
-        if row["key_integrals"] == key:
-            return f"molecule {row['molecule']} point {row['point']}"
-    return f"integrals {key}"
 
 
 def cmd_show(args) -> int:
@@ -143,6 +132,30 @@ def cmd_show(args) -> int:
     return 0
 
 
+def cmd_archive(args) -> int:
+    from .archive import make_archive
+
+    path, cfg, plan = _load_plan(args.config)
+    stamp = time.strftime("%Y%m%d-%H%M%S")
+    out = Path(args.output or f"eigensweep-archive-{stamp}.tar.gz")
+    report = Path(args.report) if args.report else Path("results/report.html")
+    make_archive(plan, [path], out, results="results", report=report)
+    print(f"eigensweep: wrote {out} ({out.stat().st_size / 1e6:.1f} MB); check it with: eigensweep verify {out}")
+    return 0
+
+
+def cmd_verify(args) -> int:
+    from .archive import verify_archive
+
+    rep = verify_archive(args.archive, stage=None if args.stage == "none" else args.stage)
+    print(f"eigensweep: {args.archive}: {rep.n_files} files match their SHA-256")
+    if rep.rerun_stage:
+        print(f"eigensweep: re-ran {rep.rerun_stage} {rep.rerun_key} from archived inputs: "
+              f"largest difference {rep.max_abs_diff:.3g}")
+    print("eigensweep: archive verified")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser(prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules.")
     ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
@@ -160,6 +173,18 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
     p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser("archive", help="pack config, stage files, summary, plots and environment into a tar.gz")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("--output", help="archive file (default eigensweep-archive-<time>.tar.gz)")
+    p.add_argument("--report", help="Snakemake report to include (default results/report.html if present)")
+    p.set_defaults(func=cmd_archive)
+
+    p = sub.add_parser("verify", help="check an archive's hashes and re-run one stage from it")
+    p.add_argument("archive")
+    p.add_argument("--stage", default="hamiltonian", choices=["integrals", "hamiltonian", "taper", "optimize", "none"],
+                   help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)")
+    p.set_defaults(func=cmd_verify)
 
     p = sub.add_parser("show", help="provenance and contents of a stage file")
     p.add_argument("file")

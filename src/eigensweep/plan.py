@@ -129,7 +129,10 @@ def molecule_geometry(mol: dict, where: str, base_dir: Path) -> str:
     path = Path(mol["xyz"])
     if not path.is_absolute():
         path = base_dir / path
-    return read_xyz(path)
+    try:
+        return read_xyz(path)
+    except ConfigError as exc:
+        raise ConfigError(f"{where}: xyz: {exc}") from None
 
 
 def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
@@ -153,9 +156,12 @@ def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
     return "; ".join(" ".join(a.split()) for a in re.split(r"[;\n]", text) if a.strip())
 
 
-def method_label(entry: dict) -> str:
-    """Short readable label: name plus non-default options, e.g. ``kupccgsd(k=2)``."""
-    opts = {k: v for k, v in entry.items() if k != "name"}
+def method_label(kind: str, entry: dict) -> str:
+    """Short readable label: name plus options that differ from defaults, e.g. ``kupccgsd(k=3)``."""
+    from .vqe import validate_method
+
+    defaults = validate_method(kind, {"name": entry["name"]})
+    opts = {k: v for k, v in entry.items() if k != "name" and defaults.get(k) != v}
     if not opts:
         return entry["name"]
     return entry["name"] + "(" + ",".join(f"{k}={v}" for k, v in sorted(opts.items())) + ")"
@@ -234,9 +240,9 @@ def build_plan(cfg: dict, base_dir: str | Path = ".") -> Plan:
                         "multiplicity": mol["multiplicity"],
                         "mapping": mapping,
                         "tapered": taper,
-                        "ansatz": method_label(ansatz),
-                        "optimizer": method_label(optimizer),
-                        "estimator": method_label(estimator),
+                        "ansatz": method_label("ansatz", ansatz),
+                        "optimizer": method_label("optimizer", optimizer),
+                        "estimator": method_label("estimator", estimator),
                         "key": k_opt,
                         "key_integrals": k_int,
                         "key_hamiltonian": k_ham,

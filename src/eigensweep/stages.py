@@ -38,7 +38,7 @@ def load_taper(path: str | Path):
     from .qubit import TaperResult
 
     sd = read_stage(path, stage="taper")
-    return TaperResult.from_store(sd.arrays, sd.meta), sd
+    return TaperResult.from_store(sd.arrays), sd
 
 
 def run_integrals(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
@@ -119,9 +119,11 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
     ref = sd.arrays["reference_bits"]
     with Timer() as t:
         res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
-    arrays, meta = res.to_store()
-    meta = {**meta, "mapping": sd.meta["mapping"], "nelec": sd.meta["nelec"], "norb": sd.meta["norb"],
-            "tapered": bool(node.params["taper"])}
+    arrays = res.to_store()
+    meta = {"mapping": sd.meta["mapping"], "nelec": sd.meta["nelec"], "norb": sd.meta["norb"],
+            "tapered": bool(node.params["taper"]), "n_qubits_before": res.n_qubits_before,
+            "n_qubits": res.hamiltonian.n_qubits, "n_terms": res.hamiltonian.n_terms,
+            "sector": [int(v) for v in res.sector]}
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
     write_stage(output, stage="taper", key=node.key, params=node.params, parents=node.parents,
                 arrays=arrays, meta=meta, wall_s=t.seconds)
@@ -148,7 +150,6 @@ def run_optimize(node: Node, inputs: dict[str, str], output: str, progress: Prog
             h1e=ints.h1e, eri=ints.eri, e_core=ints.e_core, norb=ints.norb, nelec=tuple(ints.nelec),
             ansatz=p["ansatz"], optimizer=p["optimizer"], estimator=p["estimator"],
             qubit_hamiltonian=tap.hamiltonian, reference_bits=tap.reference_bits,
-            mapping=tap_sd.meta["mapping"], tapering=tap,
             initial_params=init, seed=p["seed"], progress=report,
         )
     if not math.isfinite(res.energy):

@@ -5,11 +5,13 @@ from pathlib import Path
 from eigensweep.config import validate_config
 from eigensweep.errors import EigensweepError
 from eigensweep.plan import build_plan, parent_files
+from eigensweep.preflight import check_plan_chemistry
 from eigensweep.resources import stage_resources
 
 try:
     CFG = validate_config(config, source="config")
     PLAN = build_plan(CFG, base_dir=Path.cwd())
+    check_plan_chemistry(PLAN)
 except EigensweepError as exc:
     sys.stderr.write(f"eigensweep: {exc}\n")
     sys.exit(1)
