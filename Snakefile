@@ -1,5 +1,5 @@
 # eigensweep: a variational-eigensolver sweep as a cached stage chain.
-#   integrals -> hamiltonian -> taper -> optimize -> collect
+#   integrals -> hamiltonian -> taper -> optimize -> export -> reconcile -> collect
 # Every stage file is results/<stage>/<key>.h5, key = hash of the stage's resolved
 # parameters and its parents' keys (see src/eigensweep/plan.py).
 
@@ -13,11 +13,16 @@ if not config:
     configfile: "config/config.yaml"
 
 
+report: "workflow/report/workflow.rst"
+
+
 include: "workflow/rules/common.smk"
 include: "workflow/rules/integrals.smk"
 include: "workflow/rules/hamiltonian.smk"
 include: "workflow/rules/taper.smk"
 include: "workflow/rules/optimize.smk"
+include: "workflow/rules/export.smk"
+include: "workflow/rules/reconcile.smk"
 include: "workflow/rules/collect.smk"
 
 

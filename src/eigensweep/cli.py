@@ -96,10 +96,20 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
 def cmd_run(args) -> int:
     path, cfg, plan = _load_plan(args.config)
     results = Path("results")
-    pending = [n for n in plan.nodes.values() if _status(n, results) != "cached"]
+    status = {key: _status(node, results) for key, node in plan.nodes.items()}
+    pending = [plan.nodes[k] for k, st in status.items() if st != "cached"]
+    damaged = [plan.nodes[k] for k, st in status.items() if st.startswith("damaged")]
     print(f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
           f"{len(plan.nodes) - len(pending)} cached, {len(pending)} to run", flush=True)
+    if damaged and not args.dry_run:
+        moved = _quarantine(damaged, results)
+        print(f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be recomputed",
+              flush=True)
     cmd = _snakemake_cmd(args, path)
+    if pending:
+        # Snakemake does not rebuild a missing intermediate file whose descendants exist; the
+        # plan knows which stage files are missing or damaged, so ask for exactly those.
+        cmd += ["--forcerun", *sorted(f"results/{n.stage}/{n.key}.h5" for n in pending)]
     t0 = time.perf_counter()
     proc = subprocess.run(cmd)
     dt = time.perf_counter() - t0
@@ -110,6 +120,17 @@ def cmd_run(args) -> int:
     if not args.dry_run:
         print(f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/")
     return 0
+
+
+def _quarantine(nodes, results: Path) -> Path:
+    """Move damaged stage files aside (never delete evidence), return the folder."""
+    folder = results / ".damaged" / time.strftime("%Y%m%d-%H%M%S")
+    for node in nodes:
+        src = results / node.stage / f"{node.key}.h5"
+        dst = folder / node.stage / src.name
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        os.replace(src, dst)
+    return folder
 
 
 def cmd_show(args) -> int:
@@ -130,6 +151,15 @@ def cmd_show(args) -> int:
         text = json.dumps(v)
         print(f"    {k}: {text if len(text) < 200 else text[:197] + '...'}")
     return 0
+
+
+def cmd_report(args) -> int:
+    path, cfg, plan = _load_plan(args.config)
+    args.profile, args.cores, args.dry_run, args.snakemake_args = "local", 1, False, ["--report", args.output]
+    proc = subprocess.run(_snakemake_cmd(args, path))
+    if proc.returncode == 0:
+        print(f"eigensweep: report written to {args.output}")
+    return proc.returncode
 
 
 def cmd_archive(args) -> int:
@@ -156,6 +186,31 @@ def cmd_verify(args) -> int:
     return 0
 
 
+def cmd_import_counts(args) -> int:
+    from .device import import_results
+    from .store import read_stage
+
+    folder = Path(args.job)
+    if folder.suffix == ".h5":
+        folder = folder.with_suffix("")
+    if not (folder / "manifest.json").is_file():
+        candidate = Path("results") / "export" / args.job
+        if (candidate / "manifest.json").is_file():
+            folder = candidate
+        else:
+            raise EigensweepError(
+                f"{args.job}: no exported job there (manifest.json missing); give results/export/<key> "
+                "or the export key from results/device_summary.csv"
+            )
+    key = folder.name
+    read_stage(folder.with_suffix(".h5"), stage="export", key=key)
+    dest = Path("results") / "returned" / f"{key}.json"
+    import_results(args.file, folder, dest)
+    print(f"eigensweep: imported {args.file} -> {dest}; the next 'eigensweep run' reconciles this point "
+          "(config device.kind must be external)")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser(prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules.")
     ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
@@ -174,6 +229,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
     p.set_defaults(func=cmd_plan)
 
+    p = sub.add_parser("report", help="write the Snakemake HTML report of a finished sweep")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("--output", default="results/report.html", help="report file (default results/report.html)")
+    p.set_defaults(func=cmd_report)
+
     p = sub.add_parser("archive", help="pack config, stage files, summary, plots and environment into a tar.gz")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("--output", help="archive file (default eigensweep-archive-<time>.tar.gz)")
@@ -185,6 +245,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--stage", default="hamiltonian", choices=["integrals", "hamiltonian", "taper", "optimize", "none"],
                    help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)")
     p.set_defaults(func=cmd_verify)
+
+    p = sub.add_parser("import-counts", help="check returned device counts against an exported job and import them")
+    p.add_argument("file", help="returned results in eigensweep's JSON format (docs/counts-format.md)")
+    p.add_argument("--job", required=True, help="export key or folder results/export/<key>")
+    p.set_defaults(func=cmd_import_counts)
 
     p = sub.add_parser("show", help="provenance and contents of a stage file")
     p.add_argument("file")

@@ -199,8 +199,9 @@ def plot_traces(rows: list[dict], folder: str | Path, results: str | Path = "res
     return f
 
 
-def collect(rows: list[dict], results: str | Path = "results", accuracy_mha: float = 1.6) -> list[Path]:
-    """Write ``summary.csv`` and every plot; returns the written files."""
+def collect(rows: list[dict], results: str | Path = "results", accuracy_mha: float = 1.6,
+            exports: list[dict] | None = None) -> list[Path]:
+    """Write ``summary.csv``, ``device_summary.csv`` and every plot; returns the written files."""
     results = Path(results)
     summary = summary_rows(rows, results)
     files = [write_summary(summary, results / "summary.csv")]
@@ -208,4 +209,72 @@ def collect(rows: list[dict], results: str | Path = "results", accuracy_mha: flo
     for mol in dict.fromkeys(r["molecule"] for r in summary):
         files += plot_molecule([r for r in summary if r["molecule"] == mol], plots, accuracy_mha)
     files.append(plot_traces(summary, plots, results))
+    files += write_device_outputs(exports or [], results)
+    return files
+
+
+DEVICE_COLUMNS = [
+    "molecule", "point", "mapping", "tapered", "ansatz", "optimizer", "n_qubits", "n_circuits",
+    "shots", "energy_simulated", "energy_exact", "estimate", "energy", "ci_low", "ci_high",
+    "error_mha", "kept_fraction", "key_export", "key_reconcile",
+]
+
+
+def device_rows(exports: list[dict], results: str | Path = "results") -> list[dict]:
+    """One row per (exported point, estimate kind): raw, mitigated, verified, extrapolated."""
+    from .device import ReconcileResult
+
+    results = Path(results)
+    out = []
+    for ex in exports:
+        if not ex.get("key_reconcile"):
+            continue
+        exp = read_stage(results / "export" / f"{ex['key_export']}.h5", stage="export")
+        rec = read_stage(results / "reconcile" / f"{ex['key_reconcile']}.h5", stage="reconcile")
+        res = ReconcileResult.from_store(rec.arrays, rec.meta)
+        manifest = exp.meta["manifest"]
+        exact = rec.meta.get("energy_exact")
+        exact = float(exact) if exact is not None else float("nan")
+        for kind, est in res.estimates().items():
+            if est is None:
+                continue
+            out.append({
+                **{k: ex.get(k, "") for k in ("molecule", "point", "mapping", "tapered", "ansatz", "optimizer")},
+                "n_qubits": exp.meta["n_qubits"],
+                "n_circuits": len(manifest["circuits"]),
+                "shots": sum(int(c["shots"]) for c in manifest["circuits"]),
+                "energy_simulated": float(exp.meta["energy_simulated"]),
+                "energy_exact": exact,
+                "estimate": kind,
+                "energy": est.value,
+                "ci_low": est.ci_low,
+                "ci_high": est.ci_high,
+                "error_mha": (est.value - exact) * 1000.0,
+                "kept_fraction": res.kept_fraction if kind == "symmetry_verified" else "",
+                "key_export": ex["key_export"],
+                "key_reconcile": ex["key_reconcile"],
+            })
+    return out
+
+
+def write_device_outputs(exports: list[dict], results: str | Path = "results") -> list[Path]:
+    """``device_summary.csv`` and one returned-vs-ideal histogram per reconciled point."""
+    from .device import ReconcileResult, plot_histograms
+
+    results = Path(results)
+    rows = device_rows(exports, results)
+    path = results / "device_summary.csv"
+    fd, tmp = tempfile.mkstemp(dir=results, prefix=".device_summary.", suffix=".tmp")
+    with os.fdopen(fd, "w", newline="") as fh:
+        w = csv.DictWriter(fh, fieldnames=DEVICE_COLUMNS)
+        w.writeheader()
+        for r in rows:
+            w.writerow({c: _fmt(r.get(c, "")) for c in DEVICE_COLUMNS})
+    os.replace(tmp, path)
+    files = [path]
+    for ex in exports:
+        if ex.get("key_reconcile"):
+            rec = read_stage(results / "reconcile" / f"{ex['key_reconcile']}.h5", stage="reconcile")
+            res = ReconcileResult.from_store(rec.arrays, rec.meta)
+            files.append(plot_histograms(res, results / "plots" / f"device_{ex['key_export']}.png"))
     return files

@@ -24,7 +24,14 @@ import numpy as np
 from .errors import ConfigError
 
 #: Stage format versions. Bump one when its stored content changes meaning: new keys follow.
-STAGE_VERSIONS: dict[str, int] = {"integrals": 1, "hamiltonian": 1, "taper": 1, "optimize": 1}
+STAGE_VERSIONS: dict[str, int] = {
+    "integrals": 1,
+    "hamiltonian": 1,
+    "taper": 1,
+    "optimize": 1,
+    "export": 1,
+    "reconcile": 1,
+}
 
 _PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 
@@ -48,6 +55,7 @@ class Plan:
 
     nodes: dict[str, Node]
     rows: list[dict]
+    exports: list[dict] = field(default_factory=list)
 
     def by_stage(self, stage: str) -> list[Node]:
         return [n for n in self.nodes.values() if n.stage == stage]
@@ -167,12 +175,13 @@ def method_label(kind: str, entry: dict) -> str:
     return entry["name"] + "(" + ",".join(f"{k}={v}" for k, v in sorted(opts.items())) + ")"
 
 
-def build_plan(cfg: dict, base_dir: str | Path = ".") -> Plan:
+def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = "results") -> Plan:
     """Expand a validated configuration into stage nodes with Merkle keys.
 
     Args:
         cfg: output of :func:`eigensweep.config.validate_config` (defaults filled).
         base_dir: folder against which relative XYZ paths are resolved.
+        results_dir: where imported device results are looked for (external device only).
 
     Returns:
         The :class:`Plan`; ``rows`` are ordered molecule, point, then methods.
@@ -249,11 +258,59 @@ def build_plan(cfg: dict, base_dir: str | Path = ".") -> Plan:
                         "key_taper": k_tap,
                     }
                 )
-    return Plan(nodes=nodes, rows=rows)
+    exports = _plan_device(cfg, rows, add, Path(results_dir))
+    return Plan(nodes=nodes, rows=rows, exports=exports)
+
+
+def _row_matches(sel: dict, row: dict) -> bool:
+    return all(str(row.get(k)) == str(v) for k, v in sel.items())
+
+
+def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[dict]:
+    """Export and reconcile nodes for the optimize rows chosen by ``export.select``.
+
+    With ``device.kind: synthetic`` the reconcile stage samples the built-in noisy device
+    itself; with ``external`` a reconcile node exists only once returned counts were imported
+    to ``results/returned/<export key>.json``, and the file's SHA-256 is part of its key.
+    """
+    exp, dev = cfg["export"], cfg["device"]
+    out: list[dict] = []
+    seen: set[str] = set()
+    for sel in exp["select"]:
+        for row in rows:
+            if not _row_matches(sel, row) or row["key"] in seen:
+                continue
+            seen.add(row["key"])
+            k_exp = add(
+                "export",
+                {k: exp[k] for k in ("shots", "scale_factors", "calibration", "target_mha")},
+                {"optimize": row["key"], "taper": row["key_taper"], "integrals": row["key_integrals"]},
+            )
+            rec_params = {"bootstrap": cfg["reconcile"]["bootstrap"], "seed": cfg["seed"], "device": dev["kind"]}
+            parents = {"export": k_exp, "taper": row["key_taper"], "integrals": row["key_integrals"]}
+            if dev["kind"] == "synthetic":
+                rec_params.update({k: dev[k] for k in ("readout_error", "depolarizing_1q", "depolarizing_2q")})
+            else:
+                counts = results_dir / "returned" / f"{k_exp}.json"
+                if not counts.is_file():
+                    out.append({**row, "key_export": k_exp, "key_reconcile": None})
+                    continue
+                rec_params["counts_sha256"] = hashlib.sha256(counts.read_bytes()).hexdigest()
+                parents["counts"] = k_exp
+            k_rec = add("reconcile", rec_params, parents)
+            out.append({**row, "key_export": k_exp, "key_reconcile": k_rec})
+    return out
 
 
 def parent_files(node: Node, results: str = "results") -> dict[str, str]:
-    """Input files of a node by role (``guess`` and ``warm`` point at sibling stage files)."""
+    """Input files of a node by role (``guess`` and ``warm`` point at sibling stage files;
+    ``counts`` at imported device results)."""
     stage_of = {"integrals": "integrals", "hamiltonian": "hamiltonian", "taper": "taper",
-                "guess": "integrals", "warm": "optimize"}
-    return {role: f"{results}/{stage_of[role]}/{key}.h5" for role, key in node.parents.items()}
+                "guess": "integrals", "warm": "optimize", "optimize": "optimize", "export": "export"}
+    out = {}
+    for role, key in node.parents.items():
+        if role == "counts":
+            out[role] = f"{results}/returned/{key}.json"
+        else:
+            out[role] = f"{results}/{stage_of[role]}/{key}.h5"
+    return out

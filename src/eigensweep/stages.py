@@ -7,6 +7,7 @@ these, so every stage can be run and tested without Snakemake.
 
 from __future__ import annotations
 
+import json
 import math
 from collections.abc import Callable
 from pathlib import Path
@@ -169,3 +170,118 @@ STAGE_ACTIONS = {
     "taper": run_taper,
     "optimize": run_optimize,
 }
+
+
+def device_circuit(opt_meta: dict, params: np.ndarray, tap, mapping: str):
+    """The optimized state's circuit on the qubits of the (possibly tapered) Hamiltonian.
+
+    Untapered: the ansatz's own circuit. Tapered: each Pauli rotation of the ansatz is carried
+    through the tapering Clifford and sector projection (Bravyi et al. 2017, arXiv:1701.08213),
+    which is exact for rotations that commute with the Z2 generators; rotations with a zero
+    angle are dropped first (symmetry-forbidden excitations stay at zero by symmetry).
+    """
+    from .device import circuit_from_rotations
+    from .qubit import PauliSum
+    from .vqe.ansatz import circuit_from_meta, rotations_from_meta
+
+    if tap.generators.n_terms == 0:
+        return circuit_from_meta(opt_meta, params, mapping)
+    if opt_meta.get("name") == "hardware_efficient" or "reference_bits" in opt_meta:
+        # qubit-space ansatz optimized directly on the tapered Hamiltonian
+        return circuit_from_meta(opt_meta, params, mapping)
+    _, rotations = rotations_from_meta(opt_meta, params, mapping)
+    tapered = []
+    for x, z, angle in rotations:
+        if abs(angle) < 1e-12:
+            continue
+        term = PauliSum(x=x[None, :].copy(), z=z[None, :].copy(), coeffs=np.ones(1), n_qubits=x.size)
+        try:
+            t = tap.taper_operator(term)
+        except ValueError:
+            raise StageFileError(
+                "export: a non-zero ansatz rotation breaks a Z2 symmetry used for tapering; "
+                "export the untapered result (select tapered: false)"
+            ) from None
+        if t.n_terms != 1:
+            raise StageFileError("export: tapering a rotation gave more than one Pauli term; this is a bug")
+        tapered.append((t.x[0], t.z[0], angle * float(t.coeffs[0])))
+    return circuit_from_rotations(np.asarray(tap.reference_bits, dtype=np.uint8), tapered)
+
+
+def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Device jobs for one optimized point: OpenQASM 3/2 circuits, manifest and job summary."""
+    from .device import build_job, write_job
+    from .qubit.statevector import expectation, simulate
+
+    p = node.params
+    opt = read_stage(inputs["optimize"], stage="optimize")
+    tap, tap_sd = load_taper(inputs["taper"])
+    mapping = tap_sd.meta["mapping"]
+    with Timer() as t:
+        circ = device_circuit(opt.meta["ansatz_meta"], opt.arrays["params"], tap, mapping)
+        ham = tap.hamiltonian
+        e_circ = expectation(simulate(circ), ham)
+        e_opt = float(opt.meta["energy_exact_at_params"])
+        if abs(e_circ - e_opt) > 1e-6:
+            raise StageFileError(
+                f"export {node.key}: the compiled circuit gives {e_circ:.8f} Eh but the optimizer's state "
+                f"{e_opt:.8f} Eh; refusing to export an inconsistent job"
+            )
+        job = build_job(circ, ham, shots_total=p["shots"], scale_factors=tuple(p["scale_factors"]),
+                        calibration=p["calibration"], job_name=f"eigensweep-{node.key}",
+                        meta={"export_key": node.key, "optimize_key": node.parents["optimize"],
+                              "mapping": mapping, "tapered": bool(tap_sd.meta["tapered"]),
+                              "energy_simulated": e_circ},
+                        target_se=p["target_mha"] / 1000.0)
+        folder = Path(output).with_suffix("")
+        write_job(job, folder)
+    manifest = json.loads((folder / "manifest.json").read_text())
+    meta = {"manifest": manifest, "energy_simulated": e_circ, "n_qubits": circ.n_qubits,
+            "cnot_count": circ.cnot_count, "depth": circ.depth, "mapping": mapping,
+            "tapered": bool(tap_sd.meta["tapered"]), "job_folder": folder.name}
+    _say(progress, f"export {node.key}: {len(manifest['circuits'])} circuits on {circ.n_qubits} qubits in {folder}")
+    write_stage(output, stage="export", key=node.key, params=p, parents=node.parents, arrays={},
+                meta=meta, wall_s=t.seconds)
+
+
+def run_reconcile(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Returned counts -> energies with bootstrap intervals: raw, mitigated, verified, extrapolated."""
+    from .device import load_results, reconcile, run_synthetic_device
+
+    p = node.params
+    exp = read_stage(inputs["export"], stage="export")
+    manifest = exp.meta["manifest"]
+    folder = Path(inputs["export"]).with_suffix("")
+    tap, tap_sd = load_taper(inputs["taper"])
+    ints = load_integrals(inputs["integrals"])
+    with Timer() as t:
+        if p["device"] == "synthetic":
+            returned = run_synthetic_device(folder, seed=p["seed"], readout_error=tuple(p["readout_error"]),
+                                            depolarizing_1q=p["depolarizing_1q"],
+                                            depolarizing_2q=p["depolarizing_2q"], device="eigensweep synthetic device")
+            counts = {cid: r["counts"] for cid, r in returned["results"].items()}
+        else:
+            counts = load_results(inputs["counts"], manifest)
+        if tap.generators.n_terms == 0:
+            # untapered job: verify with the Z2 symmetries tapering would have removed
+            from .qubit import taper
+
+            sym = taper(tap.hamiltonian, tap.reference_bits)
+            generators, sector = sym.generators, sym.sector
+        else:
+            # tapered job: its symmetries were removed with the qubits; nothing left to verify
+            generators, sector = None, None
+        res = reconcile(manifest, counts, tap.hamiltonian, generators=generators, sector=sector,
+                        n_electrons=None, mapping=tap_sd.meta["mapping"],
+                        bootstrap=p["bootstrap"], seed=p["seed"],
+                        energy_sim=float(exp.meta["energy_simulated"]),
+                        energy_exact=float(ints.references["casci"]))
+    arrays, meta = res.to_store()
+    meta = {**meta, "counts": counts, "comparison_table": res.comparison_table()}
+    _say(progress, f"reconcile {node.key}: raw {res.raw.value:.6f} Eh")
+    write_stage(output, stage="reconcile", key=node.key, params=p, parents=node.parents, arrays=arrays,
+                meta=meta, wall_s=t.seconds)
+
+
+STAGE_ACTIONS["export"] = run_export
+STAGE_ACTIONS["reconcile"] = run_reconcile

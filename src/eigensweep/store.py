@@ -182,7 +182,13 @@ def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = 
                 raise StageFileError(f"{path}: key {k} inside does not match the file name; {fix}")
             if key is not None and k != key:
                 raise StageFileError(f"{path}: key {k} is not the expected {key}; {fix}")
-            arrays = {name: ds[()] for name, ds in f["data"].items()}
+            arrays: dict[str, np.ndarray] = {}
+
+            def _grab(name: str, obj) -> None:
+                if isinstance(obj, h5py.Dataset):
+                    arrays[name] = obj[()]
+
+            f["data"].visititems(_grab)
             meta_raw = f["meta"][()]
             meta_text = meta_raw.decode() if isinstance(meta_raw, bytes) else str(meta_raw)
     except StageFileError:

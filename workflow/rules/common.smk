@@ -49,6 +49,18 @@ def get_integrals_files(wildcards=None):
     return sorted({f"results/integrals/{row['key_integrals']}.h5" for row in PLAN.rows})
 
 
+def get_reconcile_files(wildcards=None):
+    return [f"results/reconcile/{ex['key_reconcile']}.h5" for ex in PLAN.exports if ex["key_reconcile"]]
+
+
+def get_export_files(wildcards=None):
+    return [f"results/export/{ex['key_export']}.h5" for ex in PLAN.exports]
+
+
+def get_exports(wildcards=None):
+    return PLAN.exports
+
+
 def get_rows(wildcards=None):
     return PLAN.rows
 
@@ -60,8 +72,9 @@ def get_accuracy_mha(wildcards=None):
 def get_plot_files():
     mols = list(dict.fromkeys(row["molecule"] for row in PLAN.rows))
     files = [f"results/plots/{m}_{kind}.png" for m in mols for kind in ("energy", "error")]
+    files += [f"results/plots/device_{ex['key_export']}.png" for ex in PLAN.exports if ex["key_reconcile"]]
     return files + ["results/plots/convergence.png"]
 
 
 def get_final_outputs():
-    return ["results/summary.csv"] + get_plot_files()
+    return ["results/summary.csv", "results/device_summary.csv"] + get_plot_files() + get_export_files()
