@@ -1,0 +1,114 @@
+"""Bad input to the variational engine raises ConfigError naming the key (checked first)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+sys.path.insert(0, str(Path(__file__).parent))
+from test_vqe_common import h2_two_qubit, molecule  # noqa: E402
+
+from eigensweep.errors import ConfigError  # noqa: E402
+from eigensweep.vqe import (  # noqa: E402
+    ANSATZ_DEFAULTS,
+    ESTIMATOR_DEFAULTS,
+    OPTIMIZER_DEFAULTS,
+    minimize,
+    run_optimize,
+    validate_method,
+)
+
+
+def _run(**kw):
+    args = dict(
+        molecule("H2"),
+        ansatz={"name": "uccsd"},
+        optimizer={"name": "lbfgs"},
+        estimator={"name": "exact"},
+    )
+    args.update(kw)
+    return run_optimize(**args)
+
+
+@pytest.mark.parametrize(
+    "kind,cfg,needle",
+    [
+        ("ansatz", {"name": "uccsdt"}, "ansatz.name"),
+        ("ansatz", {"name": "uccsd", "frozen": 1}, "ansatz.frozen"),
+        ("ansatz", {"name": "kupccgsd", "k": 0}, "ansatz.k"),
+        ("ansatz", {"name": "kupccgsd", "k": 1.5}, "ansatz.k"),
+        ("ansatz", {"name": "uccsd", "spin_adapted": "yes"}, "ansatz.spin_adapted"),
+        ("ansatz", {"name": "uccsd", "mapping": "qubitwise"}, "ansatz.mapping"),
+        ("ansatz", {"name": "adapt", "pool": "everything"}, "ansatz.pool"),
+        ("ansatz", {"name": "adapt", "gradient_tolerance": 0}, "ansatz.gradient_tolerance"),
+        ("ansatz", {"name": "hardware_efficient", "rotations": "rx"}, "ansatz.rotations"),
+        ("ansatz", {"name": "hardware_efficient", "layers": -1}, "ansatz.layers"),
+        ("optimizer", {"name": "adam"}, "optimizer.name"),
+        ("optimizer", {"name": "lbfgs", "gtol": 1e-6}, "optimizer.gtol"),
+        ("optimizer", {"name": "lbfgs", "maxiter": 0}, "optimizer.maxiter"),
+        ("optimizer", {"name": "spsa", "c": -0.1}, "optimizer.c"),
+        ("optimizer", {"name": "rbf_surrogate", "weights": []}, "optimizer.weights"),
+        ("optimizer", {"name": "cobyla", "tol": "small"}, "optimizer.tol"),
+        ("estimator", {"name": "sampled"}, "estimator.name"),
+        ("estimator", {"name": "shots", "shots": 0}, "estimator.shots"),
+        ("estimator", {"name": "shots", "nshots": 10}, "estimator.nshots"),
+        ("estimator", {"name": "noisy", "readout_error": 0.7}, "estimator.readout_error"),
+        ("kinds", {"name": "x"}, "kind"),
+    ],
+)
+def test_bad_config_raises_config_error_naming_key(kind, cfg, needle):
+    # common practice: one-line message naming the offending key
+    with pytest.raises(ConfigError) as err:
+        validate_method(kind, cfg)
+    msg = str(err.value)
+    assert needle in msg
+    assert "\n" not in msg
+
+
+def test_unknown_names_list_allowed_values():
+    with pytest.raises(ConfigError, match="allowed: uccsd, kupccgsd, hardware_efficient, adapt"):
+        validate_method("ansatz", {"name": "foo"})
+    with pytest.raises(ConfigError, match="lbfgs"):
+        validate_method("optimizer", {"name": "foo"})
+
+
+def test_run_optimize_rejects_bad_input():
+    with pytest.raises(ConfigError, match="ansatz.name"):
+        _run(ansatz={"name": "nope"})
+    with pytest.raises(ConfigError, match="optimizer.tolerance"):
+        _run(optimizer={"name": "lbfgs", "tolerance": 1})
+    with pytest.raises(ConfigError, match="optimizer.name"):
+        # gradient optimizers need exact gradients
+        _run(estimator={"name": "shots", "shots": 100})
+    with pytest.raises(ConfigError, match="initial_params"):
+        _run(initial_params=np.zeros(5))
+    with pytest.raises(ConfigError, match="estimator.name"):
+        _run(ansatz={"name": "adapt"}, optimizer={"name": "cobyla"}, estimator={"name": "shots"})
+    with pytest.raises(ConfigError, match="reference_bits"):
+        _run(
+            ansatz={"name": "hardware_efficient"},
+            qubit_hamiltonian=h2_two_qubit()[0],
+        )
+
+
+def test_minimize_rejects_unknown_method_and_option():
+    with pytest.raises(ConfigError, match="optimizer.name"):
+        minimize(lambda x: float(x @ x), np.ones(2), method="newton", options={})
+    with pytest.raises(ConfigError, match="optimizer.step"):
+        minimize(lambda x: float(x @ x), np.ones(2), method="spsa", options={"step": 1})
+
+
+def test_defaults_are_filled_and_complete():
+    for kind, table in (
+        ("ansatz", ANSATZ_DEFAULTS),
+        ("optimizer", OPTIMIZER_DEFAULTS),
+        ("estimator", ESTIMATOR_DEFAULTS),
+    ):
+        for name, defaults in table.items():
+            out = validate_method(kind, {"name": name})
+            assert out == {"name": name, **defaults}
+    out = validate_method("optimizer", {"name": "lbfgs", "maxiter": 5})
+    assert out["maxiter"] == 5 and out["tol"] == OPTIMIZER_DEFAULTS["lbfgs"]["tol"]
