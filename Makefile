@@ -30,6 +30,7 @@ test: $(STAMP)
 lint: $(STAMP)
 	$(BIN)/ruff check src workflow/scripts tests benchmarks
 	$(BIN)/ruff format --check src workflow/scripts tests benchmarks
+	$(BIN)/snakefmt --check Snakefile workflow/rules
 	$(BIN)/snakemake --lint --configfile config/config.yaml
 
 bench: $(STAMP)

@@ -17,6 +17,13 @@ report: "workflow/report/workflow.rst"
 
 
 include: "workflow/rules/common.smk"
+
+
+# stage keys are 16 hex digits (src/eigensweep/plan.py)
+wildcard_constraints:
+    key="[0-9a-f]{16}",
+
+
 include: "workflow/rules/integrals.smk"
 include: "workflow/rules/hamiltonian.smk"
 include: "workflow/rules/taper.smk"
@@ -27,6 +34,6 @@ include: "workflow/rules/collect.smk"
 
 
 rule all:
+    default_target: True
     input:
         get_final_outputs(),
-    default_target: True

@@ -8,7 +8,12 @@ import pytest
 
 TINY = {
     "molecules": [
-        {"name": "h2", "atoms": "H 0 0 0; H 0 0 {r}", "scan": {"r": [0.7, 0.74]}, "basis": "sto-3g"},
+        {
+            "name": "h2",
+            "atoms": "H 0 0 0; H 0 0 {r}",
+            "scan": {"r": [0.7, 0.74]},
+            "basis": "sto-3g",
+        },
         {"name": "lih", "atoms": "Li 0 0 0; H 0 0 {r}", "scan": {"r": [1.6]}, "basis": "sto-3g"},
     ],
     "methods": {"optimizer": [{"name": "lbfgs"}]},

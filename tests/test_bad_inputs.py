@@ -27,15 +27,41 @@ CASES = [
     ("unknown-molecule-key", cfg(mol=GOOD_MOL + "\n    bassis: sto-3g"), "unknown key 'bassis'"),
     ("charge-type", cfg(mol=GOOD_MOL + "\n    charge: one"), "molecules[0].charge"),
     ("multiplicity-zero", cfg(mol=GOOD_MOL + "\n    multiplicity: 0"), "molecules[0].multiplicity"),
-    ("missing-name", 'molecules:\n  - atoms: "H 0 0 0; H 0 0 0.74"\n', "'name' is a required property"),
+    (
+        "missing-name",
+        'molecules:\n  - atoms: "H 0 0 0; H 0 0 0.74"\n',
+        "'name' is a required property",
+    ),
     ("unknown-mapping", cfg(methods="  mapping: [jordan_wiggler]"), "jordan_wiggler"),
     ("unknown-ansatz", cfg(methods="  ansatz: [{name: uccsdt}]"), "uccsdt"),
-    ("unknown-optimizer-option", cfg(methods="  optimizer: [{name: lbfgs, maxiterr: 5}]"), "maxiterr"),
+    (
+        "unknown-optimizer-option",
+        cfg(methods="  optimizer: [{name: lbfgs, maxiterr: 5}]"),
+        "maxiterr",
+    ),
     ("shots-zero", cfg(methods="  estimator: [{name: shots, shots: 0}]"), "shots"),
-    ("empty-scan", cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 {r}"\n    scan: {r: []}'), "molecules[0].scan.r"),
-    ("grid-num-zero", cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 {r}"\n    scan: {r: {start: 1, stop: 2, num: 0}}'), "scan"),
-    ("placeholder-without-scan", cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 {d}"'), "has no values"),
-    ("scan-without-placeholder", cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 0.7"\n    scan: {r: [1]}'), "does not appear"),
+    (
+        "empty-scan",
+        cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 {r}"\n    scan: {r: []}'),
+        "molecules[0].scan.r",
+    ),
+    (
+        "grid-num-zero",
+        cfg(
+            mol='name: h2\n    atoms: "H 0 0 0; H 0 0 {r}"\n    scan: {r: {start: 1, stop: 2, num: 0}}'
+        ),
+        "scan",
+    ),
+    (
+        "placeholder-without-scan",
+        cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 {d}"'),
+        "has no values",
+    ),
+    (
+        "scan-without-placeholder",
+        cfg(mol='name: h2\n    atoms: "H 0 0 0; H 0 0 0.7"\n    scan: {r: [1]}'),
+        "does not appear",
+    ),
     ("duplicate-names", "molecules:\n  - " + GOOD_MOL + "\n  - " + GOOD_MOL + "\n", "used twice"),
     ("atoms-and-xyz", cfg(mol=GOOD_MOL + "\n    xyz: m.xyz"), "exactly one of"),
     ("xyz-missing", "molecules:\n  - name: w\n    xyz: nothere.xyz\n", "nothere.xyz"),
@@ -45,13 +71,23 @@ CASES = [
     ("parity", cfg(mol=GOOD_MOL + "\n    multiplicity: 2"), "multiplicity"),
     ("no-electrons", cfg(mol=GOOD_MOL + "\n    charge: 2"), "electron"),
     ("active-too-big", cfg(mol=GOOD_MOL + "\n    active: {electrons: 2, orbitals: 5}"), "orbitals"),
-    ("zip-unequal", cfg(mol='name: h2o\n    atoms: "O 0 0 0; H 0 0 {r}; H 0 {a} 0"\n    scan: {r: [1, 2], a: [1]}\n    scan_mode: zip'), "equally long"),
+    (
+        "zip-unequal",
+        cfg(
+            mol='name: h2o\n    atoms: "O 0 0 0; H 0 0 {r}; H 0 {a} 0"\n    scan: {r: [1, 2], a: [1]}\n    scan_mode: zip'
+        ),
+        "equally long",
+    ),
     ("seed-negative", cfg(top="seed: -1\n"), "seed"),
 ]
 
 
 def _snapshot(root: Path) -> dict[str, str]:
-    return {str(p.relative_to(root)): hashlib.sha256(p.read_bytes()).hexdigest() for p in root.rglob("*") if p.is_file()}
+    return {
+        str(p.relative_to(root)): hashlib.sha256(p.read_bytes()).hexdigest()
+        for p in root.rglob("*")
+        if p.is_file()
+    }
 
 
 @pytest.fixture
@@ -84,7 +120,9 @@ def test_config_file_missing(workdir, capsys):
     assert "nope.yaml" in err and "not found" in err and "\n" not in err
 
 
-@pytest.mark.parametrize("content", [b"", b"not an hdf5 file at all", b"\x89HDF\r\n\x1a\n" + b"\0" * 50])
+@pytest.mark.parametrize(
+    "content", [b"", b"not an hdf5 file at all", b"\x89HDF\r\n\x1a\n" + b"\0" * 50]
+)
 def test_show_refuses_damaged_stage_file(workdir, capsys, content):
     bad = workdir / "results" / "integrals" / "0123456789abcdef.h5"
     bad.write_bytes(content)

@@ -23,7 +23,10 @@ def keys_by_stage(plan):
 
 def test_key_independent_of_dict_order(tiny_raw):
     a = build_plan(validate_config(tiny_raw))
-    reordered = {"methods": tiny_raw["methods"], "molecules": [dict(reversed(list(m.items()))) for m in tiny_raw["molecules"]]}
+    reordered = {
+        "methods": tiny_raw["methods"],
+        "molecules": [dict(reversed(list(m.items()))) for m in tiny_raw["molecules"]],
+    }
     b = build_plan(validate_config(reordered))
     assert set(a.nodes) == set(b.nodes)
 
@@ -32,8 +35,17 @@ def test_key_independent_of_written_defaults(tiny_raw):
     a = build_plan(validate_config(tiny_raw))
     explicit = copy.deepcopy(tiny_raw)
     for m in explicit["molecules"]:
-        m.update(charge=0, multiplicity=1, unit="angstrom", symmetry=True, frozen_core="none", active=None)
-    explicit["methods"].update(mapping=["jordan_wigner"], ansatz=[{"name": "uccsd"}], estimator=[{"name": "exact"}])
+        m.update(
+            charge=0,
+            multiplicity=1,
+            unit="angstrom",
+            symmetry=True,
+            frozen_core="none",
+            active=None,
+        )
+    explicit["methods"].update(
+        mapping=["jordan_wigner"], ansatz=[{"name": "uccsd"}], estimator=[{"name": "exact"}]
+    )
     explicit["seed"] = 0
     b = build_plan(validate_config(explicit))
     assert set(a.nodes) == set(b.nodes)
@@ -47,8 +59,13 @@ def test_key_independent_of_process():
         "import json,sys; from eigensweep.plan import stage_key; "
         "print(stage_key('optimize', json.loads(sys.argv[1]), {'taper': '0'*16}))"
     )
-    out = subprocess.run([sys.executable, "-c", code, json.dumps(params)], capture_output=True, text=True, check=True,
-                         env={"PYTHONHASHSEED": "123"})
+    out = subprocess.run(
+        [sys.executable, "-c", code, json.dumps(params)],
+        capture_output=True,
+        text=True,
+        check=True,
+        env={"PYTHONHASHSEED": "123"},
+    )
     assert out.stdout.strip() == here
 
 
@@ -70,7 +87,9 @@ def test_changing_basis_changes_every_key_of_that_molecule_only(tiny_raw):
         rows_b = {r["molecule"]: r for r in pb.rows}
         col = "key" if stage == "optimize" else f"key_{stage}"
         assert rows_a["lih"][col] != rows_b["lih"][col]
-        assert [r[col] for r in pa.rows if r["molecule"] == "h2"] == [r[col] for r in pb.rows if r["molecule"] == "h2"]
+        assert [r[col] for r in pa.rows if r["molecule"] == "h2"] == [
+            r[col] for r in pb.rows if r["molecule"] == "h2"
+        ]
 
 
 def test_product_of_methods_and_points(tiny_raw):
@@ -83,7 +102,10 @@ def test_product_of_methods_and_points(tiny_raw):
 
 
 def test_scan_grid_and_zip():
-    mol = {"scan": {"r": {"start": 1.0, "stop": 2.0, "num": 3}, "a": [90, 100, 110]}, "scan_mode": "zip"}
+    mol = {
+        "scan": {"r": {"start": 1.0, "stop": 2.0, "num": 3}, "a": [90, 100, 110]},
+        "scan_mode": "zip",
+    }
     pts = scan_points(mol, "m")
     assert pts == [{"r": 1.0, "a": 90.0}, {"r": 1.5, "a": 100.0}, {"r": 2.0, "a": 110.0}]
     mol["scan_mode"] = "product"

@@ -16,9 +16,17 @@ KEY = "0123456789abcdef"
 
 def _write(tmp_path, key=KEY, stage="integrals"):
     path = tmp_path / stage / f"{key}.h5"
-    write_stage(path, stage=stage, key=key, params={"basis": "sto-3g"}, parents={},
-                arrays={"h1e": np.arange(9.0).reshape(3, 3), "occ": np.array([1, 0], dtype=np.uint8)},
-                meta={"energy": -1.1, "label": "x"}, units={"h1e": "hartree"}, wall_s=0.5)
+    write_stage(
+        path,
+        stage=stage,
+        key=key,
+        params={"basis": "sto-3g"},
+        parents={},
+        arrays={"h1e": np.arange(9.0).reshape(3, 3), "occ": np.array([1, 0], dtype=np.uint8)},
+        meta={"energy": -1.1, "label": "x"},
+        units={"h1e": "hartree"},
+        wall_s=0.5,
+    )
     return path
 
 
@@ -84,4 +92,6 @@ def test_errors_are_one_line(tmp_path):
 
 def test_name_key_mismatch_on_write(tmp_path):
     with pytest.raises(StageFileError):
-        write_stage(tmp_path / "x.h5", stage="integrals", key=KEY, params={}, parents={}, arrays={}, meta={})
+        write_stage(
+            tmp_path / "x.h5", stage="integrals", key=KEY, params={}, parents={}, arrays={}, meta={}
+        )

@@ -19,7 +19,12 @@ pytestmark = pytest.mark.slow
 
 CONFIG = {
     "molecules": [
-        {"name": "h2", "atoms": "H 0 0 0; H 0 0 {r}", "scan": {"r": [0.74, 1.0]}, "basis": "sto-3g"},
+        {
+            "name": "h2",
+            "atoms": "H 0 0 0; H 0 0 {r}",
+            "scan": {"r": [0.74, 1.0]},
+            "basis": "sto-3g",
+        },
     ],
     "methods": {"taper": [False], "optimizer": [{"name": "lbfgs"}]},
 }
@@ -27,7 +32,11 @@ CONFIG = {
 
 def run_cli(workdir: Path, *args: str) -> subprocess.CompletedProcess:
     return subprocess.run(
-        [sys.executable, "-m", "eigensweep.cli", *args], cwd=workdir, capture_output=True, text=True, timeout=900
+        [sys.executable, "-m", "eigensweep.cli", *args],
+        cwd=workdir,
+        capture_output=True,
+        text=True,
+        timeout=900,
     )
 
 
@@ -97,3 +106,28 @@ def test_changing_optimizer_reruns_only_optimize(sweep):
     new = set(after) - set(before)
     assert new and all(n.startswith("results/optimize/") for n in new)
     assert len(new) == 2
+
+
+def test_archive_verifies_and_detects_one_changed_byte(sweep, tmp_path):
+    import tarfile
+
+    work, _ = sweep
+    out = run_cli(work, "archive", "--config", "sweep.yaml", "--output", str(tmp_path / "a.tar.gz"))
+    assert out.returncode == 0, out.stderr[-2000:]
+    ok = run_cli(work, "verify", str(tmp_path / "a.tar.gz"))
+    assert ok.returncode == 0, ok.stderr[-2000:]
+    assert "archive verified" in ok.stdout
+    with tarfile.open(tmp_path / "a.tar.gz") as tar:
+        names = tar.getnames()
+        assert any(n.endswith("ro-crate-metadata.json") for n in names)
+        assert any(n.endswith("environment.lock") for n in names)
+        tar.extractall(tmp_path / "x", filter="data")
+    victim = sorted((tmp_path / "x").rglob("results/integrals/*.h5"))[0]
+    data = bytearray(victim.read_bytes())
+    data[len(data) // 2] ^= 0x01
+    victim.write_bytes(bytes(data))
+    with tarfile.open(tmp_path / "b.tar.gz", "w:gz") as tar:
+        tar.add(tmp_path / "x" / "eigensweep-archive", arcname="eigensweep-archive")
+    bad = run_cli(work, "verify", str(tmp_path / "b.tar.gz"))
+    assert bad.returncode != 0
+    assert victim.name in bad.stderr and "SHA-256" in bad.stderr

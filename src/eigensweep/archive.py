@@ -61,8 +61,11 @@ def source_revision() -> dict:
     root = repo_root()
     commit = _git(["rev-parse", "HEAD"], root)
     status = _git(["status", "--porcelain"], root)
-    return {"commit": commit or "unknown", "dirty": bool(status) if status is not None else None,
-            "eigensweep_version": __version__}
+    return {
+        "commit": commit or "unknown",
+        "dirty": bool(status) if status is not None else None,
+        "eigensweep_version": __version__,
+    }
 
 
 def environment_lock() -> str:
@@ -92,38 +95,79 @@ def stage_closure(plan: Plan) -> list[Node]:
 
 def _crate(files: list[tuple[str, int, str]], revision: dict, created: str) -> dict:
     graph = [
-        {"@id": "ro-crate-metadata.json", "@type": "CreativeWork",
-         "conformsTo": {"@id": "https://w3id.org/ro/crate/1.1"}, "about": {"@id": "./"}},
-        {"@id": "./", "@type": "Dataset", "name": "eigensweep sweep results",
-         "description": "Variational-eigensolver sweep: configuration, stage files, summary, plots and environment.",
-         "datePublished": created, "hasPart": [{"@id": f[0]} for f in files],
-         "mainEntity": {"@id": "workflow/Snakefile"}},
-        {"@id": "workflow/Snakefile", "@type": ["File", "SoftwareSourceCode", "ComputationalWorkflow"],
-         "name": "eigensweep workflow", "programmingLanguage": {"@id": "#snakemake"},
-         "version": revision.get("commit")},
-        {"@id": "#snakemake", "@type": "ComputerLanguage", "name": "Snakemake",
-         "url": {"@id": "https://snakemake.github.io"}},
+        {
+            "@id": "ro-crate-metadata.json",
+            "@type": "CreativeWork",
+            "conformsTo": {"@id": "https://w3id.org/ro/crate/1.1"},
+            "about": {"@id": "./"},
+        },
+        {
+            "@id": "./",
+            "@type": "Dataset",
+            "name": "eigensweep sweep results",
+            "description": "Variational-eigensolver sweep: configuration, stage files, summary, plots and environment.",
+            "datePublished": created,
+            "hasPart": [{"@id": f[0]} for f in files],
+            "mainEntity": {"@id": "workflow/Snakefile"},
+        },
+        {
+            "@id": "workflow/Snakefile",
+            "@type": ["File", "SoftwareSourceCode", "ComputationalWorkflow"],
+            "name": "eigensweep workflow",
+            "programmingLanguage": {"@id": "#snakemake"},
+            "version": revision.get("commit"),
+        },
+        {
+            "@id": "#snakemake",
+            "@type": "ComputerLanguage",
+            "name": "Snakemake",
+            "url": {"@id": "https://snakemake.github.io"},
+        },
     ]
     for name in ("eigensweep", "pyscf", "openfermion", "numpy", "scipy", "h5py", "snakemake"):
         try:
             version = __version__ if name == "eigensweep" else metadata.version(name)
         except metadata.PackageNotFoundError:
             continue
-        graph.append({"@id": f"#software-{name}", "@type": "SoftwareApplication", "name": name,
-                      "version": version})
+        graph.append(
+            {
+                "@id": f"#software-{name}",
+                "@type": "SoftwareApplication",
+                "name": name,
+                "version": version,
+            }
+        )
     for path, size, digest in files:
         if path == "workflow/Snakefile":
             graph[2].update({"contentSize": str(size), "sha256": digest})
             continue
-        fmt = {".h5": "application/x-hdf5", ".csv": "text/csv", ".png": "image/png", ".yaml": "application/yaml",
-               ".json": "application/json", ".html": "text/html"}.get(Path(path).suffix, "text/plain")
-        graph.append({"@id": path, "@type": "File", "contentSize": str(size), "sha256": digest,
-                      "encodingFormat": fmt})
+        fmt = {
+            ".h5": "application/x-hdf5",
+            ".csv": "text/csv",
+            ".png": "image/png",
+            ".yaml": "application/yaml",
+            ".json": "application/json",
+            ".html": "text/html",
+        }.get(Path(path).suffix, "text/plain")
+        graph.append(
+            {
+                "@id": path,
+                "@type": "File",
+                "contentSize": str(size),
+                "sha256": digest,
+                "encodingFormat": fmt,
+            }
+        )
     return {"@context": "https://w3id.org/ro/crate/1.1/context", "@graph": graph}
 
 
-def make_archive(plan: Plan, config_paths: list[Path], output: str | Path,
-                 results: str | Path = "results", report: str | Path | None = None) -> Path:
+def make_archive(
+    plan: Plan,
+    config_paths: list[Path],
+    output: str | Path,
+    results: str | Path = "results",
+    report: str | Path | None = None,
+) -> Path:
     """Write the provenance bundle; refuses to overwrite an existing file.
 
     Raises:
@@ -144,7 +188,9 @@ def make_archive(plan: Plan, config_paths: list[Path], output: str | Path,
         members[f"results/{node.stage}/{node.key}.h5"] = f
     summary = results / "summary.csv"
     if not summary.is_file():
-        raise EigensweepError(f"{summary}: missing; run the sweep (eigensweep run) before archiving")
+        raise EigensweepError(
+            f"{summary}: missing; run the sweep (eigensweep run) before archiving"
+        )
     members["results/summary.csv"] = summary
     for png in sorted((results / "plots").glob("*.png")):
         members[f"results/plots/{png.name}"] = png
@@ -158,8 +204,11 @@ def make_archive(plan: Plan, config_paths: list[Path], output: str | Path,
     generated = {
         "environment.lock": environment_lock().encode(),
         "source-revision.json": json.dumps(revision, indent=2).encode(),
-        "plan.json": json.dumps({"rows": plan.rows, "nodes": [n.as_dict() for n in stage_closure(plan)]},
-                                indent=1, sort_keys=True).encode(),
+        "plan.json": json.dumps(
+            {"rows": plan.rows, "nodes": [n.as_dict() for n in stage_closure(plan)]},
+            indent=1,
+            sort_keys=True,
+        ).encode(),
     }
     listing: list[tuple[str, int, str]] = []
     for name, path in sorted(members.items()):
@@ -175,8 +224,11 @@ def make_archive(plan: Plan, config_paths: list[Path], output: str | Path,
         with tarfile.open(tmp, "w:gz") as tar:
             for name, path in sorted(members.items()):
                 tar.add(path, arcname=f"{ARCHIVE_ROOT}/{name}", recursive=False)
-            for name, blob in [*sorted(generated.items()), ("MANIFEST.sha256", manifest),
-                               ("ro-crate-metadata.json", crate)]:
+            for name, blob in [
+                *sorted(generated.items()),
+                ("MANIFEST.sha256", manifest),
+                ("ro-crate-metadata.json", crate),
+            ]:
                 info = tarfile.TarInfo(f"{ARCHIVE_ROOT}/{name}")
                 info.size = len(blob)
                 info.mtime = int(time.time())
@@ -194,16 +246,22 @@ def safe_extract(archive: str | Path, dest: str | Path) -> Path:
     try:
         tar = tarfile.open(archive, "r:*")
     except (tarfile.TarError, OSError) as exc:
-        raise EigensweepError(f"{archive}: not a readable tar.gz archive ({exc}); check the file") from None
+        raise EigensweepError(
+            f"{archive}: not a readable tar.gz archive ({exc}); check the file"
+        ) from None
     with tar:
         for m in tar.getmembers():
             target = (dest / m.name).resolve()
             if not str(target).startswith(str(dest) + os.sep):
-                raise EigensweepError(f"{archive}: member {m.name!r} would land outside the target folder; refusing")
+                raise EigensweepError(
+                    f"{archive}: member {m.name!r} would land outside the target folder; refusing"
+                )
             if not (m.isfile() or m.isdir()):
                 raise EigensweepError(f"{archive}: member {m.name!r} is a link or device; refusing")
             if m.size > MAX_MEMBER_BYTES:
-                raise EigensweepError(f"{archive}: member {m.name!r} is larger than {MAX_MEMBER_BYTES} bytes; refusing")
+                raise EigensweepError(
+                    f"{archive}: member {m.name!r} is larger than {MAX_MEMBER_BYTES} bytes; refusing"
+                )
         tar.extractall(dest, filter="data")
     return dest / ARCHIVE_ROOT
 
@@ -216,7 +274,9 @@ class VerifyReport:
     max_abs_diff: float
 
 
-def verify_archive(archive: str | Path, stage: str | None = "hamiltonian", atol: float = 1e-8) -> VerifyReport:
+def verify_archive(
+    archive: str | Path, stage: str | None = "hamiltonian", atol: float = 1e-8
+) -> VerifyReport:
     """Check every SHA-256 in the archive's manifest, then recompute one stage job and compare.
 
     Args:
@@ -234,7 +294,9 @@ def verify_archive(archive: str | Path, stage: str | None = "hamiltonian", atol:
         root = safe_extract(archive, tmp)
         manifest = root / "MANIFEST.sha256"
         if not manifest.is_file():
-            raise EigensweepError(f"{archive}: no MANIFEST.sha256 inside; not an eigensweep archive")
+            raise EigensweepError(
+                f"{archive}: no MANIFEST.sha256 inside; not an eigensweep archive"
+            )
         lines = manifest.read_text().splitlines()
         listed = set()
         for line in lines:
@@ -244,7 +306,9 @@ def verify_archive(archive: str | Path, stage: str | None = "hamiltonian", atol:
             if not f.is_file():
                 raise EigensweepError(f"{archive}: {name} is listed in the manifest but missing")
             if _sha256(f) != digest:
-                raise EigensweepError(f"{archive}: {name} does not match its SHA-256 in the manifest (changed or damaged)")
+                raise EigensweepError(
+                    f"{archive}: {name} does not match its SHA-256 in the manifest (changed or damaged)"
+                )
         present = {str(p.relative_to(root)) for p in root.rglob("*") if p.is_file()}
         extra = present - listed - {"MANIFEST.sha256", "ro-crate-metadata.json"}
         if extra:
@@ -266,13 +330,19 @@ def verify_archive(archive: str | Path, stage: str | None = "hamiltonian", atol:
         for name, arr in sd.arrays.items():
             other = new.arrays.get(name)
             if other is None or np.shape(other) != np.shape(arr):
-                raise StageFileError(f"{archive}: re-running {stage} {sd.key} gives a different array {name!r}")
+                raise StageFileError(
+                    f"{archive}: re-running {stage} {sd.key} gives a different array {name!r}"
+                )
             if arr.dtype.kind in "fc":
-                diff = float(np.max(np.abs(np.asarray(arr) - np.asarray(other)))) if arr.size else 0.0
+                diff = (
+                    float(np.max(np.abs(np.asarray(arr) - np.asarray(other)))) if arr.size else 0.0
+                )
             else:
                 diff = 0.0 if np.array_equal(arr, other) else float("inf")
             worst = max(worst, diff)
         if worst > atol:
-            raise EigensweepError(f"{archive}: re-running {stage} {sd.key} differs from the archive by {worst:.3g} (> {atol})")
+            raise EigensweepError(
+                f"{archive}: re-running {stage} {sd.key} differs from the archive by {worst:.3g} (> {atol})"
+            )
         shutil.rmtree(out_dir, ignore_errors=True)
         return VerifyReport(len(listed), stage, sd.key, worst)

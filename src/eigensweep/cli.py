@@ -31,7 +31,6 @@ def _default_config() -> Path:
 def _load_plan(config: str | None):
     from .config import load_config
     from .plan import build_plan
-
     from .preflight import check_plan_chemistry
 
     path = Path(config) if config else _default_config()
@@ -70,7 +69,9 @@ def cmd_plan(args) -> int:
     for stage in ("integrals", "hamiltonian", "taper", "optimize"):
         c = counts.get(stage, {})
         total = sum(c.values())
-        print(f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}")
+        print(
+            f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}"
+        )
     if args.verbose:
         print("\n".join(lines))
     return 0
@@ -80,12 +81,23 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
     from .paths import repo_root
 
     root = repo_root()
-    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(root / "Snakefile"),
-           "--configfile", str(config.resolve()), "--directory", str(Path.cwd())]
+    cmd = [
+        sys.executable,
+        "-m",
+        "snakemake",
+        "--snakefile",
+        str(root / "Snakefile"),
+        "--configfile",
+        str(config.resolve()),
+        "--directory",
+        str(Path.cwd()),
+    ]
     profile = args.profile or "local"
     prof_dir = Path(profile) if Path(profile).is_dir() else root / "profiles" / profile
     if not prof_dir.is_dir():
-        raise EigensweepError(f"--profile {profile}: no such profile; use local, slurm or a folder with config.yaml")
+        raise EigensweepError(
+            f"--profile {profile}: no such profile; use local, slurm or a folder with config.yaml"
+        )
     cmd += ["--workflow-profile", str(prof_dir)]
     cmd += ["--cores", str(args.cores or os.cpu_count() or 1)]
     if args.dry_run:
@@ -95,17 +107,38 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
 
 def cmd_run(args) -> int:
     path, cfg, plan = _load_plan(args.config)
+    lock = None if args.dry_run else _folder_lock()
+    try:
+        return _run_locked(args, path, plan, lock is not None)
+    finally:
+        if lock is not None:
+            lock.close()
+
+
+def _run_locked(args, path: Path, plan, locked: bool) -> int:
     results = Path("results")
+    if locked:
+        # Under the folder lock no other writer exists: temporary files are leftovers of
+        # killed jobs (never stage files, which appear only by an atomic rename).
+        for tmp in results.glob("*/.*.tmp"):
+            tmp.unlink(missing_ok=True)
     status = {key: _status(node, results) for key, node in plan.nodes.items()}
     pending = [plan.nodes[k] for k, st in status.items() if st != "cached"]
     damaged = [plan.nodes[k] for k, st in status.items() if st.startswith("damaged")]
-    print(f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
-          f"{len(plan.nodes) - len(pending)} cached, {len(pending)} to run", flush=True)
+    print(
+        f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
+        f"{len(plan.nodes) - len(pending)} cached, {len(pending)} to run",
+        flush=True,
+    )
     if damaged and not args.dry_run:
         moved = _quarantine(damaged, results)
-        print(f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be recomputed",
-              flush=True)
+        print(
+            f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be recomputed",
+            flush=True,
+        )
     cmd = _snakemake_cmd(args, path)
+    if locked:
+        cmd.append("--nolock")
     if pending:
         # Snakemake does not rebuild a missing intermediate file whose descendants exist; the
         # plan knows which stage files are missing or damaged, so ask for exactly those.
@@ -114,12 +147,39 @@ def cmd_run(args) -> int:
     proc = subprocess.run(cmd)
     dt = time.perf_counter() - t0
     if proc.returncode != 0:
-        print(f"eigensweep: the sweep stopped with errors after {dt:.1f} s; see the lines above and "
-              "logs/<stage>/<key>.log; finished stages are kept, rerun to resume", file=sys.stderr)
+        print(
+            f"eigensweep: the sweep stopped with errors after {dt:.1f} s; see the lines above and "
+            "logs/<stage>/<key>.log; finished stages are kept, rerun to resume",
+            file=sys.stderr,
+        )
         return proc.returncode
     if not args.dry_run:
-        print(f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/")
+        print(
+            f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/"
+        )
     return 0
+
+
+def _folder_lock():
+    """One sweep at a time per folder: an OS file lock, released even if the process is killed.
+
+    A second `eigensweep run` in the same folder waits for the first, then finds the shared
+    stages cached. Snakemake's own lock is turned off under it (it survives a SIGKILL and would
+    block the resume).
+    """
+    import fcntl
+
+    Path(".snakemake").mkdir(exist_ok=True)
+    fh = open(".snakemake/eigensweep-run.lock", "w")  # noqa: SIM115 (held for the whole run)
+    try:
+        fcntl.flock(fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        print(
+            "eigensweep: another sweep is running in this folder; waiting for it to finish",
+            flush=True,
+        )
+        fcntl.flock(fh, fcntl.LOCK_EX)
+    return fh
 
 
 def _quarantine(nodes, results: Path) -> Path:
@@ -155,7 +215,12 @@ def cmd_show(args) -> int:
 
 def cmd_report(args) -> int:
     path, cfg, plan = _load_plan(args.config)
-    args.profile, args.cores, args.dry_run, args.snakemake_args = "local", 1, False, ["--report", args.output]
+    args.profile, args.cores, args.dry_run, args.snakemake_args = (
+        "local",
+        1,
+        False,
+        ["--report", args.output],
+    )
     proc = subprocess.run(_snakemake_cmd(args, path))
     if proc.returncode == 0:
         print(f"eigensweep: report written to {args.output}")
@@ -170,7 +235,9 @@ def cmd_archive(args) -> int:
     out = Path(args.output or f"eigensweep-archive-{stamp}.tar.gz")
     report = Path(args.report) if args.report else Path("results/report.html")
     make_archive(plan, [path], out, results="results", report=report)
-    print(f"eigensweep: wrote {out} ({out.stat().st_size / 1e6:.1f} MB); check it with: eigensweep verify {out}")
+    print(
+        f"eigensweep: wrote {out} ({out.stat().st_size / 1e6:.1f} MB); check it with: eigensweep verify {out}"
+    )
     return 0
 
 
@@ -180,8 +247,10 @@ def cmd_verify(args) -> int:
     rep = verify_archive(args.archive, stage=None if args.stage == "none" else args.stage)
     print(f"eigensweep: {args.archive}: {rep.n_files} files match their SHA-256")
     if rep.rerun_stage:
-        print(f"eigensweep: re-ran {rep.rerun_stage} {rep.rerun_key} from archived inputs: "
-              f"largest difference {rep.max_abs_diff:.3g}")
+        print(
+            f"eigensweep: re-ran {rep.rerun_stage} {rep.rerun_key} from archived inputs: "
+            f"largest difference {rep.max_abs_diff:.3g}"
+        )
     print("eigensweep: archive verified")
     return 0
 
@@ -206,13 +275,17 @@ def cmd_import_counts(args) -> int:
     read_stage(folder.with_suffix(".h5"), stage="export", key=key)
     dest = Path("results") / "returned" / f"{key}.json"
     import_results(args.file, folder, dest)
-    print(f"eigensweep: imported {args.file} -> {dest}; the next 'eigensweep run' reconciles this point "
-          "(config device.kind must be external)")
+    print(
+        f"eigensweep: imported {args.file} -> {dest}; the next 'eigensweep run' reconciles this point "
+        "(config device.kind must be external)"
+    )
     return 0
 
 
 def build_parser() -> argparse.ArgumentParser:
-    ap = argparse.ArgumentParser(prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules.")
+    ap = argparse.ArgumentParser(
+        prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules."
+    )
     ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
     sub = ap.add_subparsers(dest="command", required=True)
 
@@ -231,23 +304,37 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("report", help="write the Snakemake HTML report of a finished sweep")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
-    p.add_argument("--output", default="results/report.html", help="report file (default results/report.html)")
+    p.add_argument(
+        "--output", default="results/report.html", help="report file (default results/report.html)"
+    )
     p.set_defaults(func=cmd_report)
 
-    p = sub.add_parser("archive", help="pack config, stage files, summary, plots and environment into a tar.gz")
+    p = sub.add_parser(
+        "archive", help="pack config, stage files, summary, plots and environment into a tar.gz"
+    )
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("--output", help="archive file (default eigensweep-archive-<time>.tar.gz)")
-    p.add_argument("--report", help="Snakemake report to include (default results/report.html if present)")
+    p.add_argument(
+        "--report", help="Snakemake report to include (default results/report.html if present)"
+    )
     p.set_defaults(func=cmd_archive)
 
     p = sub.add_parser("verify", help="check an archive's hashes and re-run one stage from it")
     p.add_argument("archive")
-    p.add_argument("--stage", default="hamiltonian", choices=["integrals", "hamiltonian", "taper", "optimize", "none"],
-                   help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)")
+    p.add_argument(
+        "--stage",
+        default="hamiltonian",
+        choices=["integrals", "hamiltonian", "taper", "optimize", "none"],
+        help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)",
+    )
     p.set_defaults(func=cmd_verify)
 
-    p = sub.add_parser("import-counts", help="check returned device counts against an exported job and import them")
-    p.add_argument("file", help="returned results in eigensweep's JSON format (docs/counts-format.md)")
+    p = sub.add_parser(
+        "import-counts", help="check returned device counts against an exported job and import them"
+    )
+    p.add_argument(
+        "file", help="returned results in eigensweep's JSON format (docs/counts-format.md)"
+    )
     p.add_argument("--job", required=True, help="export key or folder results/export/<key>")
     p.set_defaults(func=cmd_import_counts)
 

@@ -27,10 +27,30 @@ REFERENCE_COLUMNS = {
 }
 
 SUMMARY_COLUMNS = [
-    "molecule", "point", "basis", "charge", "multiplicity", "mapping", "tapered", "n_qubits",
-    "ansatz", "optimizer", "estimator", "n_params", "energy", "energy_stderr",
-    *REFERENCE_COLUMNS, "error_mha", "below_exact", "overlap_exact", "cnot_count", "depth",
-    "evaluations", "converged", "wall_s", "key",
+    "molecule",
+    "point",
+    "basis",
+    "charge",
+    "multiplicity",
+    "mapping",
+    "tapered",
+    "n_qubits",
+    "ansatz",
+    "optimizer",
+    "estimator",
+    "n_params",
+    "energy",
+    "energy_stderr",
+    *REFERENCE_COLUMNS,
+    "error_mha",
+    "below_exact",
+    "overlap_exact",
+    "cnot_count",
+    "depth",
+    "evaluations",
+    "converged",
+    "wall_s",
+    "key",
 ]
 
 
@@ -121,15 +141,22 @@ def plot_molecule(rows: list[dict], folder: str | Path, accuracy_mha: float = 1.
     xname, _ = _xaxis(rows)
     points = list(dict.fromkeys(r["point"] for r in rows))
     first = {p: next(r for r in rows if r["point"] == p) for p in points}
-    x = np.array([float(first[p][f"scan_{xname}"]) if xname != "point" else i for i, p in enumerate(points)])
+    x = np.array(
+        [float(first[p][f"scan_{xname}"]) if xname != "point" else i for i, p in enumerate(points)]
+    )
     order = np.argsort(x)
     x = x[order]
     points = [points[i] for i in order]
     files = []
 
     fig, ax = plt.subplots(figsize=(7, 4.5))
-    ref_style = {"energy_hf": ("HF", "k--"), "energy_mp2": ("MP2", "c:"), "energy_ccsd": ("CCSD", "y-."),
-                 "energy_ccsd_t": ("CCSD(T)", "g:"), "energy_exact": ("exact (CASCI/FCI)", "k-")}
+    ref_style = {
+        "energy_hf": ("HF", "k--"),
+        "energy_mp2": ("MP2", "c:"),
+        "energy_ccsd": ("CCSD", "y-."),
+        "energy_ccsd_t": ("CCSD(T)", "g:"),
+        "energy_exact": ("exact (CASCI/FCI)", "k-"),
+    }
     for col, (lab, style) in ref_style.items():
         y = np.array([float(first[p][col]) for p in points])
         if np.isfinite(y).any():
@@ -140,7 +167,9 @@ def plot_molecule(rows: list[dict], folder: str | Path, accuracy_mha: float = 1.
         xs = [xv for xv, p in zip(x, points, strict=True) if p in sel]
         ys = [float(sel[p]["energy"]) for p in points if p in sel]
         es = [float(sel[p]["energy_stderr"] or 0.0) for p in points if p in sel]
-        ax.errorbar(xs, ys, yerr=es if any(es) else None, fmt="o", ms=4, capsize=2, label=f"VQE {m}")
+        ax.errorbar(
+            xs, ys, yerr=es if any(es) else None, fmt="o", ms=4, capsize=2, label=f"VQE {m}"
+        )
     ax.set_xlabel(f"{xname} ({'scan value, unit as in config' if xname != 'point' else 'index'})")
     ax.set_ylabel("energy (hartree)")
     ax.set_title(f"{name}: VQE and classical references ({rows[0]['basis']})")
@@ -185,7 +214,12 @@ def plot_traces(rows: list[dict], folder: str | Path, results: str | Path = "res
             opt = read_stage(Path(results) / "optimize" / f"{r['key']}.h5", stage="optimize")
             tr = np.asarray(opt.arrays["trace_energy"], dtype=float)
             err = np.maximum((tr - float(r["energy_exact"])) * 1000.0, 1e-7)
-            ax.semilogy(np.arange(1, len(err) + 1), err, lw=0.8, label=f"{r['point']} {r['ansatz']}/{r['optimizer']}")
+            ax.semilogy(
+                np.arange(1, len(err) + 1),
+                err,
+                lw=0.8,
+                label=f"{r['point']} {r['ansatz']}/{r['optimizer']}",
+            )
         ax.axhline(1.6, color="tab:green", lw=0.8, ls="--")
         ax.set_title(f"{mol}: convergence")
         ax.set_xlabel("energy evaluation")
@@ -199,8 +233,12 @@ def plot_traces(rows: list[dict], folder: str | Path, results: str | Path = "res
     return f
 
 
-def collect(rows: list[dict], results: str | Path = "results", accuracy_mha: float = 1.6,
-            exports: list[dict] | None = None) -> list[Path]:
+def collect(
+    rows: list[dict],
+    results: str | Path = "results",
+    accuracy_mha: float = 1.6,
+    exports: list[dict] | None = None,
+) -> list[Path]:
     """Write ``summary.csv``, ``device_summary.csv`` and every plot; returns the written files."""
     results = Path(results)
     summary = summary_rows(rows, results)
@@ -214,9 +252,25 @@ def collect(rows: list[dict], results: str | Path = "results", accuracy_mha: flo
 
 
 DEVICE_COLUMNS = [
-    "molecule", "point", "mapping", "tapered", "ansatz", "optimizer", "n_qubits", "n_circuits",
-    "shots", "energy_simulated", "energy_exact", "estimate", "energy", "ci_low", "ci_high",
-    "error_mha", "kept_fraction", "key_export", "key_reconcile",
+    "molecule",
+    "point",
+    "mapping",
+    "tapered",
+    "ansatz",
+    "optimizer",
+    "n_qubits",
+    "n_circuits",
+    "shots",
+    "energy_simulated",
+    "energy_exact",
+    "estimate",
+    "energy",
+    "ci_low",
+    "ci_high",
+    "error_mha",
+    "kept_fraction",
+    "key_export",
+    "key_reconcile",
 ]
 
 
@@ -238,22 +292,27 @@ def device_rows(exports: list[dict], results: str | Path = "results") -> list[di
         for kind, est in res.estimates().items():
             if est is None:
                 continue
-            out.append({
-                **{k: ex.get(k, "") for k in ("molecule", "point", "mapping", "tapered", "ansatz", "optimizer")},
-                "n_qubits": exp.meta["n_qubits"],
-                "n_circuits": len(manifest["circuits"]),
-                "shots": sum(int(c["shots"]) for c in manifest["circuits"]),
-                "energy_simulated": float(exp.meta["energy_simulated"]),
-                "energy_exact": exact,
-                "estimate": kind,
-                "energy": est.value,
-                "ci_low": est.ci_low,
-                "ci_high": est.ci_high,
-                "error_mha": (est.value - exact) * 1000.0,
-                "kept_fraction": res.kept_fraction if kind == "symmetry_verified" else "",
-                "key_export": ex["key_export"],
-                "key_reconcile": ex["key_reconcile"],
-            })
+            out.append(
+                {
+                    **{
+                        k: ex.get(k, "")
+                        for k in ("molecule", "point", "mapping", "tapered", "ansatz", "optimizer")
+                    },
+                    "n_qubits": exp.meta["n_qubits"],
+                    "n_circuits": len(manifest["circuits"]),
+                    "shots": sum(int(c["shots"]) for c in manifest["circuits"]),
+                    "energy_simulated": float(exp.meta["energy_simulated"]),
+                    "energy_exact": exact,
+                    "estimate": kind,
+                    "energy": est.value,
+                    "ci_low": est.ci_low,
+                    "ci_high": est.ci_high,
+                    "error_mha": (est.value - exact) * 1000.0,
+                    "kept_fraction": res.kept_fraction if kind == "symmetry_verified" else "",
+                    "key_export": ex["key_export"],
+                    "key_reconcile": ex["key_reconcile"],
+                }
+            )
     return out
 
 

@@ -83,12 +83,18 @@ def validate_config(raw: Any, source: str = "config") -> dict:
         ConfigError: one line, ``<source>: <key path>: <problem>; <what is allowed>``.
     """
     if raw is None:
-        raise ConfigError(f"{source}: the configuration is empty; see config/config.yaml for an example")
+        raise ConfigError(
+            f"{source}: the configuration is empty; see config/config.yaml for an example"
+        )
     if not isinstance(raw, dict):
-        raise ConfigError(f"{source}: the top level must be a mapping with 'molecules' and 'methods'")
+        raise ConfigError(
+            f"{source}: the top level must be a mapping with 'molecules' and 'methods'"
+        )
     schema = load_schema()
     validator = jsonschema.Draft202012Validator(schema)
-    errors = sorted(validator.iter_errors(raw), key=lambda e: (len(list(e.absolute_path)), str(e.absolute_path)))
+    errors = sorted(
+        validator.iter_errors(raw), key=lambda e: (len(list(e.absolute_path)), str(e.absolute_path))
+    )
     if errors:
         err = jsonschema.exceptions.best_match(errors)
         raise ConfigError(f"{source}: {_describe(err)}")
@@ -109,7 +115,9 @@ def validate_config(raw: Any, source: str = "config") -> dict:
     names = [m["name"] for m in cfg["molecules"]]
     dup = sorted({n for n in names if names.count(n) > 1})
     if dup:
-        raise ConfigError(f"{source}: molecules: name {dup[0]!r} is used twice; give each molecule its own name")
+        raise ConfigError(
+            f"{source}: molecules: name {dup[0]!r} is used twice; give each molecule its own name"
+        )
     return cfg
 
 
@@ -117,9 +125,13 @@ def load_config(path: str | Path) -> dict:
     """Read a YAML config file safely, validate it and fill defaults."""
     path = Path(path)
     if not path.is_file():
-        raise ConfigError(f"{path}: config file not found; pass an existing YAML file with --config")
+        raise ConfigError(
+            f"{path}: config file not found; pass an existing YAML file with --config"
+        )
     if path.stat().st_size > MAX_CONFIG_BYTES:
-        raise ConfigError(f"{path}: config file is larger than {MAX_CONFIG_BYTES} bytes; is it the right file?")
+        raise ConfigError(
+            f"{path}: config file is larger than {MAX_CONFIG_BYTES} bytes; is it the right file?"
+        )
     try:
         with open(path, encoding="utf-8") as fh:
             raw = yaml.safe_load(fh)
@@ -127,7 +139,9 @@ def load_config(path: str | Path) -> dict:
         mark = getattr(exc, "problem_mark", None)
         where = f" line {mark.line + 1}, column {mark.column + 1}" if mark else ""
         problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
-        raise ConfigError(f"{path}:{where}: YAML syntax error: {problem}; fix the file and retry") from None
+        raise ConfigError(
+            f"{path}:{where}: YAML syntax error: {problem}; fix the file and retry"
+        ) from None
     except UnicodeDecodeError:
         raise ConfigError(f"{path}: not a UTF-8 text file; pass a YAML config") from None
     return validate_config(raw, source=str(path))

@@ -46,7 +46,12 @@ class Node:
     parents: dict[str, str] = field(default_factory=dict)
 
     def as_dict(self) -> dict:
-        return {"stage": self.stage, "key": self.key, "params": self.params, "parents": self.parents}
+        return {
+            "stage": self.stage,
+            "key": self.key,
+            "params": self.params,
+            "parents": self.parents,
+        }
 
 
 @dataclass
@@ -159,7 +164,9 @@ def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
         )
     text = _PLACEHOLDER.sub(lambda m: _format_value(point[m.group(1)]), template)
     if "{" in text or "}" in text:
-        raise ConfigError(f"{where}: atoms has a malformed placeholder; use {{name}} with letters, digits, _")
+        raise ConfigError(
+            f"{where}: atoms has a malformed placeholder; use {{name}} with letters, digits, _"
+        )
     # normalise whitespace so cosmetic edits do not change keys
     return "; ".join(" ".join(a.split()) for a in re.split(r"[;\n]", text) if a.strip())
 
@@ -197,7 +204,9 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
     refs = cfg["references"]
     meth = cfg["methods"]
     combos = list(
-        itertools.product(meth["mapping"], meth["taper"], meth["ansatz"], meth["optimizer"], meth["estimator"])
+        itertools.product(
+            meth["mapping"], meth["taper"], meth["ansatz"], meth["optimizer"], meth["estimator"]
+        )
     )
     rows: list[dict] = []
     for im, mol in enumerate(cfg["molecules"]):
@@ -284,12 +293,26 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
             k_exp = add(
                 "export",
                 {k: exp[k] for k in ("shots", "scale_factors", "calibration", "target_mha")},
-                {"optimize": row["key"], "taper": row["key_taper"], "integrals": row["key_integrals"]},
+                {
+                    "optimize": row["key"],
+                    "taper": row["key_taper"],
+                    "integrals": row["key_integrals"],
+                },
             )
-            rec_params = {"bootstrap": cfg["reconcile"]["bootstrap"], "seed": cfg["seed"], "device": dev["kind"]}
-            parents = {"export": k_exp, "taper": row["key_taper"], "integrals": row["key_integrals"]}
+            rec_params = {
+                "bootstrap": cfg["reconcile"]["bootstrap"],
+                "seed": cfg["seed"],
+                "device": dev["kind"],
+            }
+            parents = {
+                "export": k_exp,
+                "taper": row["key_taper"],
+                "integrals": row["key_integrals"],
+            }
             if dev["kind"] == "synthetic":
-                rec_params.update({k: dev[k] for k in ("readout_error", "depolarizing_1q", "depolarizing_2q")})
+                rec_params.update(
+                    {k: dev[k] for k in ("readout_error", "depolarizing_1q", "depolarizing_2q")}
+                )
             else:
                 counts = results_dir / "returned" / f"{k_exp}.json"
                 if not counts.is_file():
@@ -305,8 +328,15 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
 def parent_files(node: Node, results: str = "results") -> dict[str, str]:
     """Input files of a node by role (``guess`` and ``warm`` point at sibling stage files;
     ``counts`` at imported device results)."""
-    stage_of = {"integrals": "integrals", "hamiltonian": "hamiltonian", "taper": "taper",
-                "guess": "integrals", "warm": "optimize", "optimize": "optimize", "export": "export"}
+    stage_of = {
+        "integrals": "integrals",
+        "hamiltonian": "hamiltonian",
+        "taper": "taper",
+        "guess": "integrals",
+        "warm": "optimize",
+        "optimize": "optimize",
+        "export": "export",
+    }
     out = {}
     for role, key in node.parents.items():
         if role == "counts":

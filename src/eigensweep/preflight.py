@@ -21,7 +21,12 @@ def check_plan_chemistry(plan: Plan) -> None:
     for node in plan.by_stage("integrals"):
         p = node.params
         check_molecule(
-            atoms=p["atoms"], basis=p["basis"], charge=p["charge"], multiplicity=p["multiplicity"],
-            unit=p["unit"], frozen_core=p["frozen_core"], active=p["active"],
+            atoms=p["atoms"],
+            basis=p["basis"],
+            charge=p["charge"],
+            multiplicity=p["multiplicity"],
+            unit=p["unit"],
+            frozen_core=p["frozen_core"],
+            active=p["active"],
             where=where.get(node.key, f"integrals {node.key}"),
         )

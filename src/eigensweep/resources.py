@@ -15,11 +15,35 @@ import re
 
 from .plan import Node, Plan
 
-_Z = {"H": 1, "He": 2, "Li": 3, "Be": 4, "B": 5, "C": 6, "N": 7, "O": 8, "F": 9, "Ne": 10,
-      "Na": 11, "Mg": 12, "Al": 13, "Si": 14, "P": 15, "S": 16, "Cl": 17, "Ar": 18}
+_Z = {
+    "H": 1,
+    "He": 2,
+    "Li": 3,
+    "Be": 4,
+    "B": 5,
+    "C": 6,
+    "N": 7,
+    "O": 8,
+    "F": 9,
+    "Ne": 10,
+    "Na": 11,
+    "Mg": 12,
+    "Al": 13,
+    "Si": 14,
+    "P": 15,
+    "S": 16,
+    "Cl": 17,
+    "Ar": 18,
+}
 # spatial basis functions per element row for common bases (H/He, Li-Ne, Na-Ar)
-_NBF = {"sto-3g": (1, 5, 9), "sto-6g": (1, 5, 9), "6-31g": (2, 9, 13), "6-31g*": (2, 15, 19),
-        "cc-pvdz": (5, 14, 18), "cc-pvtz": (14, 30, 34)}
+_NBF = {
+    "sto-3g": (1, 5, 9),
+    "sto-6g": (1, 5, 9),
+    "6-31g": (2, 9, 13),
+    "6-31g*": (2, 15, 19),
+    "cc-pvdz": (5, 14, 18),
+    "cc-pvtz": (14, 30, 34),
+}
 
 
 def estimate_size(params: dict) -> tuple[int, int, int]:
@@ -31,7 +55,10 @@ def estimate_size(params: dict) -> tuple[int, int, int]:
         n_el = int(params["active"]["electrons"])
     else:
         per = _NBF.get(params["basis"], (5, 14, 18))
-        norb = sum(per[0] if _Z.get(e, 10) <= 2 else per[1] if _Z.get(e, 10) <= 10 else per[2] for e in elems)
+        norb = sum(
+            per[0] if _Z.get(e, 10) <= 2 else per[1] if _Z.get(e, 10) <= 10 else per[2]
+            for e in elems
+        )
     spin = int(params["multiplicity"]) - 1
     na = max(0, (n_el + spin) // 2)
     nb = max(0, n_el - na)
@@ -45,9 +72,15 @@ def stage_resources(node: Node, plan: Plan) -> dict[str, int]:
     dets = math.comb(norb, na) * math.comb(norb, nb)
     n_qubits = 2 * norb
     if node.stage == "integrals":
-        return {"mem_mb": 1000 + min(64000, 8 * dets * 8 // 2**20 * 6), "runtime": 10 + dets // 200_000}
+        return {
+            "mem_mb": 1000 + min(64000, 8 * dets * 8 // 2**20 * 6),
+            "runtime": 10 + dets // 200_000,
+        }
     if node.stage in ("hamiltonian", "taper"):
-        return {"mem_mb": 1000 + min(64000, (2**n_qubits) * 16 * 4 // 2**20), "runtime": 10 + n_qubits}
+        return {
+            "mem_mb": 1000 + min(64000, (2**n_qubits) * 16 * 4 // 2**20),
+            "runtime": 10 + n_qubits,
+        }
     if node.stage == "optimize":
         mem = 1000 + min(120000, dets * 8 * 40 // 2**20)
         return {"mem_mb": mem, "runtime": 15 + dets // 20_000}
@@ -60,7 +93,11 @@ def _integrals_params(node: Node, plan: Plan) -> dict | None:
     for _ in range(5):
         if cur.stage == "integrals":
             return cur.params
-        parent = cur.parents.get("integrals") or cur.parents.get("hamiltonian") or cur.parents.get("taper")
+        parent = (
+            cur.parents.get("integrals")
+            or cur.parents.get("hamiltonian")
+            or cur.parents.get("taper")
+        )
         if parent is None or parent not in plan.nodes:
             return None
         cur = plan.nodes[parent]

@@ -42,7 +42,9 @@ def load_taper(path: str | Path):
     return TaperResult.from_store(sd.arrays), sd
 
 
-def run_integrals(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+def run_integrals(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
     """SCF, active-space integrals and the classical reference ladder for one geometry point."""
     from .chem import compute_integrals
 
@@ -67,13 +69,26 @@ def run_integrals(node: Node, inputs: dict[str, str], output: str, progress: Pro
             label=f"integrals {node.key} ({p['atoms']})",
         )
     arrays, meta = res.to_store()
-    _say(progress, f"integrals {node.key}: HF {res.references['hf']:.8f} Eh, exact {res.references['casci']:.8f} Eh")
-    write_stage(output, stage="integrals", key=node.key, params=p, parents=node.parents,
-                arrays=arrays, meta=meta, units={"h1e": "hartree", "eri": "hartree",
-                                                 "mo_energy": "hartree"}, wall_s=t.seconds)
+    _say(
+        progress,
+        f"integrals {node.key}: HF {res.references['hf']:.8f} Eh, exact {res.references['casci']:.8f} Eh",
+    )
+    write_stage(
+        output,
+        stage="integrals",
+        key=node.key,
+        params=p,
+        parents=node.parents,
+        arrays=arrays,
+        meta=meta,
+        units={"h1e": "hartree", "eri": "hartree", "mo_energy": "hartree"},
+        wall_s=t.seconds,
+    )
 
 
-def run_hamiltonian(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+def run_hamiltonian(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
     """Map the active-space Hamiltonian to qubits; number and S_z operators; measurement costs."""
     from .qubit import (
         map_hamiltonian,
@@ -94,8 +109,12 @@ def run_hamiltonian(node: Node, inputs: dict[str, str], output: str, progress: P
         ref = reference_bits(ints.nelec, ints.norb, mapping)
         groups = qwc_groups(ham)
         shots = shots_for_precision(ham, groups=groups)
-    arrays = {**ham.to_store("ham_"), **num.to_store("num_"), **sz.to_store("sz_"),
-              "reference_bits": np.asarray(ref, dtype=np.uint8)}
+    arrays = {
+        **ham.to_store("ham_"),
+        **num.to_store("num_"),
+        **sz.to_store("sz_"),
+        "reference_bits": np.asarray(ref, dtype=np.uint8),
+    }
     meta = {
         "mapping": mapping,
         "n_qubits": n_qubits,
@@ -107,8 +126,16 @@ def run_hamiltonian(node: Node, inputs: dict[str, str], output: str, progress: P
         "norb": ints.norb,
     }
     _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
-    write_stage(output, stage="hamiltonian", key=node.key, params=node.params, parents=node.parents,
-                arrays=arrays, meta=meta, wall_s=t.seconds)
+    write_stage(
+        output,
+        stage="hamiltonian",
+        key=node.key,
+        params=node.params,
+        parents=node.parents,
+        arrays=arrays,
+        meta=meta,
+        wall_s=t.seconds,
+    )
 
 
 def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
@@ -121,16 +148,32 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
     with Timer() as t:
         res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
     arrays = res.to_store()
-    meta = {"mapping": sd.meta["mapping"], "nelec": sd.meta["nelec"], "norb": sd.meta["norb"],
-            "tapered": bool(node.params["taper"]), "n_qubits_before": res.n_qubits_before,
-            "n_qubits": res.hamiltonian.n_qubits, "n_terms": res.hamiltonian.n_terms,
-            "sector": [int(v) for v in res.sector]}
+    meta = {
+        "mapping": sd.meta["mapping"],
+        "nelec": sd.meta["nelec"],
+        "norb": sd.meta["norb"],
+        "tapered": bool(node.params["taper"]),
+        "n_qubits_before": res.n_qubits_before,
+        "n_qubits": res.hamiltonian.n_qubits,
+        "n_terms": res.hamiltonian.n_terms,
+        "sector": [int(v) for v in res.sector],
+    }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
-    write_stage(output, stage="taper", key=node.key, params=node.params, parents=node.parents,
-                arrays=arrays, meta=meta, wall_s=t.seconds)
+    write_stage(
+        output,
+        stage="taper",
+        key=node.key,
+        params=node.params,
+        parents=node.parents,
+        arrays=arrays,
+        meta=meta,
+        wall_s=t.seconds,
+    )
 
 
-def run_optimize(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+def run_optimize(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
     """Variational optimization of one ansatz x optimizer x estimator on one qubit problem."""
     from .vqe import run_optimize as optimize_kernel
 
@@ -148,20 +191,46 @@ def run_optimize(node: Node, inputs: dict[str, str], output: str, progress: Prog
 
     with Timer() as t:
         res = optimize_kernel(
-            h1e=ints.h1e, eri=ints.eri, e_core=ints.e_core, norb=ints.norb, nelec=tuple(ints.nelec),
-            ansatz=p["ansatz"], optimizer=p["optimizer"], estimator=p["estimator"],
-            qubit_hamiltonian=tap.hamiltonian, reference_bits=tap.reference_bits,
-            initial_params=init, seed=p["seed"], progress=report,
+            h1e=ints.h1e,
+            eri=ints.eri,
+            e_core=ints.e_core,
+            norb=ints.norb,
+            nelec=tuple(ints.nelec),
+            ansatz=p["ansatz"],
+            optimizer=p["optimizer"],
+            estimator=p["estimator"],
+            qubit_hamiltonian=tap.hamiltonian,
+            reference_bits=tap.reference_bits,
+            initial_params=init,
+            seed=p["seed"],
+            progress=report,
         )
     if not math.isfinite(res.energy):
-        raise StageFileError(f"optimize {node.key}: the optimizer returned a non-finite energy; check the method options")
+        raise StageFileError(
+            f"optimize {node.key}: the optimizer returned a non-finite energy; check the method options"
+        )
     arrays, meta = res.to_store()
-    meta = {**meta, "n_qubits_problem": tap.hamiltonian.n_qubits, "mapping": tap_sd.meta["mapping"],
-            "tapered": tap_sd.meta["tapered"]}
-    _say(progress, f"optimize {node.key}: E = {res.energy:.8f} Eh after {res.n_evaluations} evaluations")
-    write_stage(output, stage="optimize", key=node.key, params=p, parents=node.parents,
-                arrays=arrays, meta=meta, units={"trace_energy": "hartree", "params": "radian"},
-                wall_s=t.seconds)
+    meta = {
+        **meta,
+        "n_qubits_problem": tap.hamiltonian.n_qubits,
+        "mapping": tap_sd.meta["mapping"],
+        "tapered": tap_sd.meta["tapered"],
+    }
+    _say(
+        progress,
+        f"optimize {node.key}: E = {res.energy:.8f} Eh after {res.n_evaluations} evaluations",
+    )
+    write_stage(
+        output,
+        stage="optimize",
+        key=node.key,
+        params=p,
+        parents=node.parents,
+        arrays=arrays,
+        meta=meta,
+        units={"trace_energy": "hartree", "params": "radian"},
+        wall_s=t.seconds,
+    )
 
 
 STAGE_ACTIONS = {
@@ -194,7 +263,9 @@ def device_circuit(opt_meta: dict, params: np.ndarray, tap, mapping: str):
     for x, z, angle in rotations:
         if abs(angle) < 1e-12:
             continue
-        term = PauliSum(x=x[None, :].copy(), z=z[None, :].copy(), coeffs=np.ones(1), n_qubits=x.size)
+        term = PauliSum(
+            x=x[None, :].copy(), z=z[None, :].copy(), coeffs=np.ones(1), n_qubits=x.size
+        )
         try:
             t = tap.taper_operator(term)
         except ValueError:
@@ -203,7 +274,9 @@ def device_circuit(opt_meta: dict, params: np.ndarray, tap, mapping: str):
                 "export the untapered result (select tapered: false)"
             ) from None
         if t.n_terms != 1:
-            raise StageFileError("export: tapering a rotation gave more than one Pauli term; this is a bug")
+            raise StageFileError(
+                "export: tapering a rotation gave more than one Pauli term; this is a bug"
+            )
         tapered.append((t.x[0], t.z[0], angle * float(t.coeffs[0])))
     return circuit_from_rotations(np.asarray(tap.reference_bits, dtype=np.uint8), tapered)
 
@@ -227,24 +300,54 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
                 f"export {node.key}: the compiled circuit gives {e_circ:.8f} Eh but the optimizer's state "
                 f"{e_opt:.8f} Eh; refusing to export an inconsistent job"
             )
-        job = build_job(circ, ham, shots_total=p["shots"], scale_factors=tuple(p["scale_factors"]),
-                        calibration=p["calibration"], job_name=f"eigensweep-{node.key}",
-                        meta={"export_key": node.key, "optimize_key": node.parents["optimize"],
-                              "mapping": mapping, "tapered": bool(tap_sd.meta["tapered"]),
-                              "energy_simulated": e_circ},
-                        target_se=p["target_mha"] / 1000.0)
+        job = build_job(
+            circ,
+            ham,
+            shots_total=p["shots"],
+            scale_factors=tuple(p["scale_factors"]),
+            calibration=p["calibration"],
+            job_name=f"eigensweep-{node.key}",
+            meta={
+                "export_key": node.key,
+                "optimize_key": node.parents["optimize"],
+                "mapping": mapping,
+                "tapered": bool(tap_sd.meta["tapered"]),
+                "energy_simulated": e_circ,
+            },
+            target_se=p["target_mha"] / 1000.0,
+        )
         folder = Path(output).with_suffix("")
         write_job(job, folder)
     manifest = json.loads((folder / "manifest.json").read_text())
-    meta = {"manifest": manifest, "energy_simulated": e_circ, "n_qubits": circ.n_qubits,
-            "cnot_count": circ.cnot_count, "depth": circ.depth, "mapping": mapping,
-            "tapered": bool(tap_sd.meta["tapered"]), "job_folder": folder.name}
-    _say(progress, f"export {node.key}: {len(manifest['circuits'])} circuits on {circ.n_qubits} qubits in {folder}")
-    write_stage(output, stage="export", key=node.key, params=p, parents=node.parents, arrays={},
-                meta=meta, wall_s=t.seconds)
+    meta = {
+        "manifest": manifest,
+        "energy_simulated": e_circ,
+        "n_qubits": circ.n_qubits,
+        "cnot_count": circ.cnot_count,
+        "depth": circ.depth,
+        "mapping": mapping,
+        "tapered": bool(tap_sd.meta["tapered"]),
+        "job_folder": folder.name,
+    }
+    _say(
+        progress,
+        f"export {node.key}: {len(manifest['circuits'])} circuits on {circ.n_qubits} qubits in {folder}",
+    )
+    write_stage(
+        output,
+        stage="export",
+        key=node.key,
+        params=p,
+        parents=node.parents,
+        arrays={},
+        meta=meta,
+        wall_s=t.seconds,
+    )
 
 
-def run_reconcile(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+def run_reconcile(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
     """Returned counts -> energies with bootstrap intervals: raw, mitigated, verified, extrapolated."""
     from .device import load_results, reconcile, run_synthetic_device
 
@@ -256,9 +359,14 @@ def run_reconcile(node: Node, inputs: dict[str, str], output: str, progress: Pro
     ints = load_integrals(inputs["integrals"])
     with Timer() as t:
         if p["device"] == "synthetic":
-            returned = run_synthetic_device(folder, seed=p["seed"], readout_error=tuple(p["readout_error"]),
-                                            depolarizing_1q=p["depolarizing_1q"],
-                                            depolarizing_2q=p["depolarizing_2q"], device="eigensweep synthetic device")
+            returned = run_synthetic_device(
+                folder,
+                seed=p["seed"],
+                readout_error=tuple(p["readout_error"]),
+                depolarizing_1q=p["depolarizing_1q"],
+                depolarizing_2q=p["depolarizing_2q"],
+                device="eigensweep synthetic device",
+            )
             counts = {cid: r["counts"] for cid, r in returned["results"].items()}
         else:
             counts = load_results(inputs["counts"], manifest)
@@ -271,16 +379,32 @@ def run_reconcile(node: Node, inputs: dict[str, str], output: str, progress: Pro
         else:
             # tapered job: its symmetries were removed with the qubits; nothing left to verify
             generators, sector = None, None
-        res = reconcile(manifest, counts, tap.hamiltonian, generators=generators, sector=sector,
-                        n_electrons=None, mapping=tap_sd.meta["mapping"],
-                        bootstrap=p["bootstrap"], seed=p["seed"],
-                        energy_sim=float(exp.meta["energy_simulated"]),
-                        energy_exact=float(ints.references["casci"]))
+        res = reconcile(
+            manifest,
+            counts,
+            tap.hamiltonian,
+            generators=generators,
+            sector=sector,
+            n_electrons=None,
+            mapping=tap_sd.meta["mapping"],
+            bootstrap=p["bootstrap"],
+            seed=p["seed"],
+            energy_sim=float(exp.meta["energy_simulated"]),
+            energy_exact=float(ints.references["casci"]),
+        )
     arrays, meta = res.to_store()
     meta = {**meta, "counts": counts, "comparison_table": res.comparison_table()}
     _say(progress, f"reconcile {node.key}: raw {res.raw.value:.6f} Eh")
-    write_stage(output, stage="reconcile", key=node.key, params=p, parents=node.parents, arrays=arrays,
-                meta=meta, wall_s=t.seconds)
+    write_stage(
+        output,
+        stage="reconcile",
+        key=node.key,
+        params=p,
+        parents=node.parents,
+        arrays=arrays,
+        meta=meta,
+        wall_s=t.seconds,
+    )
 
 
 STAGE_ACTIONS["export"] = run_export

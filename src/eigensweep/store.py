@@ -23,8 +23,8 @@ import socket
 import tempfile
 import time
 from dataclasses import dataclass
-from importlib import metadata
 from datetime import UTC, datetime
+from importlib import metadata
 from pathlib import Path
 from typing import Any
 
@@ -108,7 +108,9 @@ def write_stage(
     """
     path = Path(path)
     if path.stem != key:
-        raise StageFileError(f"{path}: file name does not match key {key}; this is a bug in the caller")
+        raise StageFileError(
+            f"{path}: file name does not match key {key}; this is a bug in the caller"
+        )
     path.parent.mkdir(parents=True, exist_ok=True)
     arrays = _prepare(arrays)
     meta_text = canonical_json(meta)
@@ -162,7 +164,9 @@ def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = 
         with h5py.File(path, "r") as f:
             attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
             if attrs.get("format") != FORMAT:
-                raise StageFileError(f"{path}: not an eigensweep stage file (format {attrs.get('format')!r})")
+                raise StageFileError(
+                    f"{path}: not an eigensweep stage file (format {attrs.get('format')!r})"
+                )
             fv = int(attrs.get("format_version", -1))
             if fv not in KNOWN_FORMAT_VERSIONS:
                 raise StageFileError(
@@ -172,7 +176,10 @@ def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = 
             st = str(attrs.get("stage"))
             if stage is not None and st != stage:
                 raise StageFileError(f"{path}: holds stage {st!r}, expected {stage!r}; {fix}")
-            if st not in STAGE_VERSIONS or int(attrs.get("stage_version", -1)) != STAGE_VERSIONS[st]:
+            if (
+                st not in STAGE_VERSIONS
+                or int(attrs.get("stage_version", -1)) != STAGE_VERSIONS[st]
+            ):
                 raise StageFileError(
                     f"{path}: {st} stage version {attrs.get('stage_version')} is not the current "
                     f"{STAGE_VERSIONS.get(st)}; {fix}"
@@ -194,7 +201,9 @@ def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = 
     except StageFileError:
         raise
     except (OSError, KeyError, ValueError) as exc:
-        raise StageFileError(f"{path}: damaged or truncated stage file ({type(exc).__name__}); {fix}") from None
+        raise StageFileError(
+            f"{path}: damaged or truncated stage file ({type(exc).__name__}); {fix}"
+        ) from None
     if _content_hash(arrays, meta_text) != attrs.get("content_sha256"):
         raise StageFileError(f"{path}: content checksum mismatch (file damaged); {fix}")
     return StageData(

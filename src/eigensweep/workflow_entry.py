@@ -37,7 +37,9 @@ def run_stage_job(smk, stage: str) -> None:
     node = Node(node_d["stage"], node_d["key"], node_d["params"], node_d["parents"])
     inputs = {name: str(path) for name, path in smk.input.items()}
     try:
-        STAGE_ACTIONS[stage](node, inputs, str(smk.output[0]), progress=lambda m: print(m, file=sys.stderr))
+        STAGE_ACTIONS[stage](
+            node, inputs, str(smk.output[0]), progress=lambda m: print(m, file=sys.stderr)
+        )
     except EigensweepError as exc:
         _fail(exc, stage)
 

@@ -8,13 +8,13 @@ rule export:
         "logs/export/{key}.log",
     benchmark:
         "logs/benchmark/export/{key}.tsv"
-    params:
-        node=get_node,
+    conda:
+        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=get_mem_mb,
         runtime=get_runtime,
-    conda:
-        "../../envs/eigensweep.yaml"
+    params:
+        node=get_node,
     script:
         "../scripts/export.py"

@@ -7,13 +7,13 @@ rule taper:
         "logs/taper/{key}.log",
     benchmark:
         "logs/benchmark/taper/{key}.tsv"
-    params:
-        node=get_node,
+    conda:
+        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=get_mem_mb,
         runtime=get_runtime,
-    conda:
-        "../../envs/eigensweep.yaml"
+    params:
+        node=get_node,
     script:
         "../scripts/taper.py"
