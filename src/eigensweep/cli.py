@@ -66,15 +66,48 @@ def cmd_plan(args) -> int:
             lines.append(f"{node.stage:<12} {node.key}  {st}")
     print(f"plan for {path}: {len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs")
     print(f"{'stage':<12} {'total':>6} {'cached':>7} {'pending':>8} {'damaged':>8}")
-    for stage in ("integrals", "hamiltonian", "taper", "optimize"):
+    for stage in ("integrals", "hamiltonian", "taper", "optimize", "export", "reconcile"):
         c = counts.get(stage, {})
         total = sum(c.values())
+        if not total:
+            continue
         print(
             f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}"
         )
+    _print_costs(plan, results)
     if args.verbose:
         print("\n".join(lines))
     return 0
+
+
+def _print_costs(plan, results: Path) -> None:
+    """Qubits, terms, measurement groups and shots per problem (known once its taper stage ran)."""
+    from .store import read_stage
+
+    seen: dict[str, dict] = {}
+    for row in plan.rows:
+        seen.setdefault(row["key_taper"], row)
+    print("\nmeasurement cost per qubit problem (shots for a 1.6 mHa standard error):")
+    print(
+        f"{'molecule':<10} {'point':<14} {'mapping':<14} {'taper':<6} {'qubits':>6} {'terms':>6} "
+        f"{'groups':>6} {'shots (1-norm bound)':>21} {'shots (variance at HF)':>23}"
+    )
+    unknown = 0
+    for key, row in seen.items():
+        f = results / "taper" / f"{key}.h5"
+        try:
+            m = read_stage(f, stage="taper", key=key).meta
+        except EigensweepError:
+            unknown += 1
+            continue
+        var = m.get("shots_variance_at_reference")
+        print(
+            f"{row['molecule']:<10} {row['point']:<14} {row['mapping']:<14} {str(row['tapered']):<6} "
+            f"{m['n_qubits']:>6} {m['n_terms']:>6} {m['n_qwc_groups']:>6} "
+            f"{m['shots_one_norm_bound']:>21.3e} {(f'{var:.3e}' if var else '-'):>23}"
+        )
+    if unknown:
+        print(f"({unknown} problem(s) not yet mapped: costs appear once their taper stage has run)")
 
 
 def _snakemake_cmd(args, config: Path) -> list[str]:

@@ -35,6 +35,10 @@ SUMMARY_COLUMNS = [
     "mapping",
     "tapered",
     "n_qubits",
+    "n_terms",
+    "n_qwc_groups",
+    "shots_one_norm_bound",
+    "shots_variance_at_reference",
     "ansatz",
     "optimizer",
     "estimator",
@@ -63,17 +67,25 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
         k_int = row["key_integrals"]
         if k_int not in cache:
             cache[k_int] = read_stage(results / "integrals" / f"{k_int}.h5", stage="integrals").meta
-        refs = cache[k_int]["references"]
+        refs = {k: _num(v) for k, v in cache[k_int]["references"].items()}
+        k_tap = row["key_taper"]
+        if k_tap not in cache:
+            cache[k_tap] = read_stage(results / "taper" / f"{k_tap}.h5", stage="taper").meta
+        tap = cache[k_tap]
         opt = read_stage(results / "optimize" / f"{row['key']}.h5", stage="optimize")
         m = opt.meta
         energy = float(m["energy"])
-        exact = float(refs["casci"])
+        exact = refs["casci"]
         err = (energy - exact) * 1000.0 if math.isfinite(exact) else float("nan")
         r = {c: row.get(c, "") for c in SUMMARY_COLUMNS}
         r.update({k: v for k, v in row.items() if k.startswith("scan_")})
         r.update(
             {
                 "n_qubits": m["n_qubits"],
+                "n_terms": tap.get("n_terms", ""),
+                "n_qwc_groups": tap.get("n_qwc_groups", ""),
+                "shots_one_norm_bound": tap.get("shots_one_norm_bound", ""),
+                "shots_variance_at_reference": tap.get("shots_variance_at_reference") or "",
                 "n_params": m["n_params"],
                 "energy": energy,
                 "energy_stderr": float(m.get("energy_stderr", 0.0)),
@@ -91,6 +103,11 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
         )
         out.append(r)
     return out
+
+
+def _num(v) -> float:
+    """Stored energies use null for 'not computed'; read them as nan."""
+    return float("nan") if v is None else float(v)
 
 
 def _fmt(v) -> str:

@@ -140,13 +140,19 @@ def run_hamiltonian(
 
 def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
     """Z2 tapering (or the identity stage that records 'no tapering')."""
-    from .qubit import PauliSum, no_taper, taper
+    from .qubit import PauliSum, no_taper, qwc_groups, shots_for_precision, taper
+    from .qubit.statevector import basis_state
 
     sd = read_stage(inputs["hamiltonian"], stage="hamiltonian")
     ham = PauliSum.from_store(sd.arrays, "ham_")
     ref = sd.arrays["reference_bits"]
     with Timer() as t:
         res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
+        # measurement cost of the problem the optimizer and the device will see
+        tham = res.hamiltonian
+        groups = qwc_groups(tham)
+        state = basis_state(res.reference_bits) if tham.n_qubits <= 22 else None
+        shots = shots_for_precision(tham, groups=groups, state=state)
     arrays = res.to_store()
     meta = {
         "mapping": sd.meta["mapping"],
@@ -157,6 +163,12 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         "n_qubits": res.hamiltonian.n_qubits,
         "n_terms": res.hamiltonian.n_terms,
         "sector": [int(v) for v in res.sector],
+        "one_norm": float(tham.one_norm_nonidentity),
+        "n_qwc_groups": len(groups),
+        "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
+        "shots_variance_at_reference": (
+            int(shots["shots_variance"]) if shots.get("shots_variance") is not None else None
+        ),
     }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
     write_stage(

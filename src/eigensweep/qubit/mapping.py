@@ -22,12 +22,15 @@ spatial orbital ``p``.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-import openfermion
-from openfermion import FermionOperator, InteractionOperator
 
 from ..errors import ConfigError
 from .pauli import PauliSum
+
+if TYPE_CHECKING:  # OpenFermion takes seconds to import: only functions that need it load it
+    from openfermion import FermionOperator, InteractionOperator
 
 __all__ = [
     "MAPPINGS",
@@ -77,6 +80,8 @@ def interaction_operator(h1e: np.ndarray, eri: np.ndarray, e_core: float) -> Int
     Returns:
         OpenFermion ``InteractionOperator`` on ``2 * norb`` spin orbitals.
     """
+    from openfermion import InteractionOperator
+
     if not isinstance(h1e, np.ndarray) or not isinstance(eri, np.ndarray):
         raise TypeError(
             f"h1e and eri must be numpy.ndarray, got {type(h1e).__name__} and {type(eri).__name__}"
@@ -204,6 +209,9 @@ def map_fermion_operator(op: FermionOperator, n_qubits: int, mapping: str) -> Pa
         ConfigError: unknown mapping or an index ``>= n_qubits``.
         ValueError: the image has complex coefficients (``op`` not Hermitian).
     """
+    import openfermion
+    from openfermion import FermionOperator, InteractionOperator
+
     if not isinstance(op, FermionOperator | InteractionOperator):
         raise TypeError(
             "map_fermion_operator accepts openfermion.FermionOperator or InteractionOperator, "
@@ -257,6 +265,8 @@ def number_operator(n_qubits: int, mapping: str) -> PauliSum:
     Returns:
         The mapped operator.
     """
+    from openfermion import FermionOperator
+
     n = _check_n_qubits(n_qubits)
     op = FermionOperator()
     for k in range(n):
@@ -274,6 +284,8 @@ def sz_operator(n_qubits: int, mapping: str) -> PauliSum:
     Returns:
         The mapped operator.
     """
+    from openfermion import FermionOperator
+
     n = _check_n_qubits(n_qubits)
     if n % 2:
         raise ConfigError(f"S_z needs an even number of spin orbitals, got {n}")

@@ -28,10 +28,13 @@ from __future__ import annotations
 
 import hashlib
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.sparse
-from openfermion import QubitOperator
+
+if TYPE_CHECKING:
+    from openfermion import QubitOperator
 
 from ..errors import ConfigError, StageFileError
 
@@ -364,6 +367,8 @@ class PauliSum:
             ValueError: a coefficient has ``|imag| >= 1e-12`` (the operator is not Hermitian).
             ConfigError: a term acts on a qubit ``>= n_qubits``.
         """
+        from openfermion import QubitOperator
+
         if not isinstance(op, QubitOperator):
             raise TypeError(
                 f"from_openfermion accepts openfermion.QubitOperator, got {type(op).__name__}"
@@ -392,6 +397,8 @@ class PauliSum:
     # ------------------------------------------------------------------ conversions
     def to_openfermion(self) -> QubitOperator:
         """Return the equivalent OpenFermion ``QubitOperator`` (real coefficients)."""
+        from openfermion import QubitOperator
+
         op = QubitOperator()
         codes = _letter_codes(self.x, self.z)
         for t in range(self.n_terms):
