@@ -42,6 +42,8 @@ def _run(**kw):
         ("ansatz", {"name": "kupccgsd", "k": 1.5}, "ansatz.k"),
         ("ansatz", {"name": "uccsd", "spin_adapted": "yes"}, "ansatz.spin_adapted"),
         ("ansatz", {"name": "uccsd", "mapping": "qubitwise"}, "ansatz.mapping"),
+        ("ansatz", {"name": "uccsd", "mapping": "parity"}, "methods.mapping"),
+        ("ansatz", {"name": "adapt", "mapping": "jordan_wigner"}, "methods.mapping"),
         ("ansatz", {"name": "adapt", "pool": "everything"}, "ansatz.pool"),
         ("ansatz", {"name": "adapt", "gradient_tolerance": 0}, "ansatz.gradient_tolerance"),
         ("ansatz", {"name": "hardware_efficient", "rotations": "rx"}, "ansatz.rotations"),
@@ -112,3 +114,17 @@ def test_defaults_are_filled_and_complete():
             assert out == {"name": name, **defaults}
     out = validate_method("optimizer", {"name": "lbfgs", "maxiter": 5})
     assert out["maxiter"] == 5 and out["tol"] == OPTIMIZER_DEFAULTS["lbfgs"]["tol"]
+
+
+def test_package_attributes_load_lazily():
+    import eigensweep.vqe as vqe
+
+    for name in vqe.__all__:
+        assert getattr(vqe, name) is not None
+    assert set(vqe.__all__) <= set(dir(vqe))
+    with pytest.raises(AttributeError):
+        vqe.no_such_name  # noqa: B018
+    from eigensweep.vqe.methods import ANSATZ_DEFAULTS as table
+
+    assert table is ANSATZ_DEFAULTS
+    assert all("mapping" not in d for d in ANSATZ_DEFAULTS.values())

@@ -17,9 +17,11 @@ from eigensweep.qubit import statevector as sv  # noqa: E402
 from eigensweep.vqe import (  # noqa: E402
     UCCSD,
     KUpCCGSD,
+    encoded_qubit_state,
     from_qubit_state,
     generator_paulis,
     molecular_pauli_sum,
+    pool_terms,
     reference_bits,
     rotations_to_circuit,
     to_qubit_state,
@@ -140,6 +142,53 @@ def test_generator_paulis_commute_and_are_real():
     paulis = generator_paulis(((6, 1), (5, 1), (1, 0), (0, 0)), "jordan_wigner", 8)
     assert len(paulis) == 8
     assert all(abs(abs(c) - 0.125) < 1e-12 for _, _, c in paulis)
+
+
+def _openfermion_generator(term, mapping, n):
+    fop = of.FermionOperator(term, 1.0)
+    gen = fop - of.hermitian_conjugated(fop)
+    if mapping == "jordan_wigner":
+        qop = of.jordan_wigner(gen)
+    elif mapping == "bravyi_kitaev":
+        qop = of.bravyi_kitaev(gen, n)
+    else:
+        qop = of.binary_code_transform(gen, of.parity_code(n))
+    qop.compress(1e-14)
+    return [(key, complex(c).imag) for key, c in sorted(qop.terms.items()) if key]
+
+
+@pytest.mark.parametrize("mapping", ["jordan_wigner", "bravyi_kitaev", "parity"])
+def test_generator_paulis_equal_openfermion(mapping):
+    # reference: OpenFermion jordan_wigner / bravyi_kitaev / binary_code_transform(parity_code),
+    # computed at test time; 10 spin orbitals (not a power of two) and an open shell
+    norb, nelec = 5, (3, 2)
+    n = 2 * norb
+    for term in pool_terms("fermionic_gsd", norb, nelec)[::3]:
+        ours = [
+            (tuple((int(q), "IXZY"[int(x[q]) + 2 * int(z[q])]) for q in np.flatnonzero(x | z)), c)
+            for x, z, c in generator_paulis(term, mapping, n)
+        ]
+        ref = _openfermion_generator(term, mapping, n)
+        assert [k for k, _ in ours] == [k for k, _ in ref]
+        assert np.allclose([c for _, c in ours], [c for _, c in ref], atol=1e-14)
+
+
+@pytest.mark.parametrize("mapping", ["bravyi_kitaev", "parity"])
+def test_encoded_state_energy_and_reference_bits(mapping):
+    from eigensweep.qubit import map_hamiltonian
+    from eigensweep.qubit import reference_bits as qubit_reference_bits
+
+    m = molecule("LiH")
+    ansatz = UCCSD(space_of("LiH"))
+    theta = 0.1 * np.random.default_rng(4).standard_normal(ansatz.n_params)
+    psi = encoded_qubit_state(ansatz.state(theta), m["norb"], m["nelec"], mapping)
+    # reference: OpenFermion-mapped Hamiltonian (eigensweep.qubit.map_hamiltonian) at test time
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], mapping)
+    assert abs(sv.expectation(psi, ham) - ansatz.energy(theta)) < 1e-9
+    ref = reference_bits(ansatz.occupied_spin_orbitals(), mapping, 12)
+    assert np.array_equal(ref, qubit_reference_bits(m["nelec"], m["norb"], mapping))
+    hf = encoded_qubit_state(space_of("LiH").hf_state(), m["norb"], m["nelec"], mapping)
+    assert abs(abs(np.vdot(sv.basis_state(ref), hf)) - 1.0) < 1e-12
 
 
 def test_circuit_from_stored_meta_reproduces_state():

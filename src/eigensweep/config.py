@@ -101,7 +101,7 @@ def validate_config(raw: Any, source: str = "config") -> dict:
     cfg = _fill_defaults(raw, schema)
     if not cfg["molecules"]:
         raise ConfigError(f"{source}: molecules: the list is empty; add at least one molecule")
-    from .vqe import validate_method  # local import: keeps schema checks light
+    from .vqe.methods import validate_method  # light module: no chemistry imports
 
     methods = cfg["methods"]
     for kind in ("ansatz", "optimizer", "estimator"):
@@ -112,6 +112,20 @@ def validate_config(raw: Any, source: str = "config") -> dict:
             except ConfigError as exc:
                 raise ConfigError(f"{source}: methods.{kind}[{i}]: {exc}") from None
         methods[kind] = filled
+    from .vqe.methods import check_combination
+
+    for ia, ansatz in enumerate(methods["ansatz"]):
+        for taper in methods["taper"]:
+            for mapping in methods["mapping"]:
+                for optimizer in methods["optimizer"]:
+                    for estimator in methods["estimator"]:
+                        try:
+                            check_combination(ansatz, taper, mapping, optimizer=optimizer, estimator=estimator)
+                        except ConfigError as exc:
+                            raise ConfigError(
+                                f"{source}: methods.ansatz[{ia}] with taper {str(taper).lower()}, {mapping}, "
+                                f"{optimizer['name']}, {estimator['name']}: {exc}"
+                            ) from None
     names = [m["name"] for m in cfg["molecules"]]
     dup = sorted({n for n in names if names.count(n) > 1})
     if dup:

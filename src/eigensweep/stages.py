@@ -213,6 +213,8 @@ def run_optimize(
             estimator=p["estimator"],
             qubit_hamiltonian=tap.hamiltonian,
             reference_bits=tap.reference_bits,
+            mapping=tap_sd.meta["mapping"],
+            tapering=tap,
             initial_params=init,
             seed=p["seed"],
             progress=report,

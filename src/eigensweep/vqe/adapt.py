@@ -19,6 +19,14 @@ Pools (spin-conserving excitations ``G = T - T^dagger``):
     ``a^+_p a^+_q a_s a_r`` on four distinct spin orbitals with ``p > q``, ``r > s``,
     ``(p, q) > (r, s)`` and equal alpha/beta counts on both sides.
 
+With a tapering (Bravyi, Gambetta, Mezzacapo, Temme, arXiv:1701.08213) the fermionic pools run
+on the tapered statevector: every pool operator is carried through the tapering
+(:func:`eigensweep.vqe.tapered.taper_excitation`), symmetry-forbidden operators are removed from
+the pool (their gradient vanishes identically in the reference's sector, so ADAPT could never
+select them), and the gradient of appending operator ``k`` with tapered rotations
+``exp(-i w_j theta/2 P_j)`` is ``sum_j w_j Im <H psi|P_j|psi>``. The selected sequence is that of
+the determinant-space run up to round-off in ties.
+
 Each iteration computes the energy gradient of appending every pool operator at angle 0,
 ``dE/dtheta = 2 <H psi|G|psi>``, stops if its 2-norm is below ``gradient_tolerance`` (or
 ``max_operators`` operators are in use), otherwise appends the operator of largest
@@ -30,12 +38,12 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import ConfigError
 from ..qubit import statevector as sv
-from ..qubit.pauli import PauliSum
 from .ansatz import (
     Excitation,
     FermionicAnsatz,
@@ -45,9 +53,24 @@ from .ansatz import (
     sd_excitation_terms,
 )
 from .detspace import DetSpace, FermionTerm
+from .methods import POOLS
 from .optimizers import minimize
+from .tapered import TaperedFermionicAnsatz, TaperedString, taper_excitation
 
-POOLS = ("fermionic_sd", "fermionic_gsd", "qubit")
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliSum
+    from ..qubit.taper import TaperResult
+
+__all__ = [
+    "POOLS",
+    "AdaptAnsatz",
+    "AdaptResult",
+    "QubitAdaptAnsatz",
+    "TaperedAdaptAnsatz",
+    "pool_terms",
+    "qubit_pool",
+    "run_adapt",
+]
 
 
 def pool_terms(pool: str, norb: int, nelec: tuple[int, int]) -> list[FermionTerm]:
@@ -121,6 +144,38 @@ class AdaptAnsatz(FermionicAnsatz):
         return out
 
 
+class TaperedAdaptAnsatz(TaperedFermionicAnsatz):
+    """The operators selected by ADAPT-VQE as Pauli rotations on the tapered qubits."""
+
+    def __init__(
+        self,
+        terms: list[FermionTerm],
+        mapping: str,
+        tapering: TaperResult,
+        *,
+        pool: str,
+        space: DetSpace,
+        cache: dict[FermionTerm, list[TaperedString] | None] | None = None,
+        pool_dropped: int = 0,
+    ) -> None:
+        self.pool = pool
+        extra = {
+            "pool": pool,
+            "pool_operators_dropped": int(pool_dropped),
+            "norb": space.norb,
+            "nelec": list(space.nelec),
+        }
+        super().__init__(
+            [Excitation(t, k) for k, t in enumerate(terms)],
+            len(terms),
+            mapping,
+            tapering,
+            name="adapt",
+            extra_meta=extra,
+            cache=cache,
+        )
+
+
 @dataclass
 class AdaptResult:
     """Outcome of :func:`run_adapt`.
@@ -130,7 +185,7 @@ class AdaptResult:
     ``trace`` concatenates the optimizer traces of all re-optimizations.
     """
 
-    ansatz: AdaptAnsatz | QubitAdaptAnsatz
+    ansatz: AdaptAnsatz | QubitAdaptAnsatz | TaperedAdaptAnsatz
     params: np.ndarray
     energy: float
     converged: bool
@@ -152,20 +207,40 @@ def run_adapt(
     progress: Callable[[int, float], None] | None = None,
     hamiltonian: PauliSum | None = None,
     reference: np.ndarray | None = None,
+    tapering: TaperResult | None = None,
+    mapping: str = "jordan_wigner",
 ) -> AdaptResult:
-    """Run ADAPT-VQE in determinant space (module docstring).
+    """Run ADAPT-VQE in determinant space, or on tapered qubits (module docstring).
 
     ``optimizer`` is ``{"name": method, **options}`` for the re-optimizations (default
     L-BFGS-B with the analytic gradient). The ``qubit`` pool also needs the JW
-    ``hamiltonian`` and ``reference`` bits.
+    ``hamiltonian`` and ``reference`` bits. A ``tapering`` with at least one generator (of the
+    Hamiltonian under ``mapping``) runs a fermionic pool on the tapered statevector.
     """
     opt = dict(optimizer or {"name": "lbfgs"})
     method = opt.pop("name", "lbfgs")
     qubit = pool == "qubit"
+    tapered = tapering is not None and tapering.generators.n_terms > 0
     if qubit:
+        if tapered:
+            raise ConfigError(
+                "ansatz.pool: 'qubit' cannot run on a tapered Hamiltonian; use pool "
+                "fermionic_sd or fermionic_gsd, or methods.taper false"
+            )
         if hamiltonian is None or reference is None:
             raise ValueError("the qubit pool needs the JW Hamiltonian and reference bits")
         strings = qubit_pool(space.norb, space.nelec)
+    elif tapered:
+        assert tapering is not None
+        cache: dict[FermionTerm, list[TaperedString] | None] = {}
+        terms = []
+        for t in pool_terms(pool, space.norb, space.nelec):
+            cache[t] = taper_excitation(t, mapping, tapering)
+            if cache[t]:
+                terms.append(t)
+        tapered_pool = [cache[t] for t in terms]
+        pool_dropped = len(cache) - len(terms)
+        t_ham = tapering.hamiltonian
     else:
         terms = pool_terms(pool, space.norb, space.nelec)
         pool_gates = [space.cached_gate(t) for t in terms]
@@ -180,6 +255,16 @@ def run_adapt(
     def build(sel: list):
         if qubit:
             return QubitAdaptAnsatz(hamiltonian, reference, sel)
+        if tapered:
+            return TaperedAdaptAnsatz(
+                sel,
+                mapping,
+                tapering,
+                pool=pool,
+                space=space,
+                cache=cache,
+                pool_dropped=pool_dropped,
+            )
         return AdaptAnsatz(space, sel, pool)
 
     ansatz = build(selected)
@@ -197,6 +282,14 @@ def run_adapt(
         if qubit:
             lam = sv.apply_pauli_sum(psi, hamiltonian)
             grads = np.array([np.vdot(lam, sv.apply_pauli(psi, x, z)).imag for x, z in strings])
+        elif tapered:
+            lam = sv.apply_pauli_sum(psi, t_ham)
+            grads = np.array(
+                [
+                    sum(w * np.vdot(lam, sv.apply_pauli(psi, x, z)).imag for x, z, w in op)
+                    for op in tapered_pool
+                ]
+            )
         else:
             lam = space.apply_h(psi)
             grads = np.array([2.0 * space.generator_expectation(g, lam, psi) for g in pool_gates])

@@ -9,8 +9,9 @@ Fermionic ansätze (:class:`FermionicAnsatz`) are products of excitation gates
 ``exp(phi_k G_k)``, ``G_k = T_k - T_k^dagger``, emulated exactly in determinant space
 (:mod:`eigensweep.vqe.detspace`) with adjoint gradients (Jones & Gacon, arXiv:2009.02823).
 
-Qubit mapping of a generator: the mapped ``G`` (Jordan-Wigner, Bravyi-Kitaev or parity, via
-OpenFermion) is ``i sum_j c_j P_j`` with real ``c_j``; the strings of one single or double
+Qubit mapping of a generator: the mapped ``G`` (Jordan-Wigner, Bravyi-Kitaev or parity,
+computed here without OpenFermion, :func:`generator_paulis`) is ``i sum_j c_j P_j`` with real
+``c_j``; the strings of one single or double
 excitation commute pairwise (checked), so ``exp(phi G) = prod_j exp(-i (-2 phi c_j)/2 P_j)``
 exactly: rotation angle ``-2 phi c_j``.
 
@@ -29,50 +30,122 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
-import openfermion as of
 
 from ..circuit import Circuit
-from ..errors import ConfigError
-from ..qubit import statevector as sv
-from ..qubit.pauli import PauliSum
-from .detspace import DetSpace, ExcitationGate, FermionTerm, GateSequence, to_qubit_state
+from .detspace import (
+    DetSpace,
+    ExcitationGate,
+    FermionTerm,
+    GateSequence,
+    qubit_indices,
+    to_qubit_state,
+)
+from .methods import MAPPINGS, check_mapping
 
-MAPPINGS = ("jordan_wigner", "bravyi_kitaev", "parity")
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliSum
+
+__all__ = [
+    "MAPPINGS",
+    "Excitation",
+    "FermionicAnsatz",
+    "PauliGate",
+    "PauliRotationAnsatz",
+    "check_mapping",
+    "circuit_from_meta",
+    "encoded_qubit_state",
+    "encoding_matrices",
+    "generator_paulis",
+    "pauli_label",
+    "reference_bits",
+    "rotations_from_meta",
+    "rotations_to_circuit",
+]
 
 PauliRotation = tuple[np.ndarray, np.ndarray, float]
 
 
-def check_mapping(mapping: str) -> str:
-    """Return ``mapping`` if known, else raise :class:`ConfigError`."""
-    if mapping not in MAPPINGS:
-        raise ConfigError(f"mapping: unknown value {mapping!r}; allowed: {', '.join(MAPPINGS)}")
-    return mapping
+_STATEVECTOR = None
 
 
-def map_fermion_operator(op: of.FermionOperator, mapping: str, n_qubits: int) -> of.QubitOperator:
-    """Map a FermionOperator to qubits with OpenFermion (parity via ``binary_code_transform``)."""
-    check_mapping(mapping)
-    if mapping == "jordan_wigner":
-        return of.jordan_wigner(op)
-    if mapping == "bravyi_kitaev":
-        return of.bravyi_kitaev(op, n_qubits)
-    return of.binary_code_transform(op, of.parity_code(n_qubits))
+def _sv():
+    """:mod:`eigensweep.qubit.statevector`, imported on first use (keeps this module light)."""
+    global _STATEVECTOR
+    if _STATEVECTOR is None:
+        from ..qubit import statevector
 
-
-def _pauli_rows(term: tuple[tuple[int, str], ...], n_qubits: int) -> tuple[np.ndarray, np.ndarray]:
-    x = np.zeros(n_qubits, dtype=bool)
-    z = np.zeros(n_qubits, dtype=bool)
-    for q, letter in term:
-        x[q] = letter in ("X", "Y")
-        z[q] = letter in ("Z", "Y")
-    return x, z
+        _STATEVECTOR = statevector
+    return _STATEVECTOR
 
 
 def pauli_label(x: np.ndarray, z: np.ndarray) -> str:
     """Letter string (character ``k`` = qubit ``k``) of the Pauli string ``(x, z)``."""
     return "".join("IXZY"[int(a) + 2 * int(b)] for a, b in zip(x, z, strict=True))
+
+
+# ---------------------------------------------------------------------------- mapped generators
+def _gf2_inverse(mat: np.ndarray) -> np.ndarray:
+    """Inverse of a square invertible 0/1 matrix over GF(2) (Gauss-Jordan)."""
+    n = mat.shape[0]
+    aug = np.concatenate([mat.astype(bool), np.eye(n, dtype=bool)], axis=1)
+    for col in range(n):
+        piv = np.flatnonzero(aug[col:, col])
+        if piv.size == 0:
+            raise ValueError("singular GF(2) matrix")
+        p = col + int(piv[0])
+        if p != col:
+            aug[[col, p]] = aug[[p, col]]
+        rows = np.flatnonzero(aug[:, col])
+        rows = rows[rows != col]
+        aug[rows] ^= aug[col]
+    return aug[:, n:].astype(np.uint8)
+
+
+@lru_cache(maxsize=64)
+def encoding_matrices(mapping: str, n_qubits: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """``(A, A^{-T})`` of the linear encoding ``b = A n (mod 2)``; ``None`` for Jordan-Wigner.
+
+    ``A`` is :func:`eigensweep.qubit.mapping.encoding_matrix` (the single definition of the
+    Bravyi-Kitaev and parity encodings in eigensweep, imported only for those two).
+    """
+    check_mapping(mapping)
+    if mapping == "jordan_wigner":
+        return None
+    from ..qubit.mapping import encoding_matrix
+
+    a = np.asarray(encoding_matrix(int(n_qubits), mapping), dtype=np.uint8) & 1
+    return a, _gf2_inverse(a).T.copy()
+
+
+def _jw_ladder(orbital: int, creation: bool) -> list[tuple[int, int, complex]]:
+    """JW image of ``a^dagger_p`` / ``a_p`` as ``[(xmask, zmask, c)]`` meaning ``c X^x Z^z``.
+
+    ``a_p = Z_0 ... Z_{p-1} (X_p + i Y_p)/2`` and ``Y = i X Z`` give
+    ``a_p = (X_p Z_{<p} - X_p Z_{<=p})/2`` and ``a^dagger_p = (X_p Z_{<p} + X_p Z_{<=p})/2``.
+    Bit ``k`` of a mask is qubit ``k``.
+    """
+    below = (1 << orbital) - 1
+    bit = 1 << orbital
+    return [(bit, below, 0.5), (bit, below | bit, 0.5 if creation else -0.5)]
+
+
+def _times(
+    left: dict[tuple[int, int], complex], right: list[tuple[int, int, complex]]
+) -> dict[tuple[int, int], complex]:
+    """Product of two operators in the unphased form ``sum c X^x Z^z``.
+
+    ``X^x1 Z^z1 X^x2 Z^z2 = (-1)^{|z1 & x2|} X^{x1 ^ x2} Z^{z1 ^ z2}``.
+    """
+    out: dict[tuple[int, int], complex] = {}
+    for (x1, z1), c1 in left.items():
+        for x2, z2, c2 in right:
+            key = (x1 ^ x2, z1 ^ z2)
+            sign = -1.0 if (z1 & x2).bit_count() & 1 else 1.0
+            out[key] = out.get(key, 0.0) + sign * c1 * c2
+    return out
 
 
 @lru_cache(maxsize=65536)
@@ -81,77 +154,97 @@ def generator_paulis(
 ) -> tuple[tuple[np.ndarray, np.ndarray, float], ...]:
     """Pauli decomposition ``G = T - T^dagger = i sum_j c_j P_j`` as ``((x, z, c_j), ...)``.
 
-    Raises ``ValueError`` if the strings do not commute (then the product form would be
-    inexact). Identity terms (global phases) are dropped.
+    ``T`` (operator tuple ``((orbital, 1 = creation), ...)``, leftmost operator first) is
+    multiplied out in the Jordan-Wigner form (:func:`_jw_ladder`); for Bravyi-Kitaev and parity
+    every string is carried through the encoding's CNOT network,
+    ``X^x Z^z -> X^{A x} Z^{A^{-T} z}`` (:func:`encoding_matrices`, Seeley, Richard, Love,
+    J. Chem. Phys. 137, 224109 (2012)). Strings are returned in the order of their sparse
+    ``((qubit, letter), ...)`` keys, identity terms (global phases) are dropped, and the tests
+    compare the result with OpenFermion's transforms.
+
+    Raises ``ValueError`` if the image is not anti-Hermitian or its strings do not commute
+    (then the product form ``prod_j exp(phi c_j i P_j)`` would be inexact).
     """
-    fop = of.FermionOperator(term, 1.0)
-    gen = fop - of.hermitian_conjugated(fop)
-    qop = map_fermion_operator(gen, mapping, n_qubits)
-    qop.compress(1e-14)
-    out = []
-    for pterm, coeff in sorted(qop.terms.items()):
-        c = complex(coeff)
-        if abs(c.real) > 1e-12:
-            raise ValueError(f"mapped generator of {term} is not anti-Hermitian")
-        if not pterm:
+    check_mapping(mapping)
+    n = int(n_qubits)
+    op: dict[tuple[int, int], complex] = {(0, 0): 1.0}
+    for orbital, action in term:
+        if not 0 <= int(orbital) < n:
+            raise ValueError(f"spin orbital {orbital} of {term} outside {n} qubits")
+        op = _times(op, _jw_ladder(int(orbital), bool(action)))
+    gen: dict[tuple[int, int], complex] = {}
+    for (x, z), c in op.items():
+        # (c X^x Z^z)^dagger = conj(c) Z^z X^x = conj(c) (-1)^{|x & z|} X^x Z^z
+        adj = np.conj(c) * (-1.0 if (x & z).bit_count() & 1 else 1.0)
+        gen[(x, z)] = gen.get((x, z), 0.0) + c - adj
+    mats = encoding_matrices(mapping, n)
+    rows = []
+    for (xm, zm), c in gen.items():
+        if abs(c) < 1e-14 or (xm == 0 and zm == 0):
             continue
-        x, z = _pauli_rows(pterm, n_qubits)
-        out.append((x, z, float(c.imag)))
-    for a in range(len(out)):
-        for b in range(a):
-            xa, za, _ = out[a]
-            xb, zb, _ = out[b]
+        x = np.array([(xm >> k) & 1 for k in range(n)], dtype=bool)
+        z = np.array([(zm >> k) & 1 for k in range(n)], dtype=bool)
+        if mats is not None:
+            a, a_inv_t = mats
+            x = ((a.astype(np.int64) @ x) & 1).astype(bool)
+            z = ((a_inv_t.astype(np.int64) @ z) & 1).astype(bool)
+        # X^x Z^z = (-i)^{|x & z|} P(x, z) with the Hermitian P = i^{x.z} X^x Z^z
+        coeff = complex(c) * (-1j) ** int(np.count_nonzero(x & z))
+        # G = i sum c_j P_j
+        cj = coeff / 1j
+        if abs(cj.imag) > 1e-12:
+            raise ValueError(f"mapped generator of {term} is not anti-Hermitian")
+        key = tuple((int(q), "IXZY"[int(x[q]) + 2 * int(z[q])]) for q in np.flatnonzero(x | z))
+        rows.append((key, x, z, float(cj.real)))
+    rows.sort(key=lambda r: r[0])
+    out = tuple((x, z, c) for _, x, z, c in rows)
+    for a_i in range(len(out)):
+        for b_i in range(a_i):
+            xa, za, _ = out[a_i]
+            xb, zb, _ = out[b_i]
             if np.logical_xor.reduce((xa & zb) ^ (za & xb)):
                 raise ValueError(f"Pauli strings of the mapped generator {term} do not commute")
-    return tuple(out)
-
-
-def _gf2_solve(mat: np.ndarray, rhs: np.ndarray) -> np.ndarray:
-    """Solve ``mat @ x = rhs`` over GF(2) for a square invertible 0/1 matrix."""
-    a = np.concatenate([mat.astype(np.uint8) % 2, (rhs.astype(np.uint8) % 2)[:, None]], axis=1)
-    n = mat.shape[0]
-    row = 0
-    for col in range(n):
-        piv = np.nonzero(a[row:, col])[0]
-        if piv.size == 0:
-            raise ValueError("singular GF(2) system")
-        p = row + piv[0]
-        if p != row:
-            a[[row, p]] = a[[p, row]]
-        for r in range(n):
-            if r != row and a[r, col]:
-                a[r] ^= a[row]
-        row += 1
-    return a[:, -1].copy()
-
-
-@lru_cache(maxsize=256)
-def _occupation_sets(mapping: str, n_qubits: int) -> np.ndarray:
-    """``M[p, k] = 1`` if the mapped number operator of mode ``p`` contains ``Z_k``."""
-    mat = np.zeros((n_qubits, n_qubits), dtype=np.uint8)
-    for p in range(n_qubits):
-        qop = map_fermion_operator(of.FermionOperator(((p, 1), (p, 0))), mapping, n_qubits)
-        zterms = [t for t, c in qop.terms.items() if t and abs(c) > 1e-12]
-        if len(zterms) != 1 or any(letter != "Z" for _, letter in zterms[0]):
-            raise ValueError(f"number operator of mode {p} is not a single Z string in {mapping}")
-        for q, _ in zterms[0]:
-            mat[p, q] = 1
-    return mat
+    return out
 
 
 def reference_bits(occupied: Sequence[int], mapping: str, n_qubits: int) -> np.ndarray:
     """Computational-basis bits (uint8, qubit order) encoding the occupation of ``occupied``.
 
-    For JW the bits are the occupations; for BK and parity the encoding is found from the
-    mapped number operators ``n_p = (1 - prod_{k in S_p} Z_k)/2`` by solving
-    ``occ_p = sum_{k in S_p} b_k (mod 2)``.
+    For JW the bits are the occupations; for BK and parity ``b = A n (mod 2)`` with the
+    encoding matrix ``A`` (:func:`encoding_matrices`).
     """
     check_mapping(mapping)
     occ = np.zeros(n_qubits, dtype=np.uint8)
     occ[list(occupied)] = 1
-    if mapping == "jordan_wigner":
+    mats = encoding_matrices(mapping, n_qubits)
+    if mats is None:
         return occ
-    return _gf2_solve(_occupation_sets(mapping, n_qubits), occ).astype(np.uint8)
+    return ((mats[0].astype(np.int64) @ occ.astype(np.int64)) & 1).astype(np.uint8)
+
+
+def encoded_qubit_state(
+    civec: np.ndarray, norb: int, nelec: tuple[int, int], mapping: str
+) -> np.ndarray:
+    """Statevector of a CI vector in the qubit encoding of ``mapping``.
+
+    The Jordan-Wigner image (:func:`eigensweep.vqe.detspace.to_qubit_state`) is moved to the
+    linear encoding by the CNOT network ``U|n> = |A n>``: ``psi_enc[A n] = psi_JW[n]``. This is
+    the frame in which the mapped Hamiltonian, :func:`reference_bits` and
+    :func:`generator_paulis` are written.
+    """
+    psi = to_qubit_state(civec, norb, nelec)
+    n = 2 * int(norb)
+    mats = encoding_matrices(mapping, n)
+    if mats is None:
+        return psi
+    idx = qubit_indices(norb, nelec).reshape(-1)
+    shifts = np.arange(n - 1, -1, -1, dtype=np.int64)  # qubit k is bit n - 1 - k
+    occ = (idx[:, None] >> shifts[None, :]) & 1
+    bits = (occ @ mats[0].T.astype(np.int64)) & 1
+    new = bits @ (np.int64(1) << shifts)
+    out = np.zeros_like(psi)
+    out[new] = psi[idx]
+    return out
 
 
 def append_pauli_rotation(circ: Circuit, x: np.ndarray, z: np.ndarray, angle: float) -> None:
@@ -468,6 +561,38 @@ class PauliRotationAnsatz:
                 self._single.append((q, "Y" if g.x[q] and g.z[q] else ("X" if g.x[q] else "Z")))
             else:
                 self._single.append((-1, ""))
+        self._tables: list[tuple[np.ndarray, np.ndarray, complex] | None] | None = None
+
+    # bytes of precomputed multi-qubit Pauli tables allowed per ansatz
+    TABLE_BUDGET = 256 * 2**20
+
+    def _build_tables(self) -> list[tuple[np.ndarray, np.ndarray, complex] | None]:
+        """``P_k psi = phase_k * sign_k * psi[perm_k]`` for the multi-qubit strings, if the
+        tables fit in :attr:`TABLE_BUDGET` (one sign vector per gate, one index vector per
+        distinct X part); otherwise ``None`` entries (generic kernel)."""
+        n = self._n_qubits
+        dim = 1 << n
+        multi = [k for k, (q, _) in enumerate(self._single) if q < 0]
+        weights = 1 << (n - 1 - np.arange(n, dtype=np.int64))  # qubit 0 = most significant bit
+        xms = {int(weights @ self.gates[k].x) for k in multi}
+        if 8 * dim * (len(multi) + len(xms)) > self.TABLE_BUDGET:
+            return [None] * len(self.gates)
+        idx = np.arange(dim, dtype=np.int64)
+        perms = {xm: idx ^ xm for xm in xms}
+        tables: list[tuple[np.ndarray, np.ndarray, complex] | None] = [None] * len(self.gates)
+        for k in multi:
+            g = self.gates[k]
+            perm = perms[int(weights @ g.x)]
+            zm = int(weights @ g.z)
+            sign = 1.0 - 2.0 * (np.bitwise_count(perm & zm) & 1)
+            phase = (1j) ** int(np.count_nonzero(g.x & g.z))
+            tables[k] = (perm, sign, complex(phase))
+        return tables
+
+    def _table(self, k: int) -> tuple[np.ndarray, np.ndarray, complex] | None:
+        if self._tables is None:
+            self._tables = self._build_tables()
+        return self._tables[k]
 
     @property
     def n_params(self) -> int:
@@ -496,8 +621,16 @@ class PauliRotationAnsatz:
         """``exp(-i angle/2 P_k) psi``; single-qubit strings on a reshaped view."""
         q, letter = self._single[k]
         if q < 0:
-            g = self.gates[k]
-            return sv.apply_pauli_rotation(psi, g.x, g.z, angle)
+            table = self._table(k)
+            if table is None:
+                g = self.gates[k]
+                return _sv().apply_pauli_rotation(psi, g.x, g.z, angle)
+            perm, sign, phase = table
+            flipped = psi[perm]
+            flipped *= sign
+            out = np.cos(angle / 2.0) * psi
+            out += (-1j * np.sin(angle / 2.0) * phase) * flipped
+            return out
         v = psi.reshape(1 << q, 2, -1)
         c, s = np.cos(angle / 2.0), np.sin(angle / 2.0)
         out = np.empty_like(v)
@@ -517,8 +650,15 @@ class PauliRotationAnsatz:
         """``P_k psi``."""
         q, letter = self._single[k]
         if q < 0:
-            g = self.gates[k]
-            return sv.apply_pauli(psi, g.x, g.z)
+            table = self._table(k)
+            if table is None:
+                g = self.gates[k]
+                return _sv().apply_pauli(psi, g.x, g.z)
+            perm, sign, phase = table
+            out = psi[perm]
+            out *= sign
+            out *= phase
+            return out
         v = psi.reshape(1 << q, 2, -1)
         out = np.empty_like(v)
         if letter == "Z":
@@ -534,7 +674,7 @@ class PauliRotationAnsatz:
 
     def state(self, theta: np.ndarray) -> np.ndarray:
         """Complex statevector (qubit 0 = most significant bit)."""
-        psi = sv.basis_state(self.reference)
+        psi = _sv().basis_state(self.reference)
         for k, a in enumerate(self.angles(theta)):
             psi = self._rotate(psi, k, float(a))
         return psi
@@ -547,14 +687,14 @@ class PauliRotationAnsatz:
         return self.hamiltonian
 
     def energy(self, theta: np.ndarray) -> float:
-        return sv.expectation(self.state(theta), self._ham())
+        return _sv().expectation(self.state(theta), self._ham())
 
     def energy_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Energy and exact gradient (adjoint sweep)."""
         ham = self._ham()
         angles = self.angles(theta)
         psi = self.state(theta)
-        lam = sv.apply_pauli_sum(psi, ham)
+        lam = _sv().apply_pauli_sum(psi, ham)
         energy = float(np.vdot(psi, lam).real)
         da = np.zeros(len(self.gates))
         for k in range(len(self.gates) - 1, -1, -1):

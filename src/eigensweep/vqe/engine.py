@@ -1,25 +1,37 @@
 """The ``optimize`` stage science: build an ansatz, minimise its energy, report the result.
 
-Simulation path by (ansatz, estimator):
+Simulation path by (ansatz, tapering, estimator); ``mapping`` is the fermion-to-qubit mapping
+of ``qubit_hamiltonian`` / ``tapering`` (the sweep axis ``methods.mapping``):
 
-* fermionic ansatz (``uccsd``, ``kupccgsd``, ``adapt``) + ``exact``: determinant space
+* fermionic ansatz (``uccsd``, ``kupccgsd``, ``adapt`` with a fermionic pool), untapered
+  (``tapering`` is ``None`` or has no generators) + ``exact``: determinant space
   (:mod:`eigensweep.vqe.detspace`) with adjoint gradients; no qubit Hamiltonian is needed.
-* fermionic ansatz + ``shots`` / ``noisy``: the state is still propagated exactly in
-  determinant space, mapped to the Jordan-Wigner statevector (:func:`to_qubit_state`) and
-  sampled against the untapered JW Hamiltonian built here from the integrals (the
-  ``qubit_hamiltonian`` argument is not used for fermionic ansätze, because a tapered or
-  differently mapped operator does not act on the JW statevector).
+  Circuit costs are those of the Pauli-rotation circuit under ``mapping``.
+* the same + ``shots`` / ``noisy``: the state is propagated exactly in determinant space,
+  written as the statevector of ``mapping``'s encoding (:func:`encoded_qubit_state`) and
+  sampled against the mapped Hamiltonian (``tapering.hamiltonian`` or ``qubit_hamiltonian``
+  when given, else built from the integrals).
+* fermionic ansatz, tapered (``tapering`` with at least one Z2 generator; Bravyi, Gambetta,
+  Mezzacapo, Temme, arXiv:1701.08213): the excitations become Pauli rotations on the tapered
+  qubits (:class:`~eigensweep.vqe.tapered.TaperedFermionicAnsatz`; symmetry-forbidden
+  excitations dropped, which is exact from the Hartree-Fock start), simulated on the tapered
+  statevector with ``tapering.hamiltonian``, reference ``tapering.reference_bits`` and adjoint
+  gradients; ``shots``/``noisy`` sample the tapered Hamiltonian. ADAPT with a fermionic pool
+  selects and optimizes on the tapered statevector too.
 * ``adapt`` with ``pool: qubit`` (qubit-ADAPT): JW qubit statevector with the JW Hamiltonian
-  of the integrals (the pool's Pauli rotations do not conserve particle number).
-* ``hardware_efficient``: qubit statevector with ``qubit_hamiltonian`` (possibly tapered;
-  default: JW Hamiltonian of the integrals) and ``reference_bits`` (default: JW HF bits,
-  only allowed when the Hamiltonian has ``2 norb`` qubits).
+  of the integrals (the pool's Pauli rotations do not conserve particle number); only
+  ``mapping="jordan_wigner"`` without tapering (:func:`~eigensweep.vqe.methods.check_combination`).
+* ``hardware_efficient``: qubit statevector with ``tapering.hamiltonian`` and
+  ``tapering.reference_bits`` when ``tapering`` is given, else ``qubit_hamiltonian`` and
+  ``reference_bits`` (default: the Hamiltonian of the integrals under ``mapping`` and its
+  Hartree-Fock bits, only allowed when the Hamiltonian has ``2 norb`` qubits).
 
 Gradient-based optimizers (``lbfgs``, ``bfgs``) need the exact estimator; ``adapt`` too
 (its operator selection uses exact gradients). ``initial_params`` (a warm start) is ignored by
-``adapt``, which always grows its operator list from HF (noted in ``message``). With ``shots``/``noisy`` the optimizer's final
-point is re-evaluated with fresh shots (``final_shots``, default ``shots``) and exactly; the
-reported ``energy`` is that fresh estimate with its standard error.
+``adapt``, which always grows its operator list from HF (noted in ``message``). With
+``shots``/``noisy`` the optimizer's final point is re-evaluated with fresh shots
+(``final_shots``, default ``shots``) and exactly; the reported ``energy`` is that fresh
+estimate with its standard error.
 """
 
 from __future__ import annotations
@@ -28,133 +40,41 @@ import math
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, fields
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ..errors import ConfigError
-from ..qubit.pauli import PauliSum
-from .adapt import POOLS, run_adapt
-from .ansatz import MAPPINGS, FermionicAnsatz, reference_bits
-from .detspace import DetSpace, fci_ground_state, to_qubit_state
-from .estimators import (
-    ESTIMATOR_DEFAULTS,
-    Estimate,
-    make_estimator,
-    molecular_pauli_sum,
-    validate_estimator,
-)
-from .hardware_efficient import ROTATION_SETS, HardwareEfficientAnsatz
+from .ansatz import FermionicAnsatz, encoded_qubit_state
+from .ansatz import reference_bits as mapped_reference_bits
+from .detspace import DetSpace, fci_ground_state
 from .kupccgsd import KUpCCGSD
-from .optimizers import GRADIENT_METHODS, OPTIMIZER_DEFAULTS, minimize, validate_options
+from .methods import (
+    ANSATZ_DEFAULTS,
+    ESTIMATOR_DEFAULTS,
+    GRADIENT_METHODS,
+    OPTIMIZER_DEFAULTS,
+    check_combination,
+    check_mapping,
+    validate_method,
+)
+from .optimizers import minimize
 from .uccsd import UCCSD
 
-ANSATZ_DEFAULTS: dict[str, dict[str, Any]] = {
-    "uccsd": {"spin_adapted": False, "mapping": "jordan_wigner"},
-    "kupccgsd": {"k": 1, "spin_adapted": False, "init_scale": 0.0, "mapping": "jordan_wigner"},
-    "hardware_efficient": {"layers": 2, "rotations": "ry_rz", "init_scale": 0.1},
-    "adapt": {
-        "pool": "fermionic_sd",
-        "gradient_tolerance": 1e-3,
-        "max_operators": 50,
-        "mapping": "jordan_wigner",
-    },
-}
-
-FERMIONIC = ("uccsd", "kupccgsd", "adapt")
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliSum
+    from ..qubit.taper import TaperResult
+    from .estimators import Estimate
 
 __all__ = [
     "ANSATZ_DEFAULTS",
     "ESTIMATOR_DEFAULTS",
     "OPTIMIZER_DEFAULTS",
     "OptimizeResult",
+    "check_combination",
     "run_optimize",
     "validate_method",
 ]
-
-
-def _check_bool(kind: str, key: str, v: Any) -> bool:
-    if not isinstance(v, bool):
-        raise ConfigError(f"{kind}.{key}: must be true or false, got {v!r}")
-    return v
-
-
-def _check_int(kind: str, key: str, v: Any, low: int) -> int:
-    if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < low:
-        raise ConfigError(f"{kind}.{key}: must be an integer >= {low}, got {v!r}")
-    return int(v)
-
-
-def _check_float(kind: str, key: str, v: Any, low: float, inclusive: bool = True) -> float:
-    ok = isinstance(v, int | float | np.integer | np.floating) and not isinstance(v, bool)
-    if ok:
-        ok = math.isfinite(float(v)) and (v >= low if inclusive else v > low)
-    if not ok:
-        rel = ">=" if inclusive else ">"
-        raise ConfigError(f"{kind}.{key}: must be a number {rel} {low}, got {v!r}")
-    return float(v)
-
-
-def _check_choice(kind: str, key: str, v: Any, allowed: tuple[str, ...]) -> str:
-    if v not in allowed:
-        raise ConfigError(f"{kind}.{key}: unknown value {v!r}; allowed: {', '.join(allowed)}")
-    return str(v)
-
-
-def _validate_ansatz(cfg: dict[str, Any]) -> dict[str, Any]:
-    name = cfg.get("name")
-    if name not in ANSATZ_DEFAULTS:
-        raise ConfigError(
-            f"ansatz.name: unknown ansatz {name!r}; allowed: {', '.join(ANSATZ_DEFAULTS)}"
-        )
-    defaults = ANSATZ_DEFAULTS[name]
-    out: dict[str, Any] = {"name": name, **defaults}
-    for key, value in cfg.items():
-        if key == "name":
-            continue
-        if key not in defaults:
-            allowed = ", ".join(["name", *defaults])
-            raise ConfigError(f"ansatz.{key}: unknown option for {name!r}; allowed: {allowed}")
-        out[key] = value
-    for key, value in list(out.items()):
-        if key == "spin_adapted":
-            out[key] = _check_bool("ansatz", key, value)
-        elif key == "mapping":
-            out[key] = _check_choice("ansatz", key, value, MAPPINGS)
-        elif key == "k":
-            out[key] = _check_int("ansatz", key, value, 1)
-        elif key == "layers":
-            out[key] = _check_int("ansatz", key, value, 0)
-        elif key == "max_operators":
-            out[key] = _check_int("ansatz", key, value, 1)
-        elif key == "init_scale":
-            out[key] = _check_float("ansatz", key, value, 0.0)
-        elif key == "gradient_tolerance":
-            out[key] = _check_float("ansatz", key, value, 0.0, inclusive=False)
-        elif key == "rotations":
-            out[key] = _check_choice("ansatz", key, value, ROTATION_SETS)
-        elif key == "pool":
-            out[key] = _check_choice("ansatz", key, value, POOLS)
-    return out
-
-
-def validate_method(kind: str, cfg: dict[str, Any]) -> dict[str, Any]:
-    """Return ``cfg`` (a dict with ``name``) with defaults filled for ``kind``.
-
-    ``kind`` is ``"ansatz"``, ``"optimizer"`` or ``"estimator"``. Raises
-    :class:`ConfigError` on an unknown name, unknown key or out-of-range value.
-    """
-    if not isinstance(cfg, dict):
-        raise ConfigError(f"{kind}: must be a mapping with a 'name' key, got {cfg!r}")
-    if kind == "ansatz":
-        return _validate_ansatz(cfg)
-    if kind == "optimizer":
-        name = cfg.get("name")
-        opts = {k: v for k, v in cfg.items() if k != "name"}
-        return {"name": name, **validate_options(name, opts)}
-    if kind == "estimator":
-        return validate_estimator(cfg)
-    raise ConfigError(f"kind: unknown method kind {kind!r}; allowed: ansatz, optimizer, estimator")
 
 
 @dataclass
@@ -162,10 +82,12 @@ class OptimizeResult:
     """Outcome of :func:`run_optimize` (energies in hartree).
 
     ``trace_*`` arrays have one entry per objective evaluation. ``overlap_exact`` is
-    ``|<psi|ground>|^2`` with the exact ground state of the ``nelec`` sector (PySCF FCI; for
-    a qubit-space ansatz on a tapered or non-JW operator: the weight in the operator's lowest
-    eigenspace when its eigenvalue equals the FCI energy to 1e-6 Eh, up to 16 qubits), or nan
-    when it cannot be formed.
+    ``|<psi|ground>|^2`` with the exact ground state of the ``nelec`` sector (PySCF FCI, written
+    in the mapping's encoding for untapered statevectors; for a tapered problem or a
+    user-given operator: the weight in the operator's lowest eigenspace when its eigenvalue
+    equals the determinant-space FCI energy to 1e-6 Eh, up to 16 qubits), or nan when it cannot
+    be formed. ``n_qubits``, ``cnot_count`` and ``depth`` are those of the circuit that is run
+    (tapered qubits for a tapered problem).
     """
 
     energy: float
@@ -250,9 +172,99 @@ def _qubit_ground_overlap(
     return float(np.sum(np.abs(ground.conj().T @ psi) ** 2))
 
 
-def _hf_bits_jw(norb: int, nelec: tuple[int, int]) -> np.ndarray:
-    occ = [2 * i for i in range(nelec[0])] + [2 * i + 1 for i in range(nelec[1])]
-    return reference_bits(occ, "jordan_wigner", 2 * norb)
+def _hf_occupied(nelec: tuple[int, int]) -> list[int]:
+    return sorted([2 * i for i in range(nelec[0])] + [2 * i + 1 for i in range(nelec[1])])
+
+
+def _mapped_hamiltonian(
+    h1e: np.ndarray, eri: np.ndarray, e_core: float, norb: int, mapping: str
+) -> PauliSum:
+    """The qubit Hamiltonian of the integrals under ``mapping`` (OpenFermion, imported here)."""
+    if mapping == "jordan_wigner":
+        from .estimators import molecular_pauli_sum
+
+        return molecular_pauli_sum(h1e, eri, e_core, norb)
+    from ..qubit.mapping import map_hamiltonian
+
+    return map_hamiltonian(h1e, eri, float(e_core), mapping)
+
+
+def _basis_index(bits: np.ndarray) -> int:
+    """Statevector index of a basis state (qubit 0 = most significant bit)."""
+    out = 0
+    for b in np.asarray(bits).reshape(-1):
+        out = (out << 1) | int(b)
+    return out
+
+
+def _check_tapering(
+    tapering: TaperResult,
+    qubit_hamiltonian: PauliSum | None,
+    space: DetSpace,
+    mapping: str,
+) -> None:
+    """ConfigError unless ``tapering`` belongs to these integrals (and ``qubit_hamiltonian``)."""
+    n = 2 * space.norb
+    if int(tapering.n_qubits_before) != n:
+        raise ConfigError(
+            f"tapering: built for {tapering.n_qubits_before} qubits, the integrals need {n} "
+            f"(2 x {space.norb} orbitals)"
+        )
+    ham = tapering.hamiltonian
+    if qubit_hamiltonian is not None and not (
+        qubit_hamiltonian.n_qubits == ham.n_qubits and qubit_hamiltonian.allclose(ham, atol=1e-10)
+    ):
+        raise ConfigError(
+            "qubit_hamiltonian: differs from tapering.hamiltonian; pass the tapered Hamiltonian "
+            "of the same taper stage (or leave qubit_hamiltonian out)"
+        )
+    e_ref = float(ham.diagonal_at(np.array([_basis_index(tapering.reference_bits)]))[0])
+    e_hf = space.energy(space.hf_state())
+    if abs(e_ref - e_hf) > 1e-6:
+        raise ConfigError(
+            f"tapering: its reference state has energy {e_ref:.8f} Eh but the Hartree-Fock "
+            f"determinant of the integrals {e_hf:.8f} Eh; was it built from these integrals "
+            f"with mapping {mapping!r}?"
+        )
+
+
+_FRAME_CHECK_MAX_QUBITS = 16
+
+
+def _check_mapping_frame(
+    ans: Any,
+    tapering: TaperResult,
+    space: DetSpace,
+    mapping: str,
+    c_fci: np.ndarray,
+    e_fci: float,
+) -> None:
+    """ConfigError unless ``tapering`` was built under ``mapping``.
+
+    Tapered fermionic ansatz: at a fixed test point it must give the determinant-space energy
+    of the same excitations (under a wrong mapping they become other strings; a tapered
+    qubit-space ansatz does not depend on the mapping). Untapered (up to
+    :data:`_FRAME_CHECK_MAX_QUBITS` qubits): the FCI vector written in ``mapping``'s encoding
+    must have the FCI energy under ``tapering.hamiltonian`` (the operator that shots sample,
+    hardware-efficient circuits run on and overlaps are taken in).
+    """
+    if tapering.generators.n_terms > 0:
+        det = FermionicAnsatz(space, ans.excitations, ans.n_params_untapered)
+        theta = 0.1 * np.sin(1.0 + np.arange(ans.n_params))
+        e_tap, e_det = ans.energy(theta), det.energy(ans.untapered_params(theta))
+    elif tapering.n_qubits_before <= _FRAME_CHECK_MAX_QUBITS:
+        from ..qubit.statevector import expectation
+
+        psi = encoded_qubit_state(c_fci, space.norb, space.nelec, mapping)
+        e_tap, e_det = expectation(psi, tapering.hamiltonian), e_fci
+    else:
+        return
+    if abs(e_tap - e_det) > 1e-7:
+        raise ConfigError(
+            f"mapping: the taper stage's Hamiltonian is not in the {mapping!r} encoding (a test "
+            f"state gives {e_tap:.8f} Eh there and {e_det:.8f} Eh exactly); pass the mapping of "
+            "the hamiltonian stage"
+        )
 
 
 def run_optimize(
@@ -267,6 +279,8 @@ def run_optimize(
     estimator: dict,
     qubit_hamiltonian: PauliSum | None = None,
     reference_bits: np.ndarray | None = None,
+    mapping: str = "jordan_wigner",
+    tapering: TaperResult | None = None,
     initial_params: np.ndarray | None = None,
     seed: int = 0,
     progress: Callable[[int, float], None] | None = None,
@@ -277,9 +291,16 @@ def run_optimize(
         h1e, eri, e_core, norb, nelec: active-space integrals (chemists' ``(pq|rs)``),
             core energy and sizes.
         ansatz, optimizer, estimator: method configs with ``name`` (see the ``*_DEFAULTS``).
-        qubit_hamiltonian: qubit operator for ``hardware_efficient`` (may be tapered).
-        reference_bits: reference basis state of ``qubit_hamiltonian``'s qubits.
-        initial_params: starting parameters (default: the ansatz's ``initial_params()``).
+        qubit_hamiltonian: the qubit operator of the problem under ``mapping`` (may be
+            tapered); with ``tapering`` it must equal ``tapering.hamiltonian``.
+        reference_bits: reference basis state of ``qubit_hamiltonian``'s qubits (ignored when
+            ``tapering`` is given: ``tapering.reference_bits`` is used).
+        mapping: fermion-to-qubit mapping (``jordan_wigner``, ``bravyi_kitaev``, ``parity``) of
+            the problem: circuit costs, sampled Hamiltonians and tapering use it.
+        tapering: the taper stage's :class:`~eigensweep.qubit.TaperResult` of the Hamiltonian
+            under ``mapping`` (``no_taper`` results, with zero generators, mean untapered).
+        initial_params: starting parameters (default: the ansatz's ``initial_params()``; for
+            a tapered fermionic ansatz only the kept parameters).
         seed: seed for optimizer, estimator (if it has no own seed) and random inits.
         progress: called as ``progress(evaluation_index, energy)`` after each evaluation.
     """
@@ -287,6 +308,9 @@ def run_optimize(
     a_cfg = validate_method("ansatz", ansatz)
     o_cfg = validate_method("optimizer", optimizer)
     e_cfg = validate_method("estimator", estimator)
+    mapping = check_mapping(mapping, "mapping")
+    tapered = tapering is not None and tapering.generators.n_terms > 0
+    check_combination(a_cfg, tapered, mapping, optimizer=o_cfg, estimator=e_cfg)
     norb = int(norb)
     nelec = (int(nelec[0]), int(nelec[1]))
     seed = int(seed)
@@ -294,26 +318,25 @@ def run_optimize(
     method = o_cfg["name"]
     opt_options = {k: v for k, v in o_cfg.items() if k != "name"}
     sampled = e_cfg["name"] != "exact"
-    if sampled and method in GRADIENT_METHODS:
-        raise ConfigError(
-            f"optimizer.name: {method!r} needs exact gradients; with estimator "
-            f"{e_cfg['name']!r} use one of spsa, rbf_surrogate, cobyla, nelder_mead"
-        )
-    if sampled and name == "adapt":
-        raise ConfigError("estimator.name: the adapt ansatz needs the exact estimator")
     h1e = np.asarray(h1e, dtype=float)
     eri = np.asarray(eri, dtype=float)
     if h1e.shape != (norb, norb):
         raise ConfigError(f"h1e: shape {h1e.shape} does not match norb={norb}")
 
     space = DetSpace(norb, nelec, h1e, eri, e_core)
+    if tapering is not None:
+        _check_tapering(tapering, qubit_hamiltonian, space, mapping)
     e_fci, c_fci = fci_ground_state(h1e, eri, e_core, norb, nelec)
 
     # ------------------------------------------------------------- build the ansatz
     trace: list[dict] = []
     adapt_res = None
+    jw_statevector = False  # qubit-space ansatz on the untapered JW (or mapped) encoding
     if name == "adapt":
+        from .adapt import run_adapt
+
         qubit_pool = a_cfg["pool"] == "qubit"
+        jw_statevector = qubit_pool
         adapt_res = run_adapt(
             space,
             pool=a_cfg["pool"],
@@ -322,37 +345,56 @@ def run_optimize(
             optimizer=o_cfg,
             seed=seed,
             progress=progress,
-            hamiltonian=molecular_pauli_sum(h1e, eri, e_core, norb) if qubit_pool else None,
-            reference=_hf_bits_jw(norb, nelec) if qubit_pool else None,
+            hamiltonian=_mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
+            if qubit_pool
+            else None,
+            reference=mapped_reference_bits(_hf_occupied(nelec), mapping, 2 * norb)
+            if qubit_pool
+            else None,
+            tapering=tapering if tapered else None,
+            mapping=mapping,
         )
         ans: Any = adapt_res.ansatz
-    elif name == "uccsd":
-        ans = UCCSD(space, spin_adapted=a_cfg["spin_adapted"])
-    elif name == "kupccgsd":
-        ans = KUpCCGSD(
-            space,
-            k=a_cfg["k"],
-            spin_adapted=a_cfg["spin_adapted"],
-            init_scale=a_cfg["init_scale"],
-            seed=seed,
-        )
-    else:
-        ham = qubit_hamiltonian
-        if ham is None:
-            ham = molecular_pauli_sum(h1e, eri, e_core, norb)
-        if reference_bits is None:
-            if ham.n_qubits != 2 * norb:
-                raise ConfigError(
-                    "reference_bits: required for a qubit Hamiltonian on "
-                    f"{ham.n_qubits} != 2*norb qubits"
-                )
-            ref = _hf_bits_jw(norb, nelec)
+    elif name in ("uccsd", "kupccgsd"):
+        if name == "uccsd":
+            ans = UCCSD(space, spin_adapted=a_cfg["spin_adapted"])
         else:
-            ref = np.asarray(reference_bits, dtype=np.uint8).reshape(-1)
-            if ref.size != ham.n_qubits:
-                raise ConfigError(
-                    f"reference_bits: has {ref.size} bits, the Hamiltonian {ham.n_qubits} qubits"
-                )
+            ans = KUpCCGSD(
+                space,
+                k=a_cfg["k"],
+                spin_adapted=a_cfg["spin_adapted"],
+                init_scale=a_cfg["init_scale"],
+                seed=seed,
+            )
+        if tapered:
+            from .tapered import TaperedFermionicAnsatz
+
+            ans = TaperedFermionicAnsatz.from_ansatz(ans, mapping, tapering)
+    else:
+        from .hardware_efficient import HardwareEfficientAnsatz
+
+        if tapering is not None:
+            ham = tapering.hamiltonian
+            ref = np.asarray(tapering.reference_bits, dtype=np.uint8).reshape(-1)
+            jw_statevector = not tapered
+        else:
+            ham = qubit_hamiltonian
+            if ham is None:
+                ham = _mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
+            if reference_bits is None:
+                if ham.n_qubits != 2 * norb:
+                    raise ConfigError(
+                        "reference_bits: required for a qubit Hamiltonian on "
+                        f"{ham.n_qubits} != 2*norb qubits"
+                    )
+                ref = mapped_reference_bits(_hf_occupied(nelec), mapping, 2 * norb)
+                jw_statevector = True
+            else:
+                ref = np.asarray(reference_bits, dtype=np.uint8).reshape(-1)
+                if ref.size != ham.n_qubits:
+                    raise ConfigError(
+                        f"reference_bits: has {ref.size} bits, the Hamiltonian {ham.n_qubits} qubits"
+                    )
         ans = HardwareEfficientAnsatz(
             ham,
             ref,
@@ -361,18 +403,37 @@ def run_optimize(
             init_scale=a_cfg["init_scale"],
             seed=seed,
         )
-    fermionic = isinstance(ans, FermionicAnsatz)
-    mapping = a_cfg.get("mapping", "jordan_wigner")
-    costs = ans.circuit_costs(mapping) if fermionic else ans.circuit_costs()
+    det_space = isinstance(ans, FermionicAnsatz)
+    # circuits built from mapped excitations (det-space or tapered), not native qubit gates
+    fermionic_circuit = name in ("uccsd", "kupccgsd") or (name == "adapt" and not jw_statevector)
+    if tapering is not None and (fermionic_circuit or not tapered):
+        _check_mapping_frame(ans, tapering, space, mapping, c_fci, e_fci)
+    costs = ans.circuit_costs(mapping) if det_space else ans.circuit_costs()
 
     # ------------------------------------------------------------- estimator
-    qham = None
-    if sampled:
-        qham = molecular_pauli_sum(h1e, eri, e_core, norb) if fermionic else ans.hamiltonian
-    est = make_estimator(e_cfg, qham, seed=seed, n_cnot=costs["cnot_count"])
+    if det_space:
 
-    def qubit_state(theta: np.ndarray) -> np.ndarray:
-        return ans.qubit_state(theta)
+        def qubit_state(theta: np.ndarray) -> np.ndarray:
+            return encoded_qubit_state(ans.state(theta), norb, nelec, mapping)
+
+    else:
+
+        def qubit_state(theta: np.ndarray) -> np.ndarray:
+            return ans.state(theta)
+
+    est = None
+    if sampled:
+        from .estimators import make_estimator
+
+        if not det_space:
+            qham = ans.hamiltonian
+        elif tapering is not None:
+            qham = tapering.hamiltonian
+        elif qubit_hamiltonian is not None and qubit_hamiltonian.n_qubits == 2 * norb:
+            qham = qubit_hamiltonian
+        else:
+            qham = _mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
+        est = make_estimator(e_cfg, qham, seed=seed, n_cnot=costs["cnot_count"])
 
     # ------------------------------------------------------------- optimize
     if adapt_res is not None:
@@ -391,7 +452,7 @@ def run_optimize(
                 f"initial_params: has {x0.size} values, the ansatz {ans.n_params} parameters"
             )
         counter = [0]
-        if sampled:
+        if est is not None:
             last_shots = [0]
 
             def objective(theta: np.ndarray) -> float:
@@ -442,25 +503,26 @@ def run_optimize(
 
     # ------------------------------------------------------------- final evaluation
     e_exact_params = float(ans.energy(params))
-    if sampled:
+    if est is not None:
         final_shots = e_cfg["final_shots"] or e_cfg["shots"]
         final: Estimate = est.estimate(qubit_state(params), shots=final_shots)
         energy, stderr = final.value, final.stderr
     else:
         energy, stderr = e_exact_params, 0.0
 
-    if fermionic:
+    if det_space:
         overlap = float(np.dot(ans.state(params), c_fci) ** 2)
-    elif ans.n_qubits == 2 * norb and (reference_bits is None or name == "adapt"):
-        # JW statevector: the FCI vector maps exactly
-        psi = ans.state(params)
-        gs = to_qubit_state(c_fci, norb, nelec)
-        overlap = float(abs(np.vdot(gs, psi)) ** 2)
+    elif jw_statevector and ans.n_qubits == 2 * norb:
+        # untapered statevector in the mapping's encoding: the FCI vector maps exactly
+        enc = "jordan_wigner" if name == "adapt" else mapping
+        gs = encoded_qubit_state(c_fci, norb, nelec, enc)
+        overlap = float(abs(np.vdot(gs, ans.state(params))) ** 2)
     else:
+        # tapered or user-given operator: its lowest eigenspace, if that is the FCI energy
         overlap = _qubit_ground_overlap(ans.state(params), ans.hamiltonian, e_fci)
 
     meta = ans.meta()
-    meta["mapping_for_costs"] = mapping if fermionic else "native"
+    meta["mapping_for_costs"] = mapping if fermionic_circuit else "native"
     if adapt_res is not None:
         meta["adapt_history"] = adapt_res.history
     return OptimizeResult(

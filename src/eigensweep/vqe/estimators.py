@@ -29,64 +29,24 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-import openfermion as of
 
 from ..errors import ConfigError
 from ..qubit.grouping import qwc_groups
 from ..qubit.pauli import PauliSum, bits_to_mask
 from ..qubit.statevector import expectation as sv_expectation
+from .methods import ESTIMATOR_DEFAULTS, validate_estimator
 
-ESTIMATOR_DEFAULTS: dict[str, dict[str, Any]] = {
-    "exact": {},
-    "shots": {"shots": 1000, "seed": None, "final_shots": None},
-    "noisy": {
-        "shots": 1000,
-        "seed": None,
-        "final_shots": None,
-        "readout_error": 0.0,
-        "p01": None,
-        "p10": None,
-        "depolarizing": 0.0,
-    },
-}
-
-
-def validate_estimator(cfg: dict[str, Any]) -> dict[str, Any]:
-    """Return the estimator config (with ``name``) with defaults filled; ConfigError if bad."""
-    name = cfg.get("name")
-    if name not in ESTIMATOR_DEFAULTS:
-        raise ConfigError(
-            f"estimator.name: unknown estimator {name!r}; allowed: {', '.join(ESTIMATOR_DEFAULTS)}"
-        )
-    defaults = ESTIMATOR_DEFAULTS[name]
-    out: dict[str, Any] = {"name": name, **defaults}
-    for key, value in cfg.items():
-        if key == "name":
-            continue
-        if key not in defaults:
-            allowed = ", ".join(["name", *defaults])
-            raise ConfigError(f"estimator.{key}: unknown option for {name!r}; allowed: {allowed}")
-        out[key] = value
-    for key in ("shots", "final_shots"):
-        if key in out and out[key] is not None:
-            v = out[key]
-            if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
-                raise ConfigError(f"estimator.{key}: must be an integer >= 1, got {v!r}")
-            out[key] = int(v)
-    if "shots" in out and out["shots"] is None:
-        raise ConfigError("estimator.shots: must be an integer >= 1, got null")
-    if "seed" in out and out["seed"] is not None:
-        v = out["seed"]
-        if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 0:
-            raise ConfigError(f"estimator.seed: must be an integer >= 0 or null, got {v!r}")
-        out["seed"] = int(v)
-    for key in ("readout_error", "p01", "p10", "depolarizing"):
-        if key in out and out[key] is not None:
-            v = out[key]
-            if isinstance(v, bool) or not isinstance(v, int | float) or not 0.0 <= v < 0.5:
-                raise ConfigError(f"estimator.{key}: must be a probability in [0, 0.5), got {v!r}")
-            out[key] = float(v)
-    return out
+__all__ = [
+    "ESTIMATOR_DEFAULTS",
+    "Estimate",
+    "Estimator",
+    "MeasurementPlan",
+    "NoisyEstimator",
+    "ShotEstimator",
+    "make_estimator",
+    "molecular_pauli_sum",
+    "validate_estimator",
+]
 
 
 @dataclass
@@ -110,6 +70,8 @@ def molecular_pauli_sum(
     ``H = e_core + sum h_pq a^+_p a_q + 1/2 sum (pq|rs) a^+_{p s} a^+_{r t} a_{s t} a_{q s}``
     mapped with OpenFermion (``jordan_wigner`` or ``bravyi_kitaev``).
     """
+    import openfermion as of  # heavy (seconds): only when a Hamiltonian is built here
+
     n = 2 * norb
     one = np.zeros((n, n))
     two = np.zeros((n, n, n, n))

@@ -16,13 +16,18 @@ native ``ry``/``rz``/``cx`` gates instead (``layers * (n - 1)`` CNOTs).
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from ..circuit import Circuit
-from ..qubit.pauli import PauliSum
 from .ansatz import PauliGate, PauliRotationAnsatz, costs_of
+from .methods import ROTATION_SETS
 
-ROTATION_SETS = ("ry_rz", "ry")
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliSum
+
+__all__ = ["ROTATION_SETS", "HardwareEfficientAnsatz"]
 
 
 def _row(n: int, qubits: dict[int, str]) -> tuple[np.ndarray, np.ndarray]:

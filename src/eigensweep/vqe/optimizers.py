@@ -52,113 +52,15 @@ from typing import Any
 import numpy as np
 import scipy.optimize
 
-from ..errors import ConfigError
+from .methods import GRADIENT_METHODS, OPTIMIZER_DEFAULTS, validate_options
 
-OPTIMIZER_DEFAULTS: dict[str, dict[str, Any]] = {
-    "lbfgs": {"maxiter": 1000, "tol": 1e-8, "ftol": 1e-14, "maxcor": 20},
-    "bfgs": {"maxiter": 1000, "tol": 1e-6},
-    "cobyla": {"maxiter": 2000, "tol": 1e-6, "rhobeg": 0.1},
-    "nelder_mead": {"maxiter": 5000, "tol": 1e-8, "initial_step": 0.1},
-    "spsa": {
-        "maxiter": 300,
-        "a": None,
-        "c": 0.1,
-        "alpha": 0.602,
-        "gamma": 0.101,
-        "A": None,
-        "target_step": 0.1,
-        "calibration_samples": 10,
-        "average_last": 1,
-    },
-    "rbf_surrogate": {
-        "maxiter": 200,
-        "tol": 1e-4,
-        "radius": 0.5,
-        "n_initial": None,
-        "n_candidates": None,
-        "weights": [0.3, 0.5, 0.8, 0.95],
-        "sigma": 0.2,
-        "smoothing": 0.0,
-        "success_tolerance": 3,
-        "fail_tolerance": None,
-    },
-}
-
-GRADIENT_METHODS = ("lbfgs", "bfgs")
-
-# (kind, lower bound, lower-inclusive, allow None)
-_RANGES: dict[str, tuple[str, float, bool, bool]] = {
-    "maxiter": ("int", 1, True, False),
-    "tol": ("float", 0.0, True, False),
-    "ftol": ("float", 0.0, True, False),
-    "maxcor": ("int", 1, True, False),
-    "rhobeg": ("float", 0.0, False, False),
-    "initial_step": ("float", 0.0, False, False),
-    "a": ("float", 0.0, False, True),
-    "c": ("float", 0.0, False, False),
-    "alpha": ("float", 0.0, False, False),
-    "gamma": ("float", 0.0, False, False),
-    "A": ("float", 0.0, True, True),
-    "target_step": ("float", 0.0, False, False),
-    "calibration_samples": ("int", 1, True, False),
-    "average_last": ("int", 1, True, False),
-    "radius": ("float", 0.0, False, False),
-    "n_initial": ("int", 2, True, True),
-    "n_candidates": ("int", 1, True, True),
-    "sigma": ("float", 0.0, False, False),
-    "smoothing": ("float", 0.0, True, False),
-    "success_tolerance": ("int", 1, True, False),
-    "fail_tolerance": ("int", 1, True, True),
-}
-
-
-def validate_options(method: str, options: dict[str, Any] | None) -> dict[str, Any]:
-    """Return ``options`` with the defaults of ``method`` filled in.
-
-    Raises :class:`ConfigError` naming the offending key for an unknown method, an unknown
-    option or an out-of-range value.
-    """
-    if method not in OPTIMIZER_DEFAULTS:
-        raise ConfigError(
-            f"optimizer.name: unknown optimizer {method!r}; allowed: "
-            f"{', '.join(OPTIMIZER_DEFAULTS)}"
-        )
-    defaults = OPTIMIZER_DEFAULTS[method]
-    out = dict(defaults)
-    for key, value in (options or {}).items():
-        if key not in defaults:
-            raise ConfigError(
-                f"optimizer.{key}: unknown option for {method!r}; allowed: {', '.join(defaults)}"
-            )
-        out[key] = value
-    for key, value in out.items():
-        if key == "weights":
-            ok = (
-                isinstance(value, list | tuple)
-                and len(value) > 0
-                and all(isinstance(w, int | float) and 0.0 <= w <= 1.0 for w in value)
-            )
-            if not ok:
-                raise ConfigError(
-                    "optimizer.weights: must be a non-empty list of numbers in [0, 1]"
-                )
-            out[key] = [float(w) for w in value]
-            continue
-        kind, low, inclusive, allow_none = _RANGES[key]
-        if value is None:
-            if allow_none:
-                continue
-            raise ConfigError(f"optimizer.{key}: must be a number, got null")
-        if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-            raise ConfigError(f"optimizer.{key}: must be a number, got {value!r}")
-        if kind == "int" and float(value) != int(value):
-            raise ConfigError(f"optimizer.{key}: must be an integer, got {value!r}")
-        bad = value < low if inclusive else value <= low
-        if bad or not math.isfinite(float(value)):
-            rel = ">=" if inclusive else ">"
-            raise ConfigError(f"optimizer.{key}: must be {rel} {low}, got {value!r}")
-        out[key] = int(value) if kind == "int" else float(value)
-    return out
+__all__ = [
+    "GRADIENT_METHODS",
+    "OPTIMIZER_DEFAULTS",
+    "OptimizerResult",
+    "minimize",
+    "validate_options",
+]
 
 
 @dataclass
