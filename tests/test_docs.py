@@ -21,7 +21,9 @@ def _walk(schema: dict, path: str = ""):
 
 def test_every_schema_key_is_documented_and_described():
     for dotted, name, sub in _walk(load_schema()):
-        assert f"`{name}`" in README or f"`{dotted}`" in README, f"{dotted} missing from config/README.md"
+        assert f"`{name}`" in README or f"`{dotted}`" in README, (
+            f"{dotted} missing from config/README.md"
+        )
         assert sub.get("description"), f"{dotted} has no description in the schema"
 
 

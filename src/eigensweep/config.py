@@ -120,7 +120,9 @@ def validate_config(raw: Any, source: str = "config") -> dict:
                 for optimizer in methods["optimizer"]:
                     for estimator in methods["estimator"]:
                         try:
-                            check_combination(ansatz, taper, mapping, optimizer=optimizer, estimator=estimator)
+                            check_combination(
+                                ansatz, taper, mapping, optimizer=optimizer, estimator=estimator
+                            )
                         except ConfigError as exc:
                             raise ConfigError(
                                 f"{source}: methods.ansatz[{ia}] with taper {str(taper).lower()}, {mapping}, "
