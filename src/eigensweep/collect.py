@@ -30,6 +30,7 @@ SUMMARY_COLUMNS = [
     "molecule",
     "point",
     "basis",
+    "unit",
     "charge",
     "multiplicity",
     "mapping",
@@ -179,15 +180,25 @@ def plot_molecule(rows: list[dict], folder: str | Path, accuracy_mha: float = 1.
         if np.isfinite(y).any():
             ax.plot(x, y, style, lw=1.2, label=lab)
     methods = list(dict.fromkeys(_method_of(r) for r in rows))
-    for m in methods:
+    markers = "os^Dv<>ph*"
+    for im, m in enumerate(methods):
         sel = {r["point"]: r for r in rows if _method_of(r) == m}
         xs = [xv for xv, p in zip(x, points, strict=True) if p in sel]
         ys = [float(sel[p]["energy"]) for p in points if p in sel]
         es = [float(sel[p]["energy_stderr"] or 0.0) for p in points if p in sel]
+        # distinct open markers, shrinking, so coinciding results stay visible
         ax.errorbar(
-            xs, ys, yerr=es if any(es) else None, fmt="o", ms=4, capsize=2, label=f"VQE {m}"
+            xs,
+            ys,
+            yerr=es if any(es) else None,
+            fmt=markers[im % len(markers)],
+            ms=max(3.0, 8.0 - 1.2 * im),
+            mfc="none",
+            capsize=2,
+            label=f"VQE {m}",
         )
-    ax.set_xlabel(f"{xname} ({'scan value, unit as in config' if xname != 'point' else 'index'})")
+    unit = {"angstrom": "Å", "bohr": "bohr"}.get(str(rows[0].get("unit", "")), "as in config")
+    ax.set_xlabel(f"{xname} ({unit if xname != 'point' else 'index'})")
     ax.set_ylabel("energy (hartree)")
     ax.set_title(f"{name}: VQE and classical references ({rows[0]['basis']})")
     ax.legend(fontsize=7)
@@ -199,12 +210,19 @@ def plot_molecule(rows: list[dict], folder: str | Path, accuracy_mha: float = 1.
 
     fig, ax = plt.subplots(figsize=(7, 4))
     ax.axhspan(0, accuracy_mha, color="tab:green", alpha=0.15, label=f"{accuracy_mha} mHa band")
-    for m in methods:
+    for im, m in enumerate(methods):
         sel = {r["point"]: r for r in rows if _method_of(r) == m}
         xs = [xv for xv, p in zip(x, points, strict=True) if p in sel]
         ys = [max(float(sel[p]["error_mha"]), 1e-7) for p in points if p in sel]
-        ax.semilogy(xs, ys, "o-", ms=4, label=m)
-    ax.set_xlabel(xname)
+        ax.semilogy(
+            xs,
+            ys,
+            "-" + markers[im % len(markers)],
+            ms=max(3.0, 8.0 - 1.2 * im),
+            mfc="none",
+            label=m,
+        )
+    ax.set_xlabel(f"{xname} ({unit if xname != 'point' else 'index'})")
     ax.set_ylabel("E(VQE) - E(exact) (mHa)")
     ax.set_title(f"{name}: error against the exact sector energy")
     ax.legend(fontsize=7)

@@ -29,7 +29,7 @@ STAGE_VERSIONS: dict[str, int] = {
     "hamiltonian": 1,
     "taper": 1,
     "optimize": 1,
-    "export": 1,
+    "export": 2,
     "reconcile": 1,
 }
 
@@ -254,6 +254,7 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
                         "point": point_label(point),
                         **{f"scan_{k}": v for k, v in point.items()},
                         "basis": mol["basis"].lower(),
+                        "unit": mol["unit"],
                         "charge": mol["charge"],
                         "multiplicity": mol["multiplicity"],
                         "mapping": mapping,

@@ -260,18 +260,21 @@ def device_circuit(opt_meta: dict, params: np.ndarray, tap, mapping: str):
 
     Untapered: the ansatz's own circuit. Tapered: each Pauli rotation of the ansatz is carried
     through the tapering Clifford and sector projection (Bravyi et al. 2017, arXiv:1701.08213),
-    which is exact for rotations that commute with the Z2 generators; rotations with a zero
-    angle are dropped first (symmetry-forbidden excitations stay at zero by symmetry).
+    which is exact for rotations that commute with the Z2 generators. Rotations with a zero
+    angle (|angle| < 1e-12, e.g. symmetry-forbidden excitations, which stay at zero by
+    symmetry) are dropped in both cases: they are identities and would only add CNOTs.
     """
     from .device import circuit_from_rotations
     from .qubit import PauliSum
     from .vqe.ansatz import circuit_from_meta, rotations_from_meta
 
-    if tap.generators.n_terms == 0:
-        return circuit_from_meta(opt_meta, params, mapping)
     if opt_meta.get("name") == "hardware_efficient" or "reference_bits" in opt_meta:
-        # qubit-space ansatz optimized directly on the tapered Hamiltonian
+        # qubit-space ansatz, already on the problem's qubits (tapered or not)
         return circuit_from_meta(opt_meta, params, mapping)
+    if tap.generators.n_terms == 0:
+        ref, rotations = rotations_from_meta(opt_meta, params, mapping)
+        kept = [(x, z, a) for x, z, a in rotations if abs(a) >= 1e-12]
+        return circuit_from_rotations(ref, kept)
     _, rotations = rotations_from_meta(opt_meta, params, mapping)
     tapered = []
     for x, z, angle in rotations:
