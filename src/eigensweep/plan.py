@@ -235,7 +235,7 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
             prev_int = k_int
             for ic, (mapping, taper, ansatz, optimizer, estimator) in enumerate(combos):
                 k_ham = add("hamiltonian", {"mapping": mapping}, {"integrals": k_int})
-                k_tap = add("taper", {"taper": taper}, {"hamiltonian": k_ham})
+                k_tap = add("taper", {"taper": taper}, {"hamiltonian": k_ham, "integrals": k_int})
                 opt_params = {
                     "ansatz": ansatz,
                     "optimizer": optimizer,

@@ -86,6 +86,43 @@ def run_integrals(
     )
 
 
+#: Largest qubit count for which stages diagonalise the qubit Hamiltonian in its sector.
+SECTOR_CHECK_MAX_QUBITS = 20
+
+
+def sector_check(ham, ints, mapping: str, key: str, taper=None) -> dict:
+    """Lowest qubit-Hamiltonian eigenvalue in the (N, S_z = S) sector vs the integrals' exact energy.
+
+    The qubit sector holds every total spin S' >= S, so its lowest eigenvalue can only be at or
+    below the exact energy of the requested spin state. Above it means the mapping (or
+    tapering) lost the state: that is an error. Below it means a state of another total spin
+    lies lower with the same N and S_z; that is recorded as a note, not an error.
+    """
+    from .qubit import sector_ground_energy
+
+    exact = ints.references.get("casci")
+    if ham.n_qubits > SECTOR_CHECK_MAX_QUBITS or exact is None or not math.isfinite(float(exact)):
+        return {
+            "energy_sector_qubit": None,
+            "sector_check": "skipped (too large or no exact reference)",
+        }
+    n_el = int(sum(ints.nelec))
+    sz = 0.5 * (int(ints.nelec[0]) - int(ints.nelec[1]))
+    e = float(sector_ground_energy(ham, n_electrons=n_el, sz=sz, mapping=mapping, taper=taper))
+    if e > float(exact) + 1e-6:
+        raise StageFileError(
+            f"{key}: the {mapping} qubit Hamiltonian's lowest energy in the N={n_el}, S_z={sz:g} sector "
+            f"({e:.10f} Eh) lies above the exact energy {float(exact):.10f} Eh; the mapping lost the "
+            "state, please report this"
+        )
+    note = (
+        "agrees with the exact energy"
+        if e > float(exact) - 1e-6
+        else ("a state of another total spin lies lower in this N, S_z sector")
+    )
+    return {"energy_sector_qubit": e, "sector_check": note}
+
+
 def run_hamiltonian(
     node: Node, inputs: dict[str, str], output: str, progress: Progress = None
 ) -> None:
@@ -109,6 +146,7 @@ def run_hamiltonian(
         ref = reference_bits(ints.nelec, ints.norb, mapping)
         groups = qwc_groups(ham)
         shots = shots_for_precision(ham, groups=groups)
+        check = sector_check(ham, ints, mapping, node.key)
     arrays = {
         **ham.to_store("ham_"),
         **num.to_store("num_"),
@@ -122,6 +160,7 @@ def run_hamiltonian(
         "one_norm": float(ham.one_norm),
         "n_qwc_groups": len(groups),
         "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
+        **check,
         "nelec": list(ints.nelec),
         "norb": ints.norb,
     }
@@ -153,6 +192,13 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         groups = qwc_groups(tham)
         state = basis_state(res.reference_bits) if tham.n_qubits <= 22 else None
         shots = shots_for_precision(tham, groups=groups, state=state)
+        check = sector_check(
+            tham,
+            load_integrals(inputs["integrals"]),
+            sd.meta["mapping"],
+            node.key,
+            taper=res if node.params["taper"] else None,
+        )
     arrays = res.to_store()
     meta = {
         "mapping": sd.meta["mapping"],
@@ -166,6 +212,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         "one_norm": float(tham.one_norm_nonidentity),
         "n_qwc_groups": len(groups),
         "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
+        **check,
         "shots_variance_at_reference": (
             int(shots["shots_variance"]) if shots.get("shots_variance") is not None else None
         ),
