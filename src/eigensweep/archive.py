@@ -82,6 +82,8 @@ def environment_lock() -> str:
 def stage_closure(plan: Plan) -> list[Node]:
     """Every stage node the summary depends on: optimize jobs and all ancestors."""
     todo = [row["key"] for row in plan.rows]
+    for ex in plan.exports:
+        todo += [k for k in (ex.get("key_export"), ex.get("key_reconcile")) if k]
     seen: dict[str, Node] = {}
     while todo:
         key = todo.pop()
@@ -186,6 +188,15 @@ def make_archive(
         f = results / node.stage / f"{node.key}.h5"
         read_stage(f, stage=node.stage, key=node.key)  # refuse to pack a damaged file
         members[f"results/{node.stage}/{node.key}.h5"] = f
+    for ex in plan.exports:
+        job = results / "export" / str(ex.get("key_export"))
+        for f in sorted(job.glob("*")) if job.is_dir() else []:
+            members[f"results/export/{job.name}/{f.name}"] = f
+        counts = results / "returned" / f"{ex.get('key_export')}.json"
+        if counts.is_file():
+            members[f"results/returned/{counts.name}"] = counts
+    if (results / "device_summary.csv").is_file():
+        members["results/device_summary.csv"] = results / "device_summary.csv"
     summary = results / "summary.csv"
     if not summary.is_file():
         raise EigensweepError(
@@ -246,8 +257,9 @@ def safe_extract(archive: str | Path, dest: str | Path) -> Path:
     try:
         tar = tarfile.open(archive, "r:*")
     except (tarfile.TarError, OSError) as exc:
+        reason = str(exc).splitlines()[0].rstrip(":") if str(exc) else type(exc).__name__
         raise EigensweepError(
-            f"{archive}: not a readable tar.gz archive ({exc}); check the file"
+            f"{archive}: not a readable tar.gz archive ({reason}); check the file"
         ) from None
     with tar:
         for m in tar.getmembers():

@@ -357,7 +357,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument(
         "--stage",
         default="hamiltonian",
-        choices=["integrals", "hamiltonian", "taper", "optimize", "none"],
+        choices=["integrals", "hamiltonian", "taper", "optimize", "export", "reconcile", "none"],
         help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)",
     )
     p.set_defaults(func=cmd_verify)
