@@ -316,7 +316,9 @@ def run_optimize(
     seed = int(seed)
     name = a_cfg["name"]
     method = o_cfg["name"]
-    opt_options = {k: v for k, v in o_cfg.items() if k != "name"}
+    opt_options = {k: v for k, v in o_cfg.items() if k not in ("name", "restarts", "restart_scale")}
+    restarts = int(o_cfg.get("restarts", 0))
+    restart_scale = float(o_cfg.get("restart_scale", 0.1))
     sampled = e_cfg["name"] != "exact"
     h1e = np.asarray(h1e, dtype=float)
     eri = np.asarray(eri, dtype=float)
@@ -451,55 +453,79 @@ def run_optimize(
             raise ConfigError(
                 f"initial_params: has {x0.size} values, the ansatz {ans.n_params} parameters"
             )
+        # random restarts: extra starts x0 + restart_scale * N(0, 1), seeded by seed + r; the
+        # best run wins (lowest exact energy, or lowest fresh-shot estimate with shots)
         counter = [0]
-        if est is not None:
-            last_shots = [0]
+        last_shots = [0]
 
-            def objective(theta: np.ndarray) -> float:
-                estimate = est.estimate(qubit_state(theta))
-                value = estimate.value
-                last_shots[0] = estimate.shots
-                if progress is not None:
-                    progress(counter[0], value)
-                counter[0] += 1
-                return value
+        def objective(theta: np.ndarray) -> float:
+            estimate = est.estimate(qubit_state(theta))
+            last_shots[0] = estimate.shots
+            if progress is not None:
+                progress(counter[0], estimate.value)
+            counter[0] += 1
+            return estimate.value
 
-            res = minimize(
-                objective,
-                x0,
-                method=method,
-                options=opt_options,
-                seed=seed,
-                shots=lambda: last_shots[0],
-            )
-        else:
+        def objective_grad(theta: np.ndarray) -> tuple[float, np.ndarray]:
+            e, g = ans.energy_and_gradient(theta)
+            if progress is not None:
+                progress(counter[0], e)
+            counter[0] += 1
+            return e, g
 
-            def objective_grad(theta: np.ndarray) -> tuple[float, np.ndarray]:
-                e, g = ans.energy_and_gradient(theta)
-                if progress is not None:
-                    progress(counter[0], e)
-                counter[0] += 1
-                return e, g
+        def objective_value(theta: np.ndarray) -> float:
+            e = ans.energy(theta)
+            if progress is not None:
+                progress(counter[0], e)
+            counter[0] += 1
+            return e
 
-            if method in GRADIENT_METHODS:
-                res = minimize(
-                    objective_grad, x0, method=method, options=opt_options, seed=seed, grad=True
+        def run_once(start: np.ndarray, run_seed: int):
+            if est is not None:
+                return minimize(
+                    objective,
+                    start,
+                    method=method,
+                    options=opt_options,
+                    seed=run_seed,
+                    shots=lambda: last_shots[0],
                 )
+            if method in GRADIENT_METHODS:
+                return minimize(
+                    objective_grad,
+                    start,
+                    method=method,
+                    options=opt_options,
+                    seed=run_seed,
+                    grad=True,
+                )
+            return minimize(
+                objective_value, start, method=method, options=opt_options, seed=run_seed
+            )
+
+        best = None
+        all_trace: list[dict] = []
+        for r in range(restarts + 1):
+            start = x0
+            if r:
+                start = x0 + restart_scale * np.random.default_rng(seed + r).standard_normal(
+                    x0.size
+                )
+            res = run_once(start, seed + r)
+            x_end = np.asarray(res.x, dtype=float)
+            if est is not None and restarts:
+                score = est.estimate(qubit_state(x_end)).value
             else:
-
-                def objective_value(theta: np.ndarray) -> float:
-                    e = ans.energy(theta)
-                    if progress is not None:
-                        progress(counter[0], e)
-                    counter[0] += 1
-                    return e
-
-                res = minimize(objective_value, x0, method=method, options=opt_options, seed=seed)
+                score = float(ans.energy(x_end))
+            all_trace += list(res.trace)
+            if best is None or score < best[0]:
+                best = (score, res)
+        res = best[1]
         params = np.asarray(res.x, dtype=float)
-        trace = res.trace
+        trace = all_trace
         n_iter = res.n_iterations
         converged = res.converged
-        message = res.message
+        message = res.message + (f"; best of {restarts + 1} starts" if restarts else "")
 
     # ------------------------------------------------------------- final evaluation
     e_exact_params = float(ans.energy(params))

@@ -53,18 +53,51 @@ FERMIONIC = ("uccsd", "kupccgsd", "adapt")
 """Ansätze built from fermionic excitations (``adapt`` unless its pool is ``qubit``)."""
 
 ANSATZ_DEFAULTS: dict[str, dict[str, Any]] = {
-    "uccsd": {"spin_adapted": False},
-    "kupccgsd": {"k": 1, "spin_adapted": False, "init_scale": 0.0},
-    "hardware_efficient": {"layers": 2, "rotations": "ry_rz", "init_scale": 0.1},
-    "adapt": {"pool": "fermionic_sd", "gradient_tolerance": 1e-3, "max_operators": 50},
+    "uccsd": {"restarts": 0, "restart_scale": 0.1, "spin_adapted": False},
+    "kupccgsd": {
+        "restarts": 0,
+        "restart_scale": 0.1,
+        "k": 1,
+        "spin_adapted": False,
+        "init_scale": 0.0,
+    },
+    "hardware_efficient": {
+        "restarts": 0,
+        "restart_scale": 0.1,
+        "layers": 2,
+        "rotations": "ry_rz",
+        "init_scale": 0.1,
+    },
+    "adapt": {
+        "restarts": 0,
+        "restart_scale": 0.1,
+        "pool": "fermionic_sd",
+        "gradient_tolerance": 1e-3,
+        "max_operators": 50,
+    },
 }
 
 OPTIMIZER_DEFAULTS: dict[str, dict[str, Any]] = {
-    "lbfgs": {"maxiter": 1000, "tol": 1e-8, "ftol": 1e-14, "maxcor": 20},
-    "bfgs": {"maxiter": 1000, "tol": 1e-6},
-    "cobyla": {"maxiter": 2000, "tol": 1e-6, "rhobeg": 0.1},
-    "nelder_mead": {"maxiter": 5000, "tol": 1e-8, "initial_step": 0.1},
+    "lbfgs": {
+        "restarts": 0,
+        "restart_scale": 0.1,
+        "maxiter": 1000,
+        "tol": 1e-8,
+        "ftol": 1e-14,
+        "maxcor": 20,
+    },
+    "bfgs": {"restarts": 0, "restart_scale": 0.1, "maxiter": 1000, "tol": 1e-6},
+    "cobyla": {"restarts": 0, "restart_scale": 0.1, "maxiter": 2000, "tol": 1e-6, "rhobeg": 0.1},
+    "nelder_mead": {
+        "restarts": 0,
+        "restart_scale": 0.1,
+        "maxiter": 5000,
+        "tol": 1e-8,
+        "initial_step": 0.1,
+    },
     "spsa": {
+        "restarts": 0,
+        "restart_scale": 0.1,
         "maxiter": 300,
         "a": None,
         "c": 0.1,
@@ -76,6 +109,8 @@ OPTIMIZER_DEFAULTS: dict[str, dict[str, Any]] = {
         "average_last": 1,
     },
     "rbf_surrogate": {
+        "restarts": 0,
+        "restart_scale": 0.1,
         "maxiter": 200,
         "tol": 1e-4,
         "radius": 0.5,
@@ -108,6 +143,8 @@ ESTIMATOR_DEFAULTS: dict[str, dict[str, Any]] = {
 
 # (kind, lower bound, lower-inclusive, allow None)
 _RANGES: dict[str, tuple[str, float, bool, bool]] = {
+    "restarts": ("int", 0, True, False),
+    "restart_scale": ("float", 0.0, False, False),
     "maxiter": ("int", 1, True, False),
     "tol": ("float", 0.0, True, False),
     "ftol": ("float", 0.0, True, False),
