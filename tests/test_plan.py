@@ -137,3 +137,28 @@ def test_placeholder_errors(tiny_raw, mutate, fragment):
     with pytest.raises(ConfigError, match=fragment) as ei:
         build_plan(validate_config(tiny_raw))
     assert "\n" not in str(ei.value) and "molecules[0] (h2)" in str(ei.value)
+
+
+def test_warm_start_chains_optimize_jobs_along_the_scan(tiny_raw):
+    tiny_raw["methods"]["warm_start"] = True
+    plan = build_plan(validate_config(tiny_raw))
+    h2 = [plan.nodes[r["key"]] for r in plan.rows if r["molecule"] == "h2"]
+    assert "warm" not in h2[0].parents
+    assert h2[1].parents["warm"] == h2[0].key
+
+
+def test_resource_requests_grow_with_problem_size():
+    from eigensweep.resources import stage_resources
+
+    cfg = validate_config(
+        {
+            "molecules": [
+                {"name": "h2", "atoms": "H 0 0 0; H 0 0 0.74"},
+                {"name": "n2", "atoms": "N 0 0 0; N 0 0 1.1", "basis": "6-31g"},
+            ]
+        }
+    )
+    plan = build_plan(cfg)
+    opt = {r["molecule"]: plan.nodes[r["key"]] for r in plan.rows}
+    small, big = stage_resources(opt["h2"], plan), stage_resources(opt["n2"], plan)
+    assert big["mem_mb"] > small["mem_mb"] and big["runtime"] > small["runtime"]
