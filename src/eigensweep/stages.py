@@ -26,6 +26,13 @@ def _say(progress: Progress, msg: str) -> None:
         progress(msg)
 
 
+def _write(node: Node, output: str, **fields) -> None:
+    """Write this node's stage file (stage, key, parameters and parents come from the node)."""
+    write_stage(
+        output, stage=node.stage, key=node.key, params=node.params, parents=node.parents, **fields
+    )
+
+
 def load_integrals(path: str | Path):
     """The :class:`~eigensweep.chem.IntegralsResult` stored in an integrals stage file."""
     from .chem import IntegralsResult
@@ -73,12 +80,9 @@ def run_integrals(
         progress,
         f"integrals {node.key}: HF {res.references['hf']:.8f} Eh, exact {res.references['casci']:.8f} Eh",
     )
-    write_stage(
+    _write(
+        node,
         output,
-        stage="integrals",
-        key=node.key,
-        params=p,
-        parents=node.parents,
         arrays=arrays,
         meta=meta,
         units={"h1e": "hartree", "eri": "hartree", "mo_energy": "hartree"},
@@ -165,12 +169,9 @@ def run_hamiltonian(
         "norb": ints.norb,
     }
     _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
-    write_stage(
+    _write(
+        node,
         output,
-        stage="hamiltonian",
-        key=node.key,
-        params=node.params,
-        parents=node.parents,
         arrays=arrays,
         meta=meta,
         wall_s=t.seconds,
@@ -218,12 +219,9 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         ),
     }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
-    write_stage(
+    _write(
+        node,
         output,
-        stage="taper",
-        key=node.key,
-        params=node.params,
-        parents=node.parents,
         arrays=arrays,
         meta=meta,
         wall_s=t.seconds,
@@ -281,12 +279,9 @@ def run_optimize(
         progress,
         f"optimize {node.key}: E = {res.energy:.8f} Eh after {res.n_evaluations} evaluations",
     )
-    write_stage(
+    _write(
+        node,
         output,
-        stage="optimize",
-        key=node.key,
-        params=p,
-        parents=node.parents,
         arrays=arrays,
         meta=meta,
         units={"trace_energy": "hartree", "params": "radian"},
@@ -397,12 +392,9 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
         progress,
         f"export {node.key}: {len(manifest['circuits'])} circuits on {circ.n_qubits} qubits in {folder}",
     )
-    write_stage(
+    _write(
+        node,
         output,
-        stage="export",
-        key=node.key,
-        params=p,
-        parents=node.parents,
         arrays={},
         meta=meta,
         wall_s=t.seconds,
@@ -459,12 +451,9 @@ def run_reconcile(
     arrays, meta = res.to_store()
     meta = {**meta, "counts": counts, "comparison_table": res.comparison_table()}
     _say(progress, f"reconcile {node.key}: raw {res.raw.value:.6f} Eh")
-    write_stage(
+    _write(
+        node,
         output,
-        stage="reconcile",
-        key=node.key,
-        params=p,
-        parents=node.parents,
         arrays=arrays,
         meta=meta,
         wall_s=t.seconds,
