@@ -169,13 +169,7 @@ def run_hamiltonian(
         "norb": ints.norb,
     }
     _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
-    _write(
-        node,
-        output,
-        arrays=arrays,
-        meta=meta,
-        wall_s=t.seconds,
-    )
+    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
 
 
 def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
@@ -219,13 +213,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         ),
     }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
-    _write(
-        node,
-        output,
-        arrays=arrays,
-        meta=meta,
-        wall_s=t.seconds,
-    )
+    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
 
 
 def run_optimize(
@@ -392,13 +380,7 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
         progress,
         f"export {node.key}: {len(manifest['circuits'])} circuits on {circ.n_qubits} qubits in {folder}",
     )
-    _write(
-        node,
-        output,
-        arrays={},
-        meta=meta,
-        wall_s=t.seconds,
-    )
+    _write(node, output, arrays={}, meta=meta, wall_s=t.seconds)
 
 
 def run_reconcile(
@@ -451,13 +433,7 @@ def run_reconcile(
     arrays, meta = res.to_store()
     meta = {**meta, "counts": counts, "comparison_table": res.comparison_table()}
     _say(progress, f"reconcile {node.key}: raw {res.raw.value:.6f} Eh")
-    _write(
-        node,
-        output,
-        arrays=arrays,
-        meta=meta,
-        wall_s=t.seconds,
-    )
+    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
 
 
 STAGE_ACTIONS["export"] = run_export
