@@ -33,6 +33,15 @@ STAGE_VERSIONS: dict[str, int] = {
     "reconcile": 1,
 }
 
+#: Integrals-node parameters that define the molecule itself (what chemistry checks need).
+MOLECULE_KEYS = ("atoms", "basis", "charge", "multiplicity", "unit", "frozen_core", "active")
+
+
+def molecule_kwargs(params: dict) -> dict:
+    """The molecule-defining subset of an integrals node's parameters, as keyword arguments."""
+    return {k: params[k] for k in MOLECULE_KEYS}
+
+
 _PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 
 

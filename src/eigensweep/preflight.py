@@ -8,7 +8,7 @@ point that cannot run. Messages name the molecule and point.
 
 from __future__ import annotations
 
-from .plan import Plan
+from .plan import Plan, molecule_kwargs
 
 
 def check_plan_chemistry(plan: Plan) -> None:
@@ -19,14 +19,6 @@ def check_plan_chemistry(plan: Plan) -> None:
     for row in plan.rows:
         where.setdefault(row["key_integrals"], f"molecule {row['molecule']} point {row['point']}")
     for node in plan.by_stage("integrals"):
-        p = node.params
         check_molecule(
-            atoms=p["atoms"],
-            basis=p["basis"],
-            charge=p["charge"],
-            multiplicity=p["multiplicity"],
-            unit=p["unit"],
-            frozen_core=p["frozen_core"],
-            active=p["active"],
-            where=where.get(node.key, f"integrals {node.key}"),
+            **molecule_kwargs(node.params), where=where.get(node.key, f"integrals {node.key}")
         )

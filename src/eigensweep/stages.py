@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import StageFileError
-from .plan import Node
+from .plan import Node, molecule_kwargs
 from .store import Timer, read_stage, write_stage
 
 Progress = Callable[[str], None] | None
@@ -62,14 +62,8 @@ def run_integrals(
         guess = (prev.mo_coeff, prev.mo_occ)
     with Timer() as t:
         res = compute_integrals(
-            atoms=p["atoms"],
-            basis=p["basis"],
-            charge=p["charge"],
-            multiplicity=p["multiplicity"],
-            unit=p["unit"],
+            **molecule_kwargs(p),
             symmetry=p["symmetry"],
-            frozen_core=p["frozen_core"],
-            active=p["active"],
             fci_max_determinants=p["fci_max_determinants"],
             stability=p["stability"],
             guess=guess,
