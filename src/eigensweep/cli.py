@@ -15,6 +15,7 @@ import time
 from pathlib import Path
 
 from .errors import EigensweepError
+from .stage_table import STAGE_NAMES
 
 DEFAULT_CONFIG = "config/config.yaml"
 
@@ -66,7 +67,7 @@ def cmd_plan(args) -> int:
             lines.append(f"{node.stage:<12} {node.key}  {st}")
     print(f"plan for {path}: {len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs")
     print(f"{'stage':<12} {'total':>6} {'cached':>7} {'pending':>8} {'damaged':>8}")
-    for stage in ("integrals", "hamiltonian", "taper", "optimize", "export", "reconcile"):
+    for stage in STAGE_NAMES:
         c = counts.get(stage, {})
         total = sum(c.values())
         if not total:
@@ -357,7 +358,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument(
         "--stage",
         default="hamiltonian",
-        choices=["integrals", "hamiltonian", "taper", "optimize", "export", "reconcile", "none"],
+        choices=[*STAGE_NAMES, "none"],
         help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)",
     )
     p.set_defaults(func=cmd_verify)

@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
-STAGES = ("integrals", "hamiltonian", "taper", "optimize")
+from .stage_table import STAGE_NAMES, stage_path
+
+STAGES = STAGE_NAMES
 
 
 def repo_root() -> Path:
@@ -24,5 +26,5 @@ def schema_path() -> Path:
 
 
 def stage_file(stage: str, key: str, results: str | Path = "results") -> Path:
-    """Path of one stage file: ``results/<stage>/<key>.h5``."""
-    return Path(results) / stage / f"{key}.h5"
+    """Path of one stage file: ``results/<stage>/<key>.h5`` (from the stage table)."""
+    return stage_path(stage, key, results)

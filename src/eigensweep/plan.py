@@ -13,25 +13,20 @@ from __future__ import annotations
 
 import hashlib
 import itertools
-import json
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
 from .errors import ConfigError
-
-#: Stage format versions. Bump one when its stored content changes meaning: new keys follow.
-STAGE_VERSIONS: dict[str, int] = {
-    "integrals": 1,
-    "hamiltonian": 1,
-    "taper": 1,
-    "optimize": 1,
-    "export": 2,
-    "reconcile": 1,
-}
+from .stage_table import (  # noqa: F401 (STAGE_VERSIONS, canonical_json re-exported)
+    STAGE_VERSIONS,
+    canonical_json,
+    parent_paths,
+    returned_path,
+    stage_key,
+)
 
 #: Integrals-node parameters that define the molecule itself (what chemistry checks need).
 MOLECULE_KEYS = ("atoms", "basis", "charge", "multiplicity", "unit", "frozen_core", "active")
@@ -79,29 +74,6 @@ class Plan:
             return self.nodes[key]
         except KeyError:
             raise ConfigError(f"stage key {key} is not part of this sweep's plan") from None
-
-
-def canonical_json(obj: Any) -> str:
-    """Deterministic JSON: sorted keys, no spaces, numpy scalars converted, floats as repr."""
-    return json.dumps(obj, sort_keys=True, separators=(",", ":"), default=_json_default)
-
-
-def _json_default(o: Any) -> Any:
-    if isinstance(o, np.integer):
-        return int(o)
-    if isinstance(o, np.floating):
-        return float(o)
-    if isinstance(o, np.ndarray):
-        return o.tolist()
-    raise TypeError(f"cannot serialise {type(o).__name__}")
-
-
-def stage_key(stage: str, params: dict, parents: dict[str, str]) -> str:
-    """First 16 hex digits of SHA-256 over the canonical JSON of the stage's identity."""
-    blob = canonical_json(
-        {"stage": stage, "version": STAGE_VERSIONS[stage], "params": params, "parents": parents}
-    )
-    return hashlib.sha256(blob.encode()).hexdigest()[:16]
 
 
 def _format_value(v: float) -> str:
@@ -324,7 +296,7 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
                     {k: dev[k] for k in ("readout_error", "depolarizing_1q", "depolarizing_2q")}
                 )
             else:
-                counts = results_dir / "returned" / f"{k_exp}.json"
+                counts = returned_path(k_exp, results_dir)
                 if not counts.is_file():
                     out.append({**row, "key_export": k_exp, "key_reconcile": None})
                     continue
@@ -337,20 +309,5 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
 
 def parent_files(node: Node, results: str = "results") -> dict[str, str]:
     """Input files of a node by role (``guess`` and ``warm`` point at sibling stage files;
-    ``counts`` at imported device results)."""
-    stage_of = {
-        "integrals": "integrals",
-        "hamiltonian": "hamiltonian",
-        "taper": "taper",
-        "guess": "integrals",
-        "warm": "optimize",
-        "optimize": "optimize",
-        "export": "export",
-    }
-    out = {}
-    for role, key in node.parents.items():
-        if role == "counts":
-            out[role] = f"{results}/returned/{key}.json"
-        else:
-            out[role] = f"{results}/{stage_of[role]}/{key}.h5"
-    return out
+    ``counts`` at imported device results); roles and their stages come from the stage table."""
+    return parent_paths(node.stage, node.parents, results)

@@ -16,6 +16,7 @@ import numpy as np
 
 from .errors import StageFileError
 from .plan import Node, molecule_kwargs
+from .stage_table import STAGES
 from .store import Timer, read_stage, write_stage
 
 Progress = Callable[[str], None] | None
@@ -271,14 +272,6 @@ def run_optimize(
     )
 
 
-STAGE_ACTIONS = {
-    "integrals": run_integrals,
-    "hamiltonian": run_hamiltonian,
-    "taper": run_taper,
-    "optimize": run_optimize,
-}
-
-
 def device_circuit(opt_meta: dict, params: np.ndarray, tap, mapping: str):
     """The optimized state's circuit on the qubits of the (possibly tapered) Hamiltonian.
 
@@ -430,5 +423,5 @@ def run_reconcile(
     _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
 
 
-STAGE_ACTIONS["export"] = run_export
-STAGE_ACTIONS["reconcile"] = run_reconcile
+#: stage name -> its action, as named in the stage table
+STAGE_ACTIONS = {s.name: globals()[s.action] for s in STAGES}

@@ -33,7 +33,7 @@ import numpy as np
 
 from . import __version__
 from .errors import StageFileError
-from .plan import STAGE_VERSIONS, canonical_json
+from .stage_table import STAGE_VERSIONS, canonical_json
 
 FORMAT = "eigensweep-stage"
 FORMAT_VERSION = 1
