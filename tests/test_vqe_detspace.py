@@ -13,6 +13,7 @@ from scipy.sparse.linalg import expm_multiply
 sys.path.insert(0, str(Path(__file__).parent))
 from test_vqe_common import molecule, space_of  # noqa: E402
 
+from eigensweep.circuit import circuit_from_rotations  # noqa: E402
 from eigensweep.qubit import statevector as sv  # noqa: E402
 from eigensweep.vqe import (  # noqa: E402
     UCCSD,
@@ -23,7 +24,6 @@ from eigensweep.vqe import (  # noqa: E402
     molecular_pauli_sum,
     pool_terms,
     reference_bits,
-    rotations_to_circuit,
     to_qubit_state,
 )
 
@@ -127,7 +127,7 @@ def test_compiled_circuit_matches_rotations_and_costs():
     ansatz = UCCSD(space_of("H2"))
     theta = np.array([0.11, -0.07, 0.2])
     ref, rots = ansatz.pauli_rotations(theta)
-    circ = rotations_to_circuit(ref, rots, ansatz.n_qubits)
+    circ = circuit_from_rotations(ref, rots)
     psi = sv.simulate(circ)
     target = ansatz.qubit_state(theta)
     overlap = abs(np.vdot(target, psi))

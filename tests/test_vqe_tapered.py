@@ -302,4 +302,6 @@ def test_determinant_space_jw_path_needs_no_openfermion():
         "print(r.cnot_count, 'openfermion' in sys.modules)"
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert out.stdout.split() == ["64", "False"]
+    # the double excitation's 8 JW strings of weight 4 at 2(w - 1) CNOTs each (Nielsen &
+    # Chuang, section 4.7.3); the singles stay at zero by symmetry and are not compiled
+    assert out.stdout.split() == ["48", "False"]

@@ -272,68 +272,23 @@ def run_optimize(
     )
 
 
-def device_circuit(opt_meta: dict, params: np.ndarray, tap, mapping: str):
-    """The optimized state's circuit on the qubits of the (possibly tapered) Hamiltonian.
-
-    Untapered: the ansatz's own circuit. Tapered: each Pauli rotation of the ansatz is carried
-    through the tapering Clifford and sector projection (Bravyi et al. 2017, arXiv:1701.08213),
-    which is exact for rotations that commute with the Z2 generators. Rotations with a zero
-    angle (|angle| < 1e-12, e.g. symmetry-forbidden excitations, which stay at zero by
-    symmetry) are dropped in both cases: they are identities and would only add CNOTs.
-    """
-    from .device import circuit_from_rotations
-    from .qubit import PauliSum
-    from .vqe.ansatz import circuit_from_meta, rotations_from_meta
-
-    if opt_meta.get("name") == "hardware_efficient" or "reference_bits" in opt_meta:
-        # qubit-space ansatz, already on the problem's qubits (tapered or not)
-        return circuit_from_meta(opt_meta, params, mapping)
-    if tap.generators.n_terms == 0:
-        ref, rotations = rotations_from_meta(opt_meta, params, mapping)
-        kept = [(x, z, a) for x, z, a in rotations if abs(a) >= 1e-12]
-        return circuit_from_rotations(ref, kept)
-    _, rotations = rotations_from_meta(opt_meta, params, mapping)
-    tapered = []
-    for x, z, angle in rotations:
-        if abs(angle) < 1e-12:
-            continue
-        term = PauliSum(
-            x=x[None, :].copy(), z=z[None, :].copy(), coeffs=np.ones(1), n_qubits=x.size
-        )
-        try:
-            t = tap.taper_operator(term)
-        except ValueError:
-            raise StageFileError(
-                "export: a non-zero ansatz rotation breaks a Z2 symmetry used for tapering; "
-                "export the untapered result (select tapered: false)"
-            ) from None
-        if t.n_terms != 1:
-            raise StageFileError(
-                "export: tapering a rotation gave more than one Pauli term; this is a bug"
-            )
-        tapered.append((t.x[0], t.z[0], angle * float(t.coeffs[0])))
-    return circuit_from_rotations(np.asarray(tap.reference_bits, dtype=np.uint8), tapered)
-
-
 def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
     """Device jobs for one optimized point: OpenQASM 3/2 circuits, manifest and job summary."""
-    from .device import build_job, write_job
-    from .qubit.statevector import expectation, simulate
+    from .device import build_job, state_circuit, write_job
 
     p = node.params
     opt = read_stage(inputs["optimize"], stage="optimize")
     tap, tap_sd = load_taper(inputs["taper"])
     mapping = tap_sd.meta["mapping"]
+    ham = tap.hamiltonian
     with Timer() as t:
-        circ = device_circuit(opt.meta["ansatz_meta"], opt.arrays["params"], tap, mapping)
-        ham = tap.hamiltonian
-        e_circ = expectation(simulate(circ), ham)
-        e_opt = float(opt.meta["energy_exact_at_params"])
-        if abs(e_circ - e_opt) > 1e-6:
-            raise StageFileError(
-                f"export {node.key}: the compiled circuit gives {e_circ:.8f} Eh but the optimizer's state "
-                f"{e_opt:.8f} Eh; refusing to export an inconsistent job"
-            )
+        circ, e_circ = state_circuit(
+            opt.meta["ansatz_meta"],
+            opt.arrays["params"],
+            mapping,
+            ham,
+            float(opt.meta["energy_exact_at_params"]),
+        )
         job = build_job(
             circ,
             ham,

@@ -13,6 +13,7 @@ from eigensweep.device.compile import (
     fold_circuit,
     group_basis,
     measurement_circuit,
+    state_circuit,
     unfold_circuit,
 )
 from eigensweep.device.counts import (
@@ -79,6 +80,7 @@ __all__ = [
     "reconcile",
     "run_synthetic_device",
     "save_hdf5",
+    "state_circuit",
     "statevector",
     "to_qasm2",
     "to_qasm3",

@@ -1,16 +1,11 @@
-"""Compile variational states into hardware gate lists and fold them for noise scaling.
+"""Measurement basis changes and unitary folding of device circuits.
 
-Only the gates ``x, h, s, sdg, rx, ry, rz, cx`` are emitted by :func:`circuit_from_rotations`
-and :func:`measurement_circuit`, so every exported circuit uses the small common subset of
-OpenQASM's standard gate library.
-
-Pauli exponentials are compiled in the textbook way: rotate every qubit of the string into the
-Z basis, collect the parity on the last qubit with a CNOT ladder, apply ``rz(angle)`` and undo
-the ladder and the basis change. For a single qubit,
-
-* ``X = H Z H``, so the basis change is ``h`` before and after;
-* ``Y = (H Sdg)^dagger Z (H Sdg)``, i.e. apply ``sdg`` then ``h`` before, and ``h`` then ``s``
-  after (because ``Sdg Y S = X`` and ``H X H = Z``).
+The state-preparation circuit comes from eigensweep's one Pauli-rotation compiler,
+:func:`eigensweep.circuit.circuit_from_rotations` (re-exported here), the same one that gives the
+optimize stage's reported CNOT count and depth. Only the gates ``x, h, s, sdg, rx, ry, rz, cx``
+are emitted by it and by :func:`measurement_circuit`, so every exported circuit uses the small
+common subset of OpenQASM's standard gate library. A qubit-wise-commuting group is measured in
+the Z basis after ``h`` (X) or ``sdg`` then ``h`` (Y), because ``Sdg Y S = X`` and ``H X H = Z``.
 
 Global unitary folding ``G -> G (G^dagger G)^k`` with odd scale ``2k + 1`` follows
 Giurgica-Tiron, Hindy, LaRose, Mari, Zeng, "Digital zero noise extrapolation for quantum
@@ -19,80 +14,18 @@ error mitigation", IEEE QCE 2020 (arXiv:2005.10921).
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable
 
-import numpy as np
-
-from eigensweep.circuit import Circuit
+from eigensweep.circuit import Circuit, circuit_from_rotations
 
 __all__ = [
     "circuit_from_rotations",
     "group_basis",
     "measurement_circuit",
     "fold_circuit",
+    "state_circuit",
     "unfold_circuit",
 ]
-
-
-def _bool_row(row, n: int, what: str) -> np.ndarray:
-    arr = np.asarray(row).astype(bool).reshape(-1)
-    if arr.shape != (n,):
-        raise ValueError(f"{what} has {arr.size} entries, expected {n} (one per qubit)")
-    return arr
-
-
-def _append_pauli_rotation(circ: Circuit, x: np.ndarray, z: np.ndarray, angle: float) -> None:
-    """Append exp(-i angle/2 P) for the Pauli string with symplectic rows ``x``, ``z``."""
-    support = [int(q) for q in np.flatnonzero(x | z)]
-    if not support:
-        return  # exp(-i angle/2 I) is a global phase: nothing to apply on hardware
-    # basis change into Z on every qubit of the support
-    for q in support:
-        if x[q] and z[q]:  # Y: (H Sdg) Y (H Sdg)^dagger = Z
-            circ.append("sdg", (q,))
-            circ.append("h", (q,))
-        elif x[q]:  # X: H X H = Z
-            circ.append("h", (q,))
-    ladder = list(zip(support[:-1], support[1:], strict=True))
-    for c, t in ladder:
-        circ.append("cx", (c, t))
-    circ.append("rz", (support[-1],), (float(angle),))
-    for c, t in reversed(ladder):
-        circ.append("cx", (c, t))
-    for q in support:
-        if x[q] and z[q]:
-            circ.append("h", (q,))
-            circ.append("s", (q,))
-        elif x[q]:
-            circ.append("h", (q,))
-
-
-def circuit_from_rotations(
-    reference_bits: Sequence[int] | np.ndarray,
-    rotations: Iterable[tuple[Sequence[bool], Sequence[bool], float]],
-) -> Circuit:
-    """Circuit preparing ``prod_k exp(-i angle_k/2 P_k) |reference>`` (rotations in list order).
-
-    ``reference_bits[k]`` is the occupation of qubit ``k``; each rotation is
-    ``(x_row, z_row, angle)`` with the symplectic convention ``x & z`` = Y. The state is
-    reproduced exactly, including the global phase, except that identity rotations (empty
-    Pauli string, a pure global phase ``exp(-i angle/2)``) are dropped.
-    """
-    bits = np.asarray(reference_bits).astype(np.int64).reshape(-1)
-    if np.any((bits != 0) & (bits != 1)):
-        raise ValueError("reference_bits must contain only 0 and 1")
-    n = int(bits.size)
-    circ = Circuit(n)
-    for q in np.flatnonzero(bits):
-        circ.append("x", (int(q),))
-    for i, rot in enumerate(rotations):
-        x_row, z_row, angle = rot
-        x = _bool_row(x_row, n, f"rotation {i} x row")
-        z = _bool_row(z_row, n, f"rotation {i} z row")
-        if not np.isfinite(angle):
-            raise ValueError(f"rotation {i} has a non-finite angle {angle!r}")
-        _append_pauli_rotation(circ, x, z, float(angle))
-    return circ
 
 
 def group_basis(group_labels: str | Iterable[str], n_qubits: int | None = None) -> str:
@@ -183,3 +116,55 @@ def unfold_circuit(folded: Circuit, scale: int) -> Circuit:
         if fold_circuit(base, 2 * k + 1).gates == folded.gates:
             return base
     raise ValueError(f"circuit is not a global fold with scale {2 * k + 1}")
+
+
+def state_circuit(
+    ansatz_meta: dict,
+    params,
+    mapping: str,
+    ham,
+    energy_expected: float,
+    *,
+    atol: float = 1e-6,
+) -> tuple[Circuit, float]:
+    """The optimized state's circuit on the problem's qubits, checked against the optimizer.
+
+    The circuit is :func:`eigensweep.vqe.ansatz.circuit_from_meta` of the stored ansatz (the
+    same compilation that gives the optimize stage's reported CNOT count and depth): fermionic
+    excitations mapped with ``mapping`` for an untapered problem, the stored (already tapered)
+    Pauli rotations for a tapered one (Bravyi et al. 2017, arXiv:1701.08213), native gates for
+    ``hardware_efficient``; rotations at zero angle (symmetry-forbidden excitations, which stay
+    at zero) are left out.
+
+    Args:
+        ansatz_meta: ``ansatz_meta`` of the optimize stage file.
+        params: the optimized parameters.
+        mapping: the problem's fermion-to-qubit mapping.
+        ham: the qubit Hamiltonian the job measures (the taper stage's, possibly tapered).
+        energy_expected: the optimizer's exact energy at ``params`` (hartree).
+        atol: largest accepted difference between the circuit's energy and ``energy_expected``.
+
+    Returns:
+        ``(circuit, energy of the circuit's state under ham)``.
+
+    Raises:
+        StageFileError: the circuit acts on other qubits than ``ham`` or prepares a state of
+            another energy (an inconsistent optimize / taper pair); nothing should be exported.
+    """
+    from eigensweep.errors import StageFileError
+    from eigensweep.qubit.statevector import expectation, simulate
+    from eigensweep.vqe.ansatz import circuit_from_meta
+
+    circ = circuit_from_meta(ansatz_meta, params, mapping)
+    if circ.n_qubits != int(ham.n_qubits):
+        raise StageFileError(
+            f"export: the optimized circuit acts on {circ.n_qubits} qubits but the taper stage's "
+            f"Hamiltonian on {ham.n_qubits}; export an optimize result of the same taper stage"
+        )
+    energy = float(expectation(simulate(circ), ham))
+    if abs(energy - float(energy_expected)) > atol:
+        raise StageFileError(
+            f"export: the compiled circuit gives {energy:.8f} Eh but the optimizer's state "
+            f"{float(energy_expected):.8f} Eh; refusing to export an inconsistent job"
+        )
+    return circ, energy

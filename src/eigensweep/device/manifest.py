@@ -257,6 +257,7 @@ class DeviceJob:
     shots_needed: dict[str, int]
     meta: dict
     records: list[CircuitRecord]
+    state_preparation: dict[str, int]
     circuits: dict[str, Circuit] = field(repr=False)
     qasm3: dict[str, str] = field(repr=False)
     qasm2: dict[str, str] = field(repr=False)
@@ -289,6 +290,7 @@ class DeviceJob:
             "target_standard_error": self.target_standard_error,
             "shots_needed": self.shots_needed,
             "meta": self.meta,
+            "state_preparation": dict(self.state_preparation),
             "circuits": [r.to_dict() for r in self.records],
         }
 
@@ -457,6 +459,11 @@ def build_job(
         shots_needed=shots_needed,
         meta=meta,
         records=records,
+        state_preparation={
+            "cnot_count": circuit.cnot_count,
+            "depth": circuit.depth,
+            "n_gates": len(circuit.gates),
+        },
         circuits=circuits,
         qasm3=q3,
         qasm2=q2,
@@ -483,6 +490,9 @@ def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> st
         f"- Pauli terms: {len(job.terms)} in {len(job.groups)} qubit-wise-commuting groups; "
         f"identity offset {job.identity:.10g} Ha; 1-norm of the other coefficients "
         f"{one_norm:.6g} Ha",
+        f"- state preparation (the optimized circuit, before basis change and folding): "
+        f"{job.state_preparation['cnot_count']} CNOTs, depth {job.state_preparation['depth']}, "
+        f"{job.state_preparation['n_gates']} gates",
         f"- noise-scale factors (global folding): {', '.join(map(str, job.scale_factors))}",
         f"- total shots: {job.shots_total} (requested {job.shots_total_requested})",
         "",

@@ -38,7 +38,6 @@ _LAZY: dict[str, str] = {
     "generator_paulis": "ansatz",
     "reference_bits": "ansatz",
     "rotations_from_meta": "ansatz",
-    "rotations_to_circuit": "ansatz",
     "DetSpace": "detspace",
     "ExcitationGate": "detspace",
     "fci_ground_state": "detspace",
@@ -74,7 +73,6 @@ if TYPE_CHECKING:  # for type checkers and IDEs; at run time these load lazily
         generator_paulis,
         reference_bits,
         rotations_from_meta,
-        rotations_to_circuit,
     )
     from .detspace import (
         DetSpace,
@@ -135,7 +133,6 @@ __all__ = [
     "pool_terms",
     "reference_bits",
     "rotations_from_meta",
-    "rotations_to_circuit",
     "run_adapt",
     "run_optimize",
     "taper_excitation",

@@ -15,14 +15,9 @@ computed here without OpenFermion, :func:`generator_paulis`) is ``i sum_j c_j P_
 excitation commute pairwise (checked), so ``exp(phi G) = prod_j exp(-i (-2 phi c_j)/2 P_j)``
 exactly: rotation angle ``-2 phi c_j``.
 
-Compilation scheme used for ``circuit`` / ``circuit_costs`` (standard Pauli-exponential
-"CNOT staircase"): the reference state is prepared with ``x`` gates; a rotation
-``exp(-i a/2 P)`` of weight 1 is a single ``rx``/``ry``/``rz``; of weight ``w > 1`` it is a
-basis change on each qubit of the support (``h`` for X, ``rx(pi/2)`` for Y), a CNOT ladder
-``cx(q1,q2) cx(q2,q3) ... cx(q_{w-1},q_w)`` over the support in ascending qubit order, ``rz(a)``
-on ``q_w``, the reversed ladder and the inverse basis change: ``2(w - 1)`` CNOTs. Depth is
-that of the resulting gate list with every gate counted as one time step and ASAP scheduling
-(:attr:`eigensweep.circuit.Circuit.depth`); no gate cancellation or reordering is attempted.
+``circuit`` / ``circuit_costs`` compile with eigensweep's one Pauli-rotation compiler,
+:func:`eigensweep.circuit.circuit_from_rotations` (scheme and references there), which the
+exported device circuits use too.
 """
 
 from __future__ import annotations
@@ -34,7 +29,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..circuit import Circuit
+from ..circuit import Circuit, PauliRotation, circuit_costs, circuit_from_rotations
 from .detspace import (
     DetSpace,
     ExcitationGate,
@@ -62,10 +57,7 @@ __all__ = [
     "pauli_label",
     "reference_bits",
     "rotations_from_meta",
-    "rotations_to_circuit",
 ]
-
-PauliRotation = tuple[np.ndarray, np.ndarray, float]
 
 
 _STATEVECTOR = None
@@ -247,50 +239,6 @@ def encoded_qubit_state(
     return out
 
 
-def append_pauli_rotation(circ: Circuit, x: np.ndarray, z: np.ndarray, angle: float) -> None:
-    """Append ``exp(-i angle/2 P(x, z))`` with the CNOT-staircase scheme (module docstring)."""
-    support = [int(q) for q in np.nonzero(x | z)[0]]
-    if not support:
-        return
-    if len(support) == 1:
-        q = support[0]
-        name = "rz" if not x[q] else ("ry" if z[q] else "rx")
-        circ.append(name, (q,), (angle,))
-        return
-    for q in support:
-        if x[q] and z[q]:
-            circ.append("rx", (q,), (np.pi / 2,))
-        elif x[q]:
-            circ.append("h", (q,))
-    for a, b in zip(support[:-1], support[1:], strict=True):
-        circ.append("cx", (a, b))
-    circ.append("rz", (support[-1],), (angle,))
-    for a, b in reversed(list(zip(support[:-1], support[1:], strict=True))):
-        circ.append("cx", (a, b))
-    for q in support:
-        if x[q] and z[q]:
-            circ.append("rx", (q,), (-np.pi / 2,))
-        elif x[q]:
-            circ.append("h", (q,))
-
-
-def rotations_to_circuit(
-    ref_bits: np.ndarray, rotations: Sequence[PauliRotation], n_qubits: int
-) -> Circuit:
-    """Circuit preparing ``prod_k exp(-i angle_k/2 P_k)|ref>`` (first rotation applied first)."""
-    circ = Circuit(n_qubits)
-    for q in np.nonzero(np.asarray(ref_bits))[0]:
-        circ.append("x", (int(q),))
-    for x, z, angle in rotations:
-        append_pauli_rotation(circ, x, z, float(angle))
-    return circ
-
-
-def costs_of(circ: Circuit) -> dict[str, int]:
-    """``{"cnot_count", "depth", "n_qubits"}`` of a compiled circuit."""
-    return {"cnot_count": circ.cnot_count, "depth": circ.depth, "n_qubits": circ.n_qubits}
-
-
 @dataclass(frozen=True)
 class Excitation:
     """One gate ``exp(coeff * theta[param] * (T - T^dagger))`` with ``T`` the operator ``term``."""
@@ -458,11 +406,11 @@ class FermionicAnsatz:
     def circuit(self, theta: np.ndarray, mapping: str = "jordan_wigner") -> Circuit:
         """Compiled circuit (scheme in the module docstring)."""
         ref, rots = self.pauli_rotations(theta, mapping)
-        return rotations_to_circuit(ref, rots, self.n_qubits)
+        return circuit_from_rotations(ref, rots)
 
     def circuit_costs(self, mapping: str = "jordan_wigner") -> dict[str, int]:
         """CNOT count, depth and qubit count of :meth:`circuit` (at generic, nonzero angles)."""
-        return costs_of(self.circuit(np.full(self.n_params, 0.1), mapping))
+        return circuit_costs(self.circuit(np.full(self.n_params, 0.1), mapping))
 
 
 def occ_virt(nelec: tuple[int, int], norb: int) -> tuple[list[list[int]], list[list[int]]]:
@@ -741,10 +689,10 @@ class PauliRotationAnsatz:
 
     def circuit(self, theta: np.ndarray, mapping: str | None = None) -> Circuit:
         ref, rots = self.pauli_rotations(theta)
-        return rotations_to_circuit(ref, rots, self.n_qubits)
+        return circuit_from_rotations(ref, rots)
 
     def circuit_costs(self, mapping: str | None = None) -> dict[str, int]:
-        return costs_of(self.circuit(np.full(self.n_params, 0.1)))
+        return circuit_costs(self.circuit(np.full(self.n_params, 0.1)))
 
 
 def rotations_from_meta(
@@ -794,4 +742,4 @@ def circuit_from_meta(meta: dict, params: np.ndarray, mapping: str = "jordan_wig
         )
         return hea.circuit(params)
     ref, rots = rotations_from_meta(meta, params, mapping)
-    return rotations_to_circuit(ref, rots, ref.size)
+    return circuit_from_rotations(ref, rots)

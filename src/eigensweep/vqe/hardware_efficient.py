@@ -20,8 +20,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..circuit import Circuit
-from .ansatz import PauliGate, PauliRotationAnsatz, costs_of
+from ..circuit import Circuit, circuit_costs
+from .ansatz import PauliGate, PauliRotationAnsatz
 from .methods import ROTATION_SETS
 
 if TYPE_CHECKING:
@@ -108,7 +108,7 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
         return circ
 
     def circuit_costs(self, mapping: str | None = None) -> dict[str, int]:
-        return costs_of(self.circuit(np.full(self.n_params, 0.1)))
+        return circuit_costs(self.circuit(np.full(self.n_params, 0.1)))
 
     def meta(self) -> dict:
         out = super().meta()
