@@ -7,11 +7,8 @@ from snakemake.utils import min_version
 
 min_version("8.20")
 
-
-if not config:
-
-    configfile: "config/config.yaml"
-
+# The sweep file: `--config sweep=FILE` (what `eigensweep run` passes), else config/config.yaml;
+# workflow/rules/common.smk reads it with eigensweep's loader (see config/README.md).
 
 report: "workflow/report/workflow.rst"
 

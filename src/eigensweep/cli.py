@@ -121,8 +121,8 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
         "snakemake",
         "--snakefile",
         str(root / "Snakefile"),
-        "--configfile",
-        str(config.resolve()),
+        "--config",
+        f"sweep={config.resolve()}",
         "--directory",
         str(Path.cwd()),
     ]

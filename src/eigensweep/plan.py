@@ -154,9 +154,9 @@ def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
 
 def method_label(kind: str, entry: dict) -> str:
     """Short readable label: name plus options that differ from defaults, e.g. ``kupccgsd(k=3)``."""
-    from .vqe.methods import validate_method
+    from .config import method_defaults
 
-    defaults = validate_method(kind, {"name": entry["name"]})
+    defaults = method_defaults(kind, entry["name"])
     opts = {k: v for k, v in entry.items() if k != "name" and defaults.get(k) != v}
     if not opts:
         return entry["name"]

@@ -3,7 +3,7 @@ import os
 import sys
 from pathlib import Path
 
-from eigensweep.config import validate_config
+from eigensweep.config import workflow_config
 from eigensweep.errors import EigensweepError
 from eigensweep.plan import build_plan, parent_files
 from eigensweep.preflight import check_plan_chemistry
@@ -15,7 +15,8 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
 try:
-    CFG = validate_config(config, source="config")
+    # the sweep is read by eigensweep's own loader (plain data, nothing evaluated)
+    CFG = workflow_config(config, workflow.overwrite_configfiles)
     PLAN = build_plan(CFG, base_dir=Path.cwd())
     check_plan_chemistry(PLAN)
 except EigensweepError as exc:

@@ -209,14 +209,11 @@ def read_xyz(path: str | os.PathLike) -> str:
     Returns:
         ``"O 0.0 0.0 0.0; H 0.0 0.757 0.587; ..."`` suitable for ``compute_integrals(atoms=...)``.
     """
+    from eigensweep.inputs import MAX_XYZ_BYTES, read_user_text
+
     name = os.fspath(path)
-    try:
-        with open(name, encoding="utf-8") as handle:
-            lines = handle.read().splitlines()
-    except (OSError, UnicodeDecodeError) as err:
-        raise ConfigError(
-            _one_line(f"{name}: cannot read XYZ file ({err.__class__.__name__}); check the path")
-        ) from None
+    # bounded read of a regular file; messages below never quote the file's content
+    lines = read_user_text(name, limit=MAX_XYZ_BYTES, what="XYZ file").splitlines()
 
     def bad(lineno: int, what: str) -> ConfigError:
         return ConfigError(_one_line(f"{name}: line {lineno}: {what}; fix the XYZ file"))
@@ -226,7 +223,7 @@ def read_xyz(path: str | os.PathLike) -> str:
     try:
         natm = int(lines[0].strip())
     except ValueError:
-        raise bad(1, f"expected the number of atoms, found {lines[0].strip()[:40]!r}") from None
+        raise bad(1, "expected the number of atoms") from None
     if natm <= 0:
         raise bad(1, f"atom count must be positive, found {natm}")
     body = lines[2 : 2 + natm]
@@ -239,15 +236,15 @@ def read_xyz(path: str | os.PathLike) -> str:
     for lineno, text in enumerate(body, start=3):
         fields = text.split()
         if len(fields) < 4:
-            raise bad(lineno, f"expected 'element x y z', found {text.strip()[:60]!r}")
+            raise bad(lineno, f"expected 'element x y z', found {len(fields)} fields")
         symbol = fields[0]
         if atomic_number(symbol) == 0:
-            raise bad(lineno, f"unknown element {symbol!r}")
+            raise bad(lineno, "unknown element symbol")
         try:
             xyz = [float(v) for v in fields[1:4]]
         except ValueError:
-            raise bad(lineno, f"non-numeric coordinate in {text.strip()[:60]!r}") from None
+            raise bad(lineno, "non-numeric coordinate") from None
         if not all(math.isfinite(v) for v in xyz):
-            raise bad(lineno, f"non-finite coordinate in {text.strip()[:60]!r}")
+            raise bad(lineno, "non-finite coordinate")
         out.append(f"{symbol} {xyz[0]!r} {xyz[1]!r} {xyz[2]!r}")
     return "; ".join(out)
