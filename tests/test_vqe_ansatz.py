@@ -192,3 +192,50 @@ def test_qubit_adapt_lih_chemical_accuracy_with_fewer_cnots():
     assert e_fci - 1e-9 < res.energy < e_fci + CHEM_ACC
     uccsd_cnots = UCCSD(space_of("LiH")).circuit_costs()["cnot_count"]
     assert res.cnot_count < uccsd_cnots
+
+
+@pytest.mark.parametrize("layers", [0, 1, 2, 3])
+@pytest.mark.parametrize("rotations", ["ry_rz", "ry"])
+def test_hea_at_zero_parameters_is_the_hartree_fock_state(layers, rotations):
+    from pyscf import gto, scf
+
+    from eigensweep.qubit import map_hamiltonian, reference_bits
+    from eigensweep.qubit import statevector as sv
+
+    m = molecule("H2")
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
+    hf_bits = reference_bits(m["nelec"], m["norb"], "jordan_wigner")
+    hea = HardwareEfficientAnsatz(ham, hf_bits, layers=layers, rotations=rotations)
+    zero = np.zeros(hea.n_params)
+    # reference: PySCF RHF energy computed here (the HF determinant's energy)
+    mf = scf.RHF(gto.M(atom="H 0 0 0; H 0 0 0.74", basis="sto-3g", verbose=0))
+    mf.conv_tol = 1e-12
+    e_hf = mf.kernel()
+    assert hea.energy(zero) == pytest.approx(e_hf, abs=1e-9)
+    # the exported native circuit at zero parameters prepares |HF> itself (basis state)
+    psi = sv.simulate(hea.circuit(zero))
+    assert abs(abs(psi[int("".join(map(str, hf_bits)), 2)]) - 1.0) < 1e-12
+
+
+def test_hea_run_on_tapered_lih_starts_at_hf_and_ends_below():
+    from pyscf import gto, scf
+
+    from eigensweep.qubit import map_hamiltonian, reference_bits, taper
+
+    m = molecule("LiH")
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "parity")
+    tap = taper(ham, reference_bits(m["nelec"], m["norb"], "parity"))
+    res = run_optimize(
+        **m,
+        ansatz={"name": "hardware_efficient", "layers": 1, "init_scale": 0.0},
+        optimizer={"name": "lbfgs", "maxiter": 30},
+        estimator={"name": "exact"},
+        mapping="parity",
+        tapering=tap,
+    )
+    # reference: PySCF RHF energy computed here
+    mf = scf.RHF(gto.M(atom="Li 0 0 0; H 0 0 1.595", basis="sto-3g", verbose=0))
+    mf.conv_tol = 1e-12
+    e_hf = mf.kernel()
+    assert res.trace_energy[0] == pytest.approx(e_hf, abs=1e-8)
+    assert res.energy <= e_hf + 1e-10  # variational descent from HF (common practice)

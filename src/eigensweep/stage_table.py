@@ -87,7 +87,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "optimize",
-        1,
+        2,
         "run_optimize",
         {"taper": "taper", "integrals": "integrals", "warm": "optimize"},
         ("stage",),
@@ -95,7 +95,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "export",
-        2,
+        3,
         "run_export",
         {"optimize": "optimize", "taper": "taper", "integrals": "integrals"},
         ("stage", "jobs"),

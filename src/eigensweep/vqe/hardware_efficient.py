@@ -1,11 +1,15 @@
 """Hardware-efficient ansatz (Kandala et al., Nature 549, 242 (2017)).
 
-Layout (``layers = d``): starting from the reference computational-basis state (HF bits
-in the chosen qubit encoding), a rotation layer, then ``d`` times a CNOT chain
-``cx(0,1) cx(1,2) ... cx(n-2,n-1)`` followed by another rotation layer. A rotation layer is
-``ry(theta)`` then ``rz(theta)`` on every qubit (``rotations="ry_rz"``, ``2 n (d + 1)``
-parameters) or ``ry(theta)`` only (``rotations="ry"``, real amplitudes, ``n (d + 1)``
-parameters). Parameters are ordered layer by layer, qubit by qubit, ``ry`` before ``rz``.
+Layout (``layers = d``): ``x`` gates prepare a computational-basis state ``|p>``, then a
+rotation layer, then ``d`` times a CNOT chain ``cx(0,1) cx(1,2) ... cx(n-2,n-1)`` followed by
+another rotation layer. At zero parameters every rotation is the identity and the state is
+``C^d |p>`` with ``C`` the chain; ``C`` maps basis states linearly over GF(2),
+``b_k -> b_0 + ... + b_k (mod 2)`` (the prefix-parity matrix ``L``), so the prepared bits are
+``p = (L^-1)^d r`` with ``(L^-1 r)_k = r_k + r_{k-1}``: the ansatz at zero parameters is exactly
+the reference ``|r>`` (HF bits in the chosen qubit encoding), as a variational start should
+be. A rotation layer is ``ry(theta)`` then ``rz(theta)`` on every qubit (``rotations="ry_rz"``,
+``2 n (d + 1)`` parameters) or ``ry(theta)`` only (``rotations="ry"``, real amplitudes,
+``n (d + 1)`` parameters). Parameters are ordered layer by layer, qubit by qubit, ``ry`` before ``rz``.
 
 For simulation the ansatz is a :class:`~eigensweep.vqe.ansatz.PauliRotationAnsatz`: ``ry``
 and ``rz`` are the rotations ``exp(-i t/2 Y)``, ``exp(-i t/2 Z)``, and each CNOT is written
@@ -27,7 +31,7 @@ from .methods import ROTATION_SETS
 if TYPE_CHECKING:
     from ..qubit.pauli import PauliSum
 
-__all__ = ["ROTATION_SETS", "HardwareEfficientAnsatz"]
+__all__ = ["ROTATION_SETS", "HardwareEfficientAnsatz", "prepared_bits"]
 
 
 def _row(n: int, qubits: dict[int, str]) -> tuple[np.ndarray, np.ndarray]:
@@ -39,8 +43,17 @@ def _row(n: int, qubits: dict[int, str]) -> tuple[np.ndarray, np.ndarray]:
     return x, z
 
 
+def prepared_bits(reference: np.ndarray, layers: int) -> np.ndarray:
+    """Bits ``p`` that ``layers`` CNOT chains carry to ``reference`` (module docstring)."""
+    bits = np.asarray(reference, dtype=np.uint8).reshape(-1).copy()
+    for _ in range(int(layers)):
+        bits[1:] ^= bits[:-1].copy()  # inverse of the chain: b_k + b_{k-1}
+    return bits
+
+
 class HardwareEfficientAnsatz(PauliRotationAnsatz):
-    """Kandala-style layered ansatz (module docstring)."""
+    """Kandala-style layered ansatz whose zero-parameter state is ``reference`` (module
+    docstring)."""
 
     name = "hardware_efficient"
 
@@ -58,7 +71,8 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
             raise ValueError(f"rotations must be one of {ROTATION_SETS}")
         if layers < 0:
             raise ValueError("layers must be >= 0")
-        ref = np.asarray(reference, dtype=np.uint8).reshape(-1)
+        target = np.asarray(reference, dtype=np.uint8).reshape(-1)
+        ref = prepared_bits(target, layers)
         n = ref.size
         letters = ["Y", "Z"] if rotations == "ry_rz" else ["Y"]
         gates: list[PauliGate] = []
@@ -89,6 +103,7 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
             rotation_layer()
         self.layers = int(layers)
         self.rotations = rotations
+        self.target_reference = target
         self._native = native
         super().__init__(hamiltonian, ref, gates, n_params, init_scale=init_scale, seed=seed)
 
@@ -111,6 +126,13 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
         return circuit_costs(self.circuit(np.full(self.n_params, 0.1)))
 
     def meta(self) -> dict:
+        """``reference_bits`` is the zero-parameter state (the constructor's ``reference``);
+        ``prepared_bits`` the basis state the ``x`` gates prepare."""
         out = super().meta()
-        out.update(layers=self.layers, rotations=self.rotations)
+        out.update(
+            layers=self.layers,
+            rotations=self.rotations,
+            reference_bits=[int(b) for b in self.target_reference],
+            prepared_bits=[int(b) for b in self.reference],
+        )
         return out
