@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import copy
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -212,3 +213,32 @@ def test_import_without_manifest_is_refused(job_folder, tmp_path):
     with pytest.raises(ResultsFileError, match="manifest"):
         import_results(src, tmp_path / "no-job", tmp_path / "dest.json")
     assert not (tmp_path / "dest.json").exists()
+
+
+def test_fifo_and_device_are_refused_without_hanging(job_folder, tmp_path):
+    # reading /dev/zero or a FIFO would never end (POSIX special files; common practice)
+    folder, _ = job_folder
+    fifo = tmp_path / "pipe.json"
+    os.mkfifo(fifo)
+    for path in (fifo, Path("/dev/zero")):
+        with pytest.raises(ResultsFileError, match="regular file") as err:
+            load_results(path, folder)
+        assert "\n" not in str(err.value)
+
+
+@pytest.mark.parametrize("count", ["1" + "0" * 5000, str(10**20), str(2**53)])
+def test_huge_counts_are_refused(job_folder, tmp_path, count):
+    # 2**53: largest range of exactly representable integers in IEEE-754 double precision
+    folder, good = job_folder
+    src = tmp_path / "huge.json"
+    write_results(good, src)
+    text = src.read_text()
+    cid = next(iter(good["results"]))
+    bits, old = next(iter(good["results"][cid]["counts"].items()))
+    data = json.loads(text)
+    data["results"][cid]["counts"][bits] = 0
+    text = json.dumps(data).replace(f'"{bits}": 0', f'"{bits}": {count}', 1)
+    src.write_text(text)
+    with pytest.raises(ResultsFileError, match="2\\*\\*53") as err:
+        load_results(src, folder)
+    assert "\n" not in str(err.value) and len(str(err.value)) < 300

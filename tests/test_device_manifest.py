@@ -5,7 +5,6 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
 import sys
 from pathlib import Path
 
@@ -15,7 +14,6 @@ import pytest
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from test_device_support import h2_ansatz, h2_problem  # noqa: E402
 
-from eigensweep.device import manifest as man  # noqa: E402
 from eigensweep.device.manifest import (  # noqa: E402
     BIT_ORDER,
     allocate_shots,
@@ -140,21 +138,6 @@ def test_write_job_files_and_reload(h2_job, tmp_path):
     assert m == json.loads(json.dumps(job.to_manifest()))
     _, items = load_job_circuits(folder)
     assert [c.gates for _, c in items] == [job.circuits[r.circuit_id].gates for r in job.records]
-
-
-def test_atomic_write_keeps_old_file_on_failure(tmp_path, monkeypatch):
-    target = tmp_path / "manifest.json"
-    target.write_text("old")
-
-    def boom(src, dst):
-        raise OSError("disk full")
-
-    monkeypatch.setattr(man.os, "replace", boom)
-    with pytest.raises(OSError):
-        man.atomic_write_text(target, "new")
-    monkeypatch.setattr(man.os, "replace", os.replace)
-    assert target.read_text() == "old"
-    assert [p.name for p in tmp_path.iterdir()] == ["manifest.json"]
 
 
 def test_load_job_circuits_detects_edited_file(h2_job, tmp_path):

@@ -16,13 +16,13 @@ from eigensweep.device import mitigation as mit  # noqa: E402
 from eigensweep.device.manifest import build_job  # noqa: E402
 from eigensweep.device.reconcile import (  # noqa: E402
     ReconcileResult,
-    load_hdf5,
     plot_histograms,
     reconcile,
-    save_hdf5,
 )
 from eigensweep.device.synthetic import run_synthetic_device  # noqa: E402
 from eigensweep.qubit.pauli import PauliSum  # noqa: E402
+from eigensweep.stage_table import stage_key  # noqa: E402
+from eigensweep.store import read_stage, write_stage  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -204,8 +204,21 @@ def test_comparison_table_and_hdf5_round_trip(noisy, tmp_path):
     back = ReconcileResult.from_store(arrays, meta)
     assert back.estimates() == r.estimates()
     assert back.circuits == r.circuits
-    path = save_hdf5(r, tmp_path / "rec.h5")
-    loaded = load_hdf5(path)
+    # through the one stage-file writer and reader, as the reconcile stage stores it
+    params = {"bootstrap": 1}
+    key = stage_key("reconcile", params, {})
+    arrays, meta = r.to_store()
+    path = write_stage(
+        tmp_path / f"{key}.h5",
+        stage="reconcile",
+        key=key,
+        params=params,
+        parents={},
+        arrays=arrays,
+        meta=meta,
+    )
+    sd = read_stage(path, stage="reconcile", key=key)
+    loaded = ReconcileResult.from_store(sd.arrays, sd.meta)
     assert loaded.estimates() == r.estimates()
     assert loaded.circuits == r.circuits
     assert loaded.comparison_table() == table

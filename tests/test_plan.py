@@ -162,3 +162,17 @@ def test_resource_requests_grow_with_problem_size():
     opt = {r["molecule"]: plan.nodes[r["key"]] for r in plan.rows}
     small, big = stage_resources(opt["h2"], plan), stage_resources(opt["n2"], plan)
     assert big["mem_mb"] > small["mem_mb"] and big["runtime"] > small["runtime"]
+
+
+def test_export_selection_matching_nothing_is_an_error():
+    # issue 18: a selection that matches no optimize job used to be accepted silently
+    cfg = validate_config(
+        {
+            "molecules": [{"name": "h2", "atoms": "H 0 0 0; H 0 0 0.74"}],
+            "export": {"select": [{"molecule": "h2"}, {"molecule": "lih"}]},
+        },
+        source="test",
+    )
+    with pytest.raises(ConfigError, match=r"export.select\[1\].*matches no optimize job") as ei:
+        build_plan(cfg)
+    assert "\n" not in str(ei.value)

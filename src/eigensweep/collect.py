@@ -9,13 +9,11 @@ from __future__ import annotations
 
 import csv
 import math
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
-from .store import read_stage
+from .store import atomic_path, read_stage
 
 REFERENCE_COLUMNS = {
     "energy_hf": "hf",
@@ -123,13 +121,11 @@ def write_summary(rows: list[dict], path: str | Path) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
     scan_cols = sorted({k for r in rows for k in r if k.startswith("scan_")})
     cols = SUMMARY_COLUMNS[:2] + scan_cols + SUMMARY_COLUMNS[2:]
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".summary.", suffix=".tmp")
-    with os.fdopen(fd, "w", newline="") as fh:
+    with atomic_path(path) as tmp, open(tmp, "w", newline="") as fh:
         w = csv.DictWriter(fh, fieldnames=cols, extrasaction="ignore")
         w.writeheader()
         for r in rows:
             w.writerow({c: _fmt(r.get(c, "")) for c in cols})
-    os.replace(tmp, path)
     return path
 
 
@@ -358,13 +354,11 @@ def write_device_outputs(exports: list[dict], results: str | Path = "results") -
     results = Path(results)
     rows = device_rows(exports, results)
     path = results / "device_summary.csv"
-    fd, tmp = tempfile.mkstemp(dir=results, prefix=".device_summary.", suffix=".tmp")
-    with os.fdopen(fd, "w", newline="") as fh:
+    with atomic_path(path) as tmp, open(tmp, "w", newline="") as fh:
         w = csv.DictWriter(fh, fieldnames=DEVICE_COLUMNS)
         w.writeheader()
         for r in rows:
             w.writerow({c: _fmt(r.get(c, "")) for c in DEVICE_COLUMNS})
-    os.replace(tmp, path)
     files = [path]
     for ex in exports:
         if ex.get("key_reconcile"):

@@ -267,9 +267,16 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
     exp, dev = cfg["export"], cfg["device"]
     out: list[dict] = []
     seen: set[str] = set()
-    for sel in exp["select"]:
-        for row in rows:
-            if not _row_matches(sel, row) or row["key"] in seen:
+    for i, sel in enumerate(exp["select"]):
+        matched = [row for row in rows if _row_matches(sel, row)]
+        if not matched:
+            raise ConfigError(
+                f"export.select[{i}] {canonical_json(sel)[:60]} matches no optimize job of this "
+                "sweep; check its values against the summary columns (molecule, point, mapping, "
+                "tapered, ansatz, optimizer, estimator)"
+            )
+        for row in matched:
+            if row["key"] in seen:
                 continue
             seen.add(row["key"])
             k_exp = add(

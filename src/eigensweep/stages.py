@@ -47,7 +47,7 @@ def load_taper(path: str | Path):
     from .qubit import TaperResult
 
     sd = read_stage(path, stage="taper")
-    return TaperResult.from_store(sd.arrays), sd
+    return TaperResult.from_store(sd.arrays, "taper/"), sd
 
 
 def run_integrals(
@@ -147,9 +147,9 @@ def run_hamiltonian(
         shots = shots_for_precision(ham, groups=groups)
         check = sector_check(ham, ints, mapping, node.key)
     arrays = {
-        **ham.to_store("ham_"),
-        **num.to_store("num_"),
-        **sz.to_store("sz_"),
+        **ham.to_store("hamiltonian/"),
+        **num.to_store("number/"),
+        **sz.to_store("spin_z/"),
         "reference_bits": np.asarray(ref, dtype=np.uint8),
     }
     meta = {
@@ -164,7 +164,8 @@ def run_hamiltonian(
         "norb": ints.norb,
     }
     _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
-    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
+    units = {"hamiltonian/coeffs": "hartree", "spin_z/coeffs": "hbar"}
+    _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
 def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
@@ -173,7 +174,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
     from .qubit.statevector import basis_state
 
     sd = read_stage(inputs["hamiltonian"], stage="hamiltonian")
-    ham = PauliSum.from_store(sd.arrays, "ham_")
+    ham = PauliSum.from_store(sd.arrays, "hamiltonian/")
     ref = sd.arrays["reference_bits"]
     with Timer() as t:
         res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
@@ -189,7 +190,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
             node.key,
             taper=res if node.params["taper"] else None,
         )
-    arrays = res.to_store()
+    arrays = res.to_store("taper/")
     meta = {
         "mapping": sd.meta["mapping"],
         "nelec": sd.meta["nelec"],
@@ -208,7 +209,8 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         ),
     }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
-    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
+    units = {"taper/hamiltonian_coeffs": "hartree"}
+    _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
 def run_optimize(
@@ -267,7 +269,11 @@ def run_optimize(
         output,
         arrays=arrays,
         meta=meta,
-        units={"trace_energy": "hartree", "params": "radian"},
+        units={
+            "trace_energy": "hartree",
+            "trace_grad_norm": "hartree/radian",
+            "params": "radian",
+        },
         wall_s=t.seconds,
     )
 
@@ -375,7 +381,8 @@ def run_reconcile(
     arrays, meta = res.to_store()
     meta = {**meta, "counts": counts, "comparison_table": res.comparison_table()}
     _say(progress, f"reconcile {node.key}: raw {res.raw.value:.6f} Eh")
-    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
+    units = {k: "hartree" for k in arrays if k.startswith("samples/")}
+    _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
 #: stage name -> its action, as named in the stage table

@@ -1,15 +1,25 @@
-"""The one HDF5 stage-file helper: atomic writes, provenance attributes, verified reads.
+"""The one stage-file I/O module: atomic writes, self-describing HDF5, verified reads.
 
-Layout of every stage file ``results/<stage>/<key>.h5``::
+Layout of every stage file ``results/<stage>/<key>.h5`` (format version 2)::
 
-    /                 root attributes: format, format_version, stage, stage_version, key,
-                      parameters (JSON), parent_keys (JSON), software (JSON), created (UTC ISO),
-                      host, wall_s, content_sha256
-    /data/<name>      one dataset per array (``units`` attribute where it applies)
-    /meta             JSON text: small structured results (energies, labels, ...)
+    /                   root attributes: format, format_version, stage, stage_version, key,
+                        parameters (JSON), parent_keys (JSON), software (JSON), created (UTC ISO),
+                        host, wall_s, content_sha256
+    /data/<object>/...  one group per stored object (e.g. ``data/hamiltonian``), one dataset per
+                        array, a ``units`` attribute on every dataset that has units
+    /results            the stage's structured results: numbers, flags and short text are
+                        attributes (``energy``, ``n_qubits``); a nested mapping is a subgroup;
+                        lists and longer text are JSON-text datasets (attribute
+                        ``encoding = "json"``)
 
-``content_sha256`` covers every dataset's name, dtype, shape and bytes plus the meta text, so a
-damaged file is refused on read even when HDF5 itself still opens it.
+``content_sha256`` covers every dataset's name, dtype, shape and bytes plus the canonical JSON
+of the results, so a damaged file is refused on read even when HDF5 itself still opens it.
+Timings (``wall_s``, ``created``) are outside it: identical runs have identical content hashes.
+On every read the key is recomputed from the stored stage, version, parameters and parent keys;
+a file whose stored identity does not hash to its key is refused.
+
+This module also holds the one atomic file write (:func:`atomic_path`, :func:`atomic_write_text`,
+:func:`atomic_write_bytes`) that every writer of result files uses.
 """
 
 from __future__ import annotations
@@ -20,8 +30,10 @@ import json
 import os
 import platform
 import socket
+import stat
 import tempfile
 import time
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from importlib import metadata
@@ -32,12 +44,100 @@ import h5py
 import numpy as np
 
 from . import __version__
-from .errors import StageFileError
-from .stage_table import STAGE_VERSIONS, canonical_json
+from .errors import EigensweepError, StageFileError
+from .stage_table import STAGE_VERSIONS, canonical_json, stage_key
 
 FORMAT = "eigensweep-stage"
-FORMAT_VERSION = 1
-KNOWN_FORMAT_VERSIONS = {1}
+FORMAT_VERSION = 2
+KNOWN_FORMAT_VERSIONS = {2}
+#: Largest stage file read (bytes): a bound against a huge or endless file given as a stage file.
+MAX_STAGE_FILE_BYTES = 8 * 2**30
+#: Text longer than this is stored as a JSON dataset rather than an attribute.
+_MAX_ATTR_TEXT = 256
+#: A mapping with more entries than this (counts per bitstring, ...) is one JSON dataset.
+_MAX_GROUP_ENTRIES = 64
+_INT64 = (-(2**63), 2**63 - 1)
+
+
+# ----------------------------------------------------------------------------- atomic writes
+
+
+def _file_mode() -> int:
+    """Permissions of a new regular file under the current umask (``0o666 & ~umask``)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+@contextlib.contextmanager
+def atomic_path(path: str | Path, *, prefix: str | None = None) -> Iterator[Path]:
+    """Write a file atomically: yield a temporary path in the destination folder.
+
+    When the ``with`` block ends without error the temporary file is flushed to disk, given the
+    umask's permissions and renamed onto ``path`` (readers see the old file or the new one,
+    never half of one); on error it is removed and ``path`` is left untouched.
+
+    Example:
+        >>> with atomic_path(folder / "table.csv") as tmp:  # doctest: +SKIP
+        ...     tmp.write_text("a,b\n1,2\n")
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, name = tempfile.mkstemp(prefix=prefix or f".{path.name}.", suffix=".tmp", dir=path.parent)
+    os.close(fd)
+    tmp = Path(name)
+    try:
+        yield tmp
+        with open(tmp, "rb") as fh:
+            os.fsync(fh.fileno())
+        os.chmod(tmp, _file_mode())
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def atomic_write_bytes(path: str | Path, data: bytes) -> Path:
+    """Write ``data`` to ``path`` atomically (see :func:`atomic_path`)."""
+    path = Path(path)
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(data)
+    return path
+
+
+def atomic_write_text(path: str | Path, text: str) -> Path:
+    """Write UTF-8 ``text`` (``\n`` line ends) to ``path`` atomically (see :func:`atomic_path`)."""
+    path = Path(path)
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(text)
+    return path
+
+
+def read_bounded(
+    path: str | Path, limit: int, what: str, error: type[EigensweepError] = StageFileError
+) -> bytes:
+    """Bytes of a regular file no larger than ``limit``; one-line error naming ``what`` otherwise.
+
+    Refuses FIFOs, devices and folders (``/dev/zero`` as an input would never end) and files
+    larger than ``limit`` bytes, without echoing any of their content.
+    """
+    path = Path(path)
+    try:
+        st = os.stat(path)
+        if not stat.S_ISREG(st.st_mode):
+            raise error(f"{path}: {what} must be a regular file, not a device, pipe or folder")
+        if st.st_size > limit:
+            raise error(f"{path}: {what} is {st.st_size} bytes, above the {limit}-byte limit")
+        with open(path, "rb") as fh:
+            data = fh.read(limit + 1)
+    except FileNotFoundError:
+        raise error(f"{path}: {what} not found; check the path") from None
+    except OSError as exc:
+        raise error(f"{path}: cannot read {what} ({exc.strerror}); check the path") from None
+    if len(data) > limit:
+        raise error(f"{path}: {what} grew past the {limit}-byte limit while being read")
+    return data
 
 
 @dataclass
@@ -64,7 +164,7 @@ def software_versions() -> dict[str, str]:
     return out
 
 
-def _content_hash(arrays: dict[str, np.ndarray], meta_text: str) -> str:
+def _content_hash(arrays: Mapping[str, np.ndarray], results_text: str) -> str:
     h = hashlib.sha256()
     for name in sorted(arrays):
         a = np.ascontiguousarray(arrays[name])
@@ -72,17 +172,68 @@ def _content_hash(arrays: dict[str, np.ndarray], meta_text: str) -> str:
         h.update(str(a.dtype.str).encode())
         h.update(str(a.shape).encode())
         h.update(a.tobytes())
-    h.update(meta_text.encode())
+    h.update(results_text.encode())
     return h.hexdigest()
 
 
-def _prepare(arrays: dict[str, Any]) -> dict[str, np.ndarray]:
+def _prepare(arrays: Mapping[str, Any]) -> dict[str, np.ndarray]:
     out = {}
     for name, value in arrays.items():
         a = np.asarray(value)
         if a.dtype == object or a.dtype.kind in "US":
             raise TypeError(f"array {name!r}: store text in meta, not as an array")
+        if not name or any(not part or part == "." for part in name.split("/")):
+            raise ValueError(f"array name {name!r}: use names like 'hamiltonian/x'")
         out[name] = a
+    return out
+
+
+# ----------------------------------------------------------------------------- results tree
+
+
+def _is_group_key(k: Any) -> bool:
+    return isinstance(k, str) and k not in ("", ".") and "/" not in k
+
+
+def _write_tree(group: h5py.Group, tree: Mapping[str, Any]) -> None:
+    """Results as HDF5: scalars -> attributes, mappings -> subgroups, the rest -> JSON datasets."""
+    for k, v in tree.items():
+        if (
+            isinstance(v, Mapping)
+            and len(v) <= _MAX_GROUP_ENTRIES
+            and all(_is_group_key(x) for x in v)
+        ):
+            _write_tree(group.create_group(k), v)
+        elif isinstance(v, bool | np.bool_):
+            group.attrs[k] = np.bool_(v)
+        elif isinstance(v, int | np.integer) and _INT64[0] <= int(v) <= _INT64[1]:
+            group.attrs[k] = np.int64(v)
+        elif isinstance(v, float | np.floating):
+            group.attrs[k] = np.float64(v)
+        elif isinstance(v, str) and len(v) <= _MAX_ATTR_TEXT:
+            group.attrs[k] = v
+        else:
+            ds = group.create_dataset(k, data=canonical_json(v))
+            ds.attrs["encoding"] = "json"
+
+
+def _read_tree(group: h5py.Group) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for k, v in group.attrs.items():
+        if isinstance(v, np.bool_ | bool):
+            out[k] = bool(v)
+        elif isinstance(v, np.integer):
+            out[k] = int(v)
+        elif isinstance(v, np.floating):
+            out[k] = float(v)
+        else:
+            out[k] = v.decode() if isinstance(v, bytes) else str(v)
+    for k, obj in group.items():
+        if isinstance(obj, h5py.Group):
+            out[k] = _read_tree(obj)
+        else:
+            raw = obj[()]
+            out[k] = json.loads(raw.decode() if isinstance(raw, bytes) else str(raw))
     return out
 
 
@@ -92,103 +243,139 @@ def write_stage(
     stage: str,
     key: str,
     params: dict,
-    parents: dict[str, str],
-    arrays: dict[str, Any],
-    meta: dict,
-    units: dict[str, str] | None = None,
+    parents: Mapping[str, str],
+    arrays: Mapping[str, Any],
+    meta: Mapping[str, Any],
+    units: Mapping[str, str] | None = None,
     wall_s: float | None = None,
 ) -> Path:
     """Write a stage file atomically (temporary file in the same folder, then rename).
 
     Args:
-        path: destination ``.../<stage>/<key>.h5``; its stem must equal ``key``.
-        arrays: name -> numeric array (stored as datasets under ``/data``).
-        meta: JSON-serialisable results stored as text under ``/meta``.
-        units: optional name -> unit string attached to datasets.
+        path: destination ``.../<stage>/<key>.h5``; its stem must equal ``key``, and ``key`` must
+            be the stage key of ``stage``, ``params`` and ``parents``.
+        arrays: name -> numeric array, stored as datasets under ``/data``; a name with ``/``
+            (``"hamiltonian/x"``) puts the dataset in a group per object.
+        meta: JSON-serialisable results, stored under ``/results`` (see the module docstring).
+        units: array name -> unit string (``"hartree"``), the dataset's ``units`` attribute.
+        wall_s: wall time of the job (a timing: not part of the content hash).
+
+    Raises:
+        StageFileError: the file name or key does not match (a bug in the caller).
     """
     path = Path(path)
     if path.stem != key:
         raise StageFileError(
             f"{path}: file name does not match key {key}; this is a bug in the caller"
         )
-    path.parent.mkdir(parents=True, exist_ok=True)
+    if stage_key(stage, params, parents) != key:
+        raise StageFileError(
+            f"{path}: key {key} is not the stage key of its parameters and parents; "
+            "this is a bug in the caller"
+        )
     arrays = _prepare(arrays)
     meta_text = canonical_json(meta)
-    units = units or {}
-    fd, tmp = tempfile.mkstemp(prefix=f".{key}.", suffix=".tmp", dir=path.parent)
-    os.close(fd)
-    try:
-        with h5py.File(tmp, "w") as f:
-            f.attrs["format"] = FORMAT
-            f.attrs["format_version"] = FORMAT_VERSION
-            f.attrs["stage"] = stage
-            f.attrs["stage_version"] = STAGE_VERSIONS[stage]
-            f.attrs["key"] = key
-            f.attrs["parameters"] = canonical_json(params)
-            f.attrs["parent_keys"] = canonical_json(parents)
-            f.attrs["software"] = canonical_json(software_versions())
-            f.attrs["created"] = datetime.now(UTC).isoformat(timespec="seconds")
-            f.attrs["host"] = socket.gethostname()
-            f.attrs["wall_s"] = float(wall_s) if wall_s is not None else float("nan")
-            f.attrs["content_sha256"] = _content_hash(arrays, meta_text)
-            g = f.create_group("data")
-            for name, a in arrays.items():
-                ds = g.create_dataset(name, data=a)
-                if name in units:
-                    ds.attrs["units"] = units[name]
-            f.create_dataset("meta", data=meta_text)
-        with open(tmp, "rb") as fh:
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
+    units = dict(units or {})
+    unknown = sorted(set(units) - set(arrays))
+    if unknown:
+        raise ValueError(f"units given for arrays that are not stored: {unknown}")
+    with atomic_path(path, prefix=f".{key}.") as tmp, h5py.File(tmp, "w") as f:
+        f.attrs["format"] = FORMAT
+        f.attrs["format_version"] = FORMAT_VERSION
+        f.attrs["stage"] = stage
+        f.attrs["stage_version"] = STAGE_VERSIONS[stage]
+        f.attrs["key"] = key
+        f.attrs["parameters"] = canonical_json(params)
+        f.attrs["parent_keys"] = canonical_json(parents)
+        f.attrs["software"] = canonical_json(software_versions())
+        f.attrs["created"] = datetime.now(UTC).isoformat(timespec="seconds")
+        f.attrs["host"] = socket.gethostname()
+        f.attrs["wall_s"] = float(wall_s) if wall_s is not None else float("nan")
+        f.attrs["content_sha256"] = _content_hash(arrays, meta_text)
+        g = f.create_group("data")
+        for name, a in arrays.items():
+            ds = g.create_dataset(name, data=a)
+            if name in units:
+                ds.attrs["units"] = units[name]
+        _write_tree(f.create_group("results"), json.loads(meta_text))
     return path
+
+
+_FIX = "delete it and rerun (eigensweep run recomputes it)"
+
+
+def _check_header(path: Path, attrs: dict, stage: str | None, key: str | None) -> tuple:
+    """Format, version, stage, key and identity checks of a stage file's root attributes."""
+    fmt = attrs.get("format")
+    if fmt != FORMAT:
+        raise StageFileError(f"{path}: not an eigensweep stage file (no {FORMAT!r} format mark)")
+    fv = int(attrs.get("format_version", -1))
+    if fv not in KNOWN_FORMAT_VERSIONS:
+        if fv < FORMAT_VERSION:
+            raise StageFileError(
+                f"{path}: written in the old stage-file format {fv} (this eigensweep writes "
+                f"{FORMAT_VERSION}); rerun the sweep with 'eigensweep run' to recompute it"
+            )
+        raise StageFileError(
+            f"{path}: stage-file format version {fv} is unknown to eigensweep {__version__} "
+            f"(knows {sorted(KNOWN_FORMAT_VERSIONS)}); upgrade eigensweep or {_FIX}"
+        )
+    st = str(attrs.get("stage"))
+    if stage is not None and st != stage:
+        raise StageFileError(f"{path}: holds stage {st!r}, expected {stage!r}; {_FIX}")
+    if st not in STAGE_VERSIONS or int(attrs.get("stage_version", -1)) != STAGE_VERSIONS[st]:
+        raise StageFileError(
+            f"{path}: {st} stage version {attrs.get('stage_version')} is not the current "
+            f"{STAGE_VERSIONS.get(st)}; {_FIX}"
+        )
+    k = str(attrs.get("key"))
+    if k != path.stem:
+        raise StageFileError(f"{path}: key {k} inside does not match the file name; {_FIX}")
+    if key is not None and k != key:
+        raise StageFileError(f"{path}: key {k} is not the expected {key}; {_FIX}")
+    params = json.loads(attrs["parameters"])
+    parents = json.loads(attrs["parent_keys"])
+    if not isinstance(params, dict) or not isinstance(parents, dict):
+        raise ValueError("parameters or parent keys are not JSON objects")
+    if stage_key(st, params, parents) != k:
+        raise StageFileError(
+            f"{path}: its stored parameters and parent keys do not hash to its key {k} "
+            f"(copied or edited file); {_FIX}"
+        )
+    return st, k, params, parents
 
 
 def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = None) -> StageData:
     """Read and verify a stage file.
 
-    Checks: readable HDF5, format name and version known, stage (and stage version) as expected,
-    key equals the file name (and ``key`` when given), content hash intact.
+    Checks: a regular file, readable HDF5, format name and version known, stage (and stage
+    version) as expected, key equals the file name (and ``key`` when given), the key recomputed
+    from the stored stage, version, parameters and parent keys, content hash intact. Every parse
+    of stored metadata happens inside these checks.
 
     Raises:
         StageFileError: one line naming the file, the problem and what to do.
     """
     path = Path(path)
-    fix = "delete it and rerun (eigensweep run recomputes it)"
-    if not path.is_file():
+    if not path.exists():
         raise StageFileError(f"{path}: stage file not found; run the sweep to create it")
+    try:
+        st_mode = os.stat(path)
+    except OSError as exc:
+        raise StageFileError(f"{path}: cannot read stage file ({exc.strerror})") from None
+    if not stat.S_ISREG(st_mode.st_mode):
+        raise StageFileError(f"{path}: not a regular file, so not a stage file")
+    if st_mode.st_size > MAX_STAGE_FILE_BYTES:
+        raise StageFileError(
+            f"{path}: {st_mode.st_size} bytes is larger than any stage file "
+            f"({MAX_STAGE_FILE_BYTES}); not a stage file"
+        )
+    if not h5py.is_hdf5(path):
+        raise StageFileError(f"{path}: not an HDF5 file, so not an eigensweep stage file")
     try:
         with h5py.File(path, "r") as f:
             attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
-            if attrs.get("format") != FORMAT:
-                raise StageFileError(
-                    f"{path}: not an eigensweep stage file (format {attrs.get('format')!r})"
-                )
-            fv = int(attrs.get("format_version", -1))
-            if fv not in KNOWN_FORMAT_VERSIONS:
-                raise StageFileError(
-                    f"{path}: stage-file format version {fv} is unknown to eigensweep {__version__} "
-                    f"(knows {sorted(KNOWN_FORMAT_VERSIONS)}); upgrade eigensweep or {fix}"
-                )
-            st = str(attrs.get("stage"))
-            if stage is not None and st != stage:
-                raise StageFileError(f"{path}: holds stage {st!r}, expected {stage!r}; {fix}")
-            if (
-                st not in STAGE_VERSIONS
-                or int(attrs.get("stage_version", -1)) != STAGE_VERSIONS[st]
-            ):
-                raise StageFileError(
-                    f"{path}: {st} stage version {attrs.get('stage_version')} is not the current "
-                    f"{STAGE_VERSIONS.get(st)}; {fix}"
-                )
-            k = str(attrs.get("key"))
-            if k != path.stem:
-                raise StageFileError(f"{path}: key {k} inside does not match the file name; {fix}")
-            if key is not None and k != key:
-                raise StageFileError(f"{path}: key {k} is not the expected {key}; {fix}")
+            st, k, params, parents = _check_header(path, attrs, stage, key)
             arrays: dict[str, np.ndarray] = {}
 
             def _grab(name: str, obj) -> None:
@@ -196,24 +383,18 @@ def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = 
                     arrays[name] = obj[()]
 
             f["data"].visititems(_grab)
-            meta_raw = f["meta"][()]
-            meta_text = meta_raw.decode() if isinstance(meta_raw, bytes) else str(meta_raw)
+            meta = _read_tree(f["results"])
+            meta_text = canonical_json(meta)
     except StageFileError:
         raise
-    except (OSError, KeyError, ValueError) as exc:
+    except (OSError, KeyError, ValueError, TypeError) as exc:
         raise StageFileError(
-            f"{path}: damaged or truncated stage file ({type(exc).__name__}); {fix}"
+            f"{path}: damaged or truncated stage file ({type(exc).__name__}); {_FIX}"
         ) from None
     if _content_hash(arrays, meta_text) != attrs.get("content_sha256"):
-        raise StageFileError(f"{path}: content checksum mismatch (file damaged); {fix}")
+        raise StageFileError(f"{path}: content checksum mismatch (file damaged); {_FIX}")
     return StageData(
-        stage=st,
-        key=k,
-        params=json.loads(attrs["parameters"]),
-        parents=json.loads(attrs["parent_keys"]),
-        arrays=arrays,
-        meta=json.loads(meta_text),
-        attrs=attrs,
+        stage=st, key=k, params=params, parents=parents, arrays=arrays, meta=meta, attrs=attrs
     )
 
 

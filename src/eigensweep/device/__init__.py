@@ -42,10 +42,8 @@ from eigensweep.device.reconcile import (
     CircuitDiagnostics,
     EnergyEstimate,
     ReconcileResult,
-    load_hdf5,
     plot_histograms,
     reconcile,
-    save_hdf5,
 )
 from eigensweep.device.synthetic import run_synthetic_device, statevector, write_results
 
@@ -70,7 +68,6 @@ __all__ = [
     "from_qasm3",
     "group_basis",
     "import_results",
-    "load_hdf5",
     "load_job_circuits",
     "load_manifest",
     "load_results",
@@ -79,7 +76,6 @@ __all__ = [
     "plot_histograms",
     "reconcile",
     "run_synthetic_device",
-    "save_hdf5",
     "state_circuit",
     "statevector",
     "to_qasm2",

@@ -24,6 +24,7 @@ import jsonschema
 
 from eigensweep.device.manifest import DeviceJob, atomic_write_text, load_manifest
 from eigensweep.errors import ResultsFileError, StageFileError
+from eigensweep.store import read_bounded
 
 __all__ = [
     "RESULTS_FORMAT",
@@ -93,6 +94,16 @@ def _no_duplicates(pairs):
 
 def _reject_constant(name):
     raise _Bad(f"contains {name}, which is not valid JSON; export plain integer counts")
+
+
+#: Counts at or above 2**53 cannot be summed exactly in double precision: refused.
+MAX_COUNT = 2**53
+
+
+def _parse_count(text: str) -> int:
+    if len(text.lstrip("-")) > 16:
+        raise _Bad(f"holds an integer of {len(text)} digits; counts must be below 2**53")
+    return int(text)
 
 
 def _is_int(v) -> bool:
@@ -200,6 +211,11 @@ def _validate(data, manifest: dict) -> dict[str, dict[str, int]]:
                         f"results/{cid}: count {_short(c)} for {bits!r} is not a whole "
                         "number; counts must be non-negative integers"
                     )
+                if c >= MAX_COUNT:
+                    raise _Bad(
+                        f"results/{cid}: count {c} for {bits!r} is not below 2**53; "
+                        "counts must be exact shot numbers"
+                    )
                 if c < 0:
                     raise _Bad(
                         f"results/{cid}: count {c} for {bits!r} is negative; "
@@ -220,23 +236,17 @@ def _validate(data, manifest: dict) -> dict[str, dict[str, int]]:
 
 def _read(path: Path, max_bytes: int):
     try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise _Bad("file not found; check the path") from None
-    if size > max_bytes:
-        raise _Bad(
-            f"file is {size} bytes, above the {max_bytes}-byte limit; check it is a counts "
-            "file, or pass a larger max_bytes"
-        )
-    try:
-        raw = path.read_bytes()
+        raw = read_bounded(path, max_bytes, "counts file", error=ResultsFileError)
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
         raise _Bad("is not UTF-8 text; export the results as JSON") from None
-    except OSError as err:
-        raise _Bad(f"cannot be read ({err.strerror}); check permissions") from None
     try:
-        return json.loads(text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant)
+        return json.loads(
+            text,
+            object_pairs_hook=_no_duplicates,
+            parse_constant=_reject_constant,
+            parse_int=_parse_count,
+        )
     except json.JSONDecodeError as err:
         raise _Bad(
             f"is not valid JSON ({err.msg} at line {err.lineno} column {err.colno}); "

@@ -23,8 +23,6 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
-import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -35,6 +33,7 @@ from eigensweep.circuit import Circuit
 from eigensweep.device.compile import fold_circuit, group_basis, measurement_circuit
 from eigensweep.device.qasm import to_qasm2, to_qasm3
 from eigensweep.errors import StageFileError
+from eigensweep.store import atomic_write_text
 
 __all__ = [
     "JOB_FORMAT",
@@ -67,26 +66,6 @@ COST_WARNING = (
 
 
 # ----------------------------------------------------------------------------- helpers
-
-
-def atomic_write_text(path: Path, text: str) -> Path:
-    """Write ``text`` to ``path`` via a temporary file in the same folder and ``os.replace``."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
-    return path
 
 
 def sha256_text(text: str) -> str:

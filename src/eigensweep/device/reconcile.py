@@ -37,8 +37,6 @@ __all__ = [
     "ReconcileResult",
     "reconcile",
     "plot_histograms",
-    "save_hdf5",
-    "load_hdf5",
 ]
 
 ESTIMATES = ("raw", "readout_mitigated", "symmetry_verified", "zne_linear", "zne_richardson")
@@ -193,36 +191,6 @@ def _est_dict(e: EnergyEstimate | None) -> dict | None:
 
 def _est_from(d: Mapping | None) -> EnergyEstimate | None:
     return None if d is None else EnergyEstimate(**{k: float(v) for k, v in d.items()})
-
-
-def save_hdf5(result: ReconcileResult, path: str | Path) -> Path:
-    """Write :meth:`ReconcileResult.to_store` to HDF5 (datasets + ``meta`` JSON attribute)."""
-    import h5py
-
-    path = Path(path)
-    arrays, meta = result.to_store()
-    tmp = path.with_name(f".{path.name}.tmp")
-    with h5py.File(tmp, "w") as fh:
-        fh.attrs["meta"] = json.dumps(meta)
-        for k, v in arrays.items():
-            fh.create_dataset(k, data=v)
-    tmp.replace(path)
-    return path
-
-
-def load_hdf5(path: str | Path) -> ReconcileResult:
-    """Read a result written by :func:`save_hdf5`."""
-    import h5py
-
-    arrays: dict[str, np.ndarray] = {}
-    with h5py.File(path, "r") as fh:
-        meta = json.loads(fh.attrs["meta"])
-        fh.visititems(
-            lambda name, obj: (
-                arrays.__setitem__(name, obj[()]) if isinstance(obj, h5py.Dataset) else None
-            )
-        )
-    return ReconcileResult.from_store(arrays, meta)
 
 
 # ----------------------------------------------------------------------------- core
