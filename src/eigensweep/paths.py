@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import sysconfig
 from pathlib import Path
 
 from .stage_table import STAGE_NAMES, stage_path
@@ -10,19 +11,30 @@ STAGES = STAGE_NAMES
 
 
 def repo_root() -> Path:
-    """The repository holding the Snakefile (the package is installed from it in editable mode)."""
-    here = Path(__file__).resolve()
-    for parent in here.parents:
-        if (parent / "Snakefile").is_file() and (parent / "workflow").is_dir():
-            return parent
+    """The folder holding the ``Snakefile``, ``workflow/``, ``profiles/`` and ``config/``.
+
+    For an editable install (``pip install -e .``, ``make install``) this is the repository
+    the package is imported from (``<repo>/src/eigensweep``); for an install from a wheel it is
+    ``<prefix>/share/eigensweep``, where the wheel puts the workflow (``pyproject.toml``,
+    ``[tool.setuptools.data-files]``).
+    """
+    here = Path(__file__).resolve().parent
+    repo = here.parents[1]
+    if (
+        here.parent.name == "src"
+        and (repo / "Snakefile").is_file()
+        and (repo / "workflow").is_dir()
+    ):
+        return repo
+    candidates = [parent / "share" / "eigensweep" for parent in here.parents]
+    candidates.append(Path(sysconfig.get_path("data")) / "share" / "eigensweep")
+    for root in candidates:
+        if (root / "Snakefile").is_file() and (root / "workflow").is_dir():
+            return root
     raise FileNotFoundError(
-        "eigensweep: cannot find the workflow (Snakefile); install eigensweep from its repository "
-        "with 'pip install -e .'"
+        "eigensweep: cannot find the workflow (Snakefile) of this installation; reinstall "
+        "eigensweep (pip install eigensweep, or pip install -e . in its repository)"
     )
-
-
-def schema_path() -> Path:
-    return repo_root() / "workflow" / "schemas" / "config.schema.yaml"
 
 
 def stage_file(stage: str, key: str, results: str | Path = "results") -> Path:

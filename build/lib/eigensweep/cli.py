@@ -1,0 +1,400 @@
+"""The ``eigensweep`` command: run, plan, show (more subcommands join as stages land).
+
+Errors for bad input are printed as one line (``eigensweep: <what>; <what to do>``) with exit
+status 2; ``--debug`` shows the traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+from .errors import EigensweepError
+from .stage_table import STAGE_NAMES
+
+DEFAULT_CONFIG = "config/config.yaml"
+
+
+def _default_config() -> Path:
+    local = Path(DEFAULT_CONFIG)
+    if local.is_file():
+        return local
+    from .paths import repo_root
+
+    return repo_root() / DEFAULT_CONFIG
+
+
+def _load_plan(config: str | None):
+    from .config import load_config
+    from .plan import build_plan
+    from .preflight import check_plan_chemistry
+
+    path = Path(config) if config else _default_config()
+    cfg = load_config(path)
+    plan = build_plan(cfg, base_dir=Path.cwd())
+    check_plan_chemistry(plan)
+    return path, cfg, plan
+
+
+def _status(node, results: Path) -> str:
+    from .store import read_stage
+
+    f = results / node.stage / f"{node.key}.h5"
+    if not f.exists():
+        return "pending"
+    try:
+        read_stage(f, stage=node.stage, key=node.key)
+    except EigensweepError:
+        return "damaged (will be recomputed)"
+    return "cached"
+
+
+def cmd_plan(args) -> int:
+    path, cfg, plan = _load_plan(args.config)
+    results = Path("results")
+    counts: dict[str, dict[str, int]] = {}
+    lines = []
+    for node in plan.nodes.values():
+        st = _status(node, results)
+        counts.setdefault(node.stage, {}).setdefault(st.split()[0], 0)
+        counts[node.stage][st.split()[0]] += 1
+        if args.verbose:
+            lines.append(f"{node.stage:<12} {node.key}  {st}")
+    print(f"plan for {path}: {len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs")
+    print(f"{'stage':<12} {'total':>6} {'cached':>7} {'pending':>8} {'damaged':>8}")
+    for stage in STAGE_NAMES:
+        c = counts.get(stage, {})
+        total = sum(c.values())
+        if not total:
+            continue
+        print(
+            f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}"
+        )
+    _print_costs(plan, results)
+    if args.verbose:
+        print("\n".join(lines))
+    return 0
+
+
+def _print_costs(plan, results: Path) -> None:
+    """Qubits, terms, measurement groups and shots per problem (known once its taper stage ran)."""
+    from .store import read_stage
+
+    seen: dict[str, dict] = {}
+    for row in plan.rows:
+        seen.setdefault(row["key_taper"], row)
+    print("\nmeasurement cost per qubit problem (shots for a 1.6 mHa standard error):")
+    print(
+        f"{'molecule':<10} {'point':<14} {'mapping':<14} {'taper':<6} {'qubits':>6} {'terms':>6} "
+        f"{'groups':>6} {'shots (1-norm bound)':>21} {'shots (variance at HF)':>23}"
+    )
+    unknown = 0
+    for key, row in seen.items():
+        f = results / "taper" / f"{key}.h5"
+        try:
+            m = read_stage(f, stage="taper", key=key).meta
+        except EigensweepError:
+            unknown += 1
+            continue
+        var = m.get("shots_variance_at_reference")
+        print(
+            f"{row['molecule']:<10} {row['point']:<14} {row['mapping']:<14} {str(row['tapered']):<6} "
+            f"{m['n_qubits']:>6} {m['n_terms']:>6} {m['n_qwc_groups']:>6} "
+            f"{m['shots_one_norm_bound']:>21.3e} {(f'{var:.3e}' if var else '-'):>23}"
+        )
+    if unknown:
+        print(f"({unknown} problem(s) not yet mapped: costs appear once their taper stage has run)")
+
+
+def _snakemake_cmd(args, config: Path) -> list[str]:
+    from .paths import repo_root
+
+    root = repo_root()
+    cmd = [
+        sys.executable,
+        "-m",
+        "snakemake",
+        "--snakefile",
+        str(root / "Snakefile"),
+        "--config",
+        f"sweep={config.resolve()}",
+        "--directory",
+        str(Path.cwd()),
+    ]
+    profile = args.profile or "local"
+    prof_dir = Path(profile) if Path(profile).is_dir() else root / "profiles" / profile
+    if not prof_dir.is_dir():
+        raise EigensweepError(
+            f"--profile {profile}: no such profile; use local, slurm or a folder with config.yaml"
+        )
+    cmd += ["--workflow-profile", str(prof_dir)]
+    cmd += ["--cores", str(args.cores or os.cpu_count() or 1)]
+    if args.dry_run:
+        cmd.append("--dry-run")
+    return cmd + list(args.snakemake_args or [])
+
+
+def cmd_run(args) -> int:
+    path, cfg, plan = _load_plan(args.config)
+    lock = None if args.dry_run else _folder_lock()
+    try:
+        return _run_locked(args, path, plan, lock is not None)
+    finally:
+        if lock is not None:
+            lock.close()
+
+
+def _run_locked(args, path: Path, plan, locked: bool) -> int:
+    results = Path("results")
+    if locked:
+        # Under the folder lock no other writer exists: temporary files are leftovers of
+        # killed jobs (never stage files, which appear only by an atomic rename).
+        for tmp in results.glob("*/.*.tmp"):
+            tmp.unlink(missing_ok=True)
+    status = {key: _status(node, results) for key, node in plan.nodes.items()}
+    pending = [plan.nodes[k] for k, st in status.items() if st != "cached"]
+    damaged = [plan.nodes[k] for k, st in status.items() if st.startswith("damaged")]
+    print(
+        f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
+        f"{len(plan.nodes) - len(pending)} cached, {len(pending)} to run",
+        flush=True,
+    )
+    if damaged and not args.dry_run:
+        moved = _quarantine(damaged, results)
+        print(
+            f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be recomputed",
+            flush=True,
+        )
+    cmd = _snakemake_cmd(args, path)
+    if locked:
+        cmd.append("--nolock")
+    if pending:
+        # Snakemake does not rebuild a missing intermediate file whose descendants exist; the
+        # plan knows which stage files are missing or damaged, so ask for exactly those.
+        cmd += ["--forcerun", *sorted(f"results/{n.stage}/{n.key}.h5" for n in pending)]
+    t0 = time.perf_counter()
+    proc = subprocess.run(cmd)
+    dt = time.perf_counter() - t0
+    if proc.returncode != 0:
+        print(
+            f"eigensweep: the sweep stopped with errors after {dt:.1f} s; see the lines above and "
+            "logs/<stage>/<key>.log; finished stages are kept, rerun to resume",
+            file=sys.stderr,
+        )
+        return proc.returncode
+    if not args.dry_run:
+        print(
+            f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/"
+        )
+    return 0
+
+
+def _folder_lock():
+    """One sweep at a time per folder: an OS file lock, released even if the process is killed.
+
+    A second `eigensweep run` in the same folder waits for the first, then finds the shared
+    stages cached. Snakemake's own lock is turned off under it (it survives a SIGKILL and would
+    block the resume).
+    """
+    import fcntl
+
+    Path(".snakemake").mkdir(exist_ok=True)
+    fh = open(".snakemake/eigensweep-run.lock", "w")  # noqa: SIM115 (held for the whole run)
+    try:
+        fcntl.flock(fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        print(
+            "eigensweep: another sweep is running in this folder; waiting for it to finish",
+            flush=True,
+        )
+        fcntl.flock(fh, fcntl.LOCK_EX)
+    return fh
+
+
+def _quarantine(nodes, results: Path) -> Path:
+    """Move damaged stage files aside (never delete evidence), return the folder."""
+    folder = results / ".damaged" / time.strftime("%Y%m%d-%H%M%S")
+    for node in nodes:
+        src = results / node.stage / f"{node.key}.h5"
+        dst = folder / node.stage / src.name
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        os.replace(src, dst)
+    return folder
+
+
+def cmd_show(args) -> int:
+    from .store import read_stage
+
+    sd = read_stage(args.file)
+    print(f"{args.file}: eigensweep stage file, stage {sd.stage}, key {sd.key}")
+    for k in ("format_version", "stage_version", "created", "host", "wall_s"):
+        print(f"  {k}: {sd.attrs.get(k)}")
+    print(f"  parents: {json.dumps(sd.parents)}")
+    print(f"  software: {sd.attrs.get('software')}")
+    print(f"  parameters: {json.dumps(sd.params, sort_keys=True)}")
+    print("  arrays:")
+    for name, a in sorted(sd.arrays.items()):
+        print(f"    {name:<24} {str(a.dtype):<8} {a.shape}")
+    print("  results:")
+    for k, v in sd.meta.items():
+        text = json.dumps(v)
+        print(f"    {k}: {text if len(text) < 200 else text[:197] + '...'}")
+    return 0
+
+
+def cmd_report(args) -> int:
+    path, cfg, plan = _load_plan(args.config)
+    args.profile, args.cores, args.dry_run, args.snakemake_args = (
+        "local",
+        1,
+        False,
+        ["--report", args.output],
+    )
+    proc = subprocess.run(_snakemake_cmd(args, path))
+    if proc.returncode == 0:
+        print(f"eigensweep: report written to {args.output}")
+    return proc.returncode
+
+
+def cmd_archive(args) -> int:
+    from .archive import make_archive
+
+    path, cfg, plan = _load_plan(args.config)
+    stamp = time.strftime("%Y%m%d-%H%M%S")
+    out = Path(args.output or f"eigensweep-archive-{stamp}.tar.gz")
+    report = Path(args.report) if args.report else Path("results/report.html")
+    make_archive(plan, [path], out, results="results", report=report)
+    print(
+        f"eigensweep: wrote {out} ({out.stat().st_size / 1e6:.1f} MB); check it with: eigensweep verify {out}"
+    )
+    return 0
+
+
+def cmd_verify(args) -> int:
+    from .archive import verify_archive
+
+    rep = verify_archive(args.archive, stage=None if args.stage == "none" else args.stage)
+    print(f"eigensweep: {args.archive}: {rep.n_files} files match their SHA-256")
+    if rep.rerun_stage:
+        print(
+            f"eigensweep: re-ran {rep.rerun_stage} {rep.rerun_key} from archived inputs: "
+            f"largest difference {rep.max_abs_diff:.3g}"
+        )
+    print("eigensweep: archive verified")
+    return 0
+
+
+def cmd_import_counts(args) -> int:
+    from .device import import_results
+    from .store import read_stage
+
+    folder = Path(args.job)
+    if folder.suffix == ".h5":
+        folder = folder.with_suffix("")
+    if not (folder / "manifest.json").is_file():
+        candidate = Path("results") / "export" / args.job
+        if (candidate / "manifest.json").is_file():
+            folder = candidate
+        else:
+            raise EigensweepError(
+                f"{args.job}: no exported job there (manifest.json missing); give results/export/<key> "
+                "or the export key from results/device_summary.csv"
+            )
+    key = folder.name
+    read_stage(folder.with_suffix(".h5"), stage="export", key=key)
+    dest = Path("results") / "returned" / f"{key}.json"
+    import_results(args.file, folder, dest)
+    print(
+        f"eigensweep: imported {args.file} -> {dest}; the next 'eigensweep run' reconciles this point "
+        "(config device.kind must be external)"
+    )
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    ap = argparse.ArgumentParser(
+        prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules."
+    )
+    ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
+    sub = ap.add_subparsers(dest="command", required=True)
+
+    p = sub.add_parser("run", help="run the sweep (Snakemake), computing only what is not cached")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("--cores", type=int, help="cores to use (default: all)")
+    p.add_argument("--profile", help="Snakemake profile: local (default), slurm, or a folder")
+    p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
+    p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
+    p.set_defaults(func=cmd_run)
+
+    p = sub.add_parser("plan", help="list the stage jobs of a sweep: cached or pending")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
+    p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser("report", help="write the Snakemake HTML report of a finished sweep")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument(
+        "--output", default="results/report.html", help="report file (default results/report.html)"
+    )
+    p.set_defaults(func=cmd_report)
+
+    p = sub.add_parser(
+        "archive", help="pack config, stage files, summary, plots and environment into a tar.gz"
+    )
+    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("--output", help="archive file (default eigensweep-archive-<time>.tar.gz)")
+    p.add_argument(
+        "--report", help="Snakemake report to include (default results/report.html if present)"
+    )
+    p.set_defaults(func=cmd_archive)
+
+    p = sub.add_parser("verify", help="check an archive's hashes and re-run one stage from it")
+    p.add_argument("archive")
+    p.add_argument(
+        "--stage",
+        default="hamiltonian",
+        choices=[*STAGE_NAMES, "none"],
+        help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)",
+    )
+    p.set_defaults(func=cmd_verify)
+
+    p = sub.add_parser(
+        "import-counts", help="check returned device counts against an exported job and import them"
+    )
+    p.add_argument(
+        "file", help="returned results in eigensweep's JSON format (docs/counts-format.md)"
+    )
+    p.add_argument("--job", required=True, help="export key or folder results/export/<key>")
+    p.set_defaults(func=cmd_import_counts)
+
+    p = sub.add_parser("show", help="provenance and contents of a stage file")
+    p.add_argument("file")
+    p.set_defaults(func=cmd_show)
+    return ap
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    if getattr(args, "snakemake_args", None) and args.snakemake_args[:1] == ["--"]:
+        args.snakemake_args = args.snakemake_args[1:]
+    if args.debug:
+        os.environ["EIGENSWEEP_DEBUG"] = "1"
+    try:
+        return args.func(args)
+    except EigensweepError as exc:
+        if args.debug:
+            raise
+        print(f"eigensweep: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("eigensweep: interrupted; finished stages are kept, rerun to resume", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,599 @@
+"""Build and write a device job: measurement circuits, calibration circuits and a manifest.
+
+A job holds, for one optimized circuit and one qubit Hamiltonian,
+
+* one measurement circuit per qubit-wise-commuting (QWC) group and per odd noise-scale factor
+  (global unitary folding, Giurgica-Tiron et al., IEEE QCE 2020, arXiv:2005.10921, of the
+  whole circuit including the basis change), and
+* two readout-calibration circuits (prepare all zeros / all ones and measure), which give
+  every qubit's 2x2 confusion matrix under the uncorrelated (tensored) readout-error model.
+
+Shots are split across measurement circuits in proportion to the group weight
+``w_g = sum_{i in g} |c_i|`` (equally across scale factors), with a minimum per circuit. With
+``N_g`` shots for group ``g`` the variance of the energy estimate obeys the 1-norm bound
+``Var(E) <= sum_g w_g^2 / N_g``; with the proportional split this is ``(sum_g w_g)^2 / N``,
+so ``N = (||c||_1 / eps)^2`` shots reach a standard error ``eps``.
+
+The manifest (``manifest.json``) and the returned-results format are specified in
+``docs/counts-format.md``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import tempfile
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from eigensweep.circuit import Circuit
+from eigensweep.device.compile import fold_circuit, group_basis, measurement_circuit
+from eigensweep.device.qasm import to_qasm2, to_qasm3
+from eigensweep.errors import StageFileError
+
+__all__ = [
+    "JOB_FORMAT",
+    "JOB_FORMAT_VERSION",
+    "BIT_ORDER",
+    "DeviceJob",
+    "CircuitRecord",
+    "build_job",
+    "write_job",
+    "load_manifest",
+    "load_job_circuits",
+    "pauli_labels",
+    "default_groups",
+    "allocate_shots",
+    "atomic_write_text",
+]
+
+JOB_FORMAT = "eigensweep-device-job"
+JOB_FORMAT_VERSION = 1
+BIT_ORDER = "qubit k = character k of the bitstring"
+DEFAULT_TARGET_SE = 1.6e-3  # hartree ("chemical accuracy")
+IDEAL_CUTOFF = 1e-12
+
+COST_WARNING = (
+    "**Warning:** time on a real quantum device costs money and queue time. The shot numbers "
+    "here come from a worst-case 1-norm bound and ignore readout and gate noise, drift and "
+    "mitigation overheads beyond the factors shown: treat them as rough estimates and check "
+    "the price with your provider before submitting."
+)
+
+
+# ----------------------------------------------------------------------------- helpers
+
+
+def atomic_write_text(path: Path, text: str) -> Path:
+    """Write ``text`` to ``path`` via a temporary file in the same folder and ``os.replace``."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return path
+
+
+def sha256_text(text: str) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def pauli_labels(ham) -> list[str]:
+    """Labels of a PauliSum-like object (``x``, ``z`` bool arrays): char ``k`` = qubit ``k``."""
+    x = np.asarray(ham.x, dtype=bool).reshape(-1, int(ham.n_qubits))
+    z = np.asarray(ham.z, dtype=bool).reshape(-1, int(ham.n_qubits))
+    table = np.array(["I", "X", "Z", "Y"])  # index x + 2 z
+    return ["".join(row) for row in table[x.astype(int) + 2 * z.astype(int)]]
+
+
+def _real_coeffs(ham) -> np.ndarray:
+    c = np.asarray(ham.coeffs)
+    if np.iscomplexobj(c):
+        if np.max(np.abs(c.imag), initial=0.0) > 1e-10:
+            raise ValueError("Hamiltonian coefficients must be real (Hermitian Pauli sum)")
+        c = c.real
+    return c.astype(float).reshape(-1)
+
+
+def _greedy_qwc(labels: Sequence[str], coeffs: np.ndarray, terms: Sequence[int]) -> list:
+    """Greedy QWC grouping by decreasing |c| (used only if the grouping module is absent)."""
+    groups: list[tuple[list[str], list[int]]] = []
+    for i in sorted(terms, key=lambda t: (-abs(coeffs[t]), t)):
+        lab = labels[i]
+        for basis, members in groups:
+            if all(b == "I" or ch == "I" or b == ch for b, ch in zip(basis, lab, strict=True)):
+                for k, ch in enumerate(lab):
+                    if ch != "I":
+                        basis[k] = ch
+                members.append(i)
+                break
+        else:
+            groups.append((list(lab), [i]))
+    return [np.array(sorted(members), dtype=int) for _, members in groups]
+
+
+def default_groups(ham) -> list[np.ndarray]:
+    """QWC groups of the non-identity terms from :func:`eigensweep.qubit.grouping.qwc_groups`.
+
+    Falls back to a greedy largest-coefficient-first grouping while that module is not
+    installed.
+    """
+    try:
+        from eigensweep.qubit.grouping import qwc_groups
+    except ImportError:
+        labels = pauli_labels(ham)
+        terms = [i for i, lab in enumerate(labels) if set(lab) != {"I"}]
+        return _greedy_qwc(labels, _real_coeffs(ham), terms)
+    return [np.asarray(g, dtype=int).reshape(-1) for g in qwc_groups(ham)]
+
+
+def allocate_shots(total: int, weights: Sequence[float], minimum: int) -> list[int]:
+    """Integer shots proportional to ``weights`` with at least ``minimum`` each.
+
+    Circuits whose proportional share falls below the minimum are raised to it and the rest
+    is re-split among the others; largest-remainder rounding keeps the sum equal to ``total``
+    (unless ``total < minimum * len(weights)``, when every circuit gets ``minimum``).
+    """
+    w = np.maximum(np.asarray(weights, dtype=float), 0.0)
+    n = w.size
+    if n == 0:
+        return []
+    if total <= minimum * n:
+        return [int(minimum)] * n
+    fixed = np.zeros(n, dtype=bool)
+    while True:
+        free = total - minimum * fixed.sum()
+        wsum = w[~fixed].sum()
+        share = np.where(fixed, float(minimum), 0.0)
+        if wsum <= 0:
+            share[~fixed] = free / max(1, (~fixed).sum())
+        else:
+            share[~fixed] = free * w[~fixed] / wsum
+        low = (~fixed) & (share < minimum)
+        if not low.any():
+            break
+        fixed |= low
+    base = np.floor(share).astype(int)
+    rest = int(total - base.sum())
+    order = np.argsort(-(share - base), kind="stable")
+    base[order[:rest]] += 1
+    return [int(b) for b in base]
+
+
+def _extrapolation_variance_factors(scales: Sequence[int]) -> tuple[float, float]:
+    """Variance inflation of the zero-noise estimate when N shots are split equally.
+
+    Returns (Richardson, linear least squares) factors relative to spending all N shots on
+    scale 1: ``m * sum_j gamma_j^2`` with ``gamma_j = prod_{k != j} l_k / (l_k - l_j)``, and
+    ``m * [(A^T A)^{-1}]_{00}`` for the straight-line fit.
+    """
+    lam = np.asarray(scales, dtype=float)
+    m = lam.size
+    if m < 2:
+        return 1.0, 1.0
+    gam = np.array(
+        [np.prod([lam[k] / (lam[k] - lam[j]) for k in range(m) if k != j]) for j in range(m)]
+    )
+    a = np.stack([np.ones(m), lam], axis=1)
+    lin = float(np.linalg.inv(a.T @ a)[0, 0])
+    return float(m * np.sum(gam**2)), float(m * lin)
+
+
+# ----------------------------------------------------------------------------- job
+
+
+@dataclass
+class CircuitRecord:
+    """One circuit of a job, as listed in ``manifest.json`` (field names are the JSON keys)."""
+
+    circuit_id: str
+    kind: str  # "measure" | "calibration"
+    group: int | None
+    scale_factor: int
+    n_qubits: int
+    basis: str
+    pauli_terms: list[dict]
+    shots: int
+    sha256: str
+    qasm3_file: str
+    qasm2_file: str
+    ideal_distribution: dict[str, float]
+    cnot_count: int
+    depth: int
+    n_gates: int
+    prepared: str | None = None
+    bit_order: str = BIT_ORDER
+
+    def to_dict(self) -> dict:
+        return {
+            "circuit_id": self.circuit_id,
+            "kind": self.kind,
+            "group": self.group,
+            "scale_factor": self.scale_factor,
+            "n_qubits": self.n_qubits,
+            "bit_order": self.bit_order,
+            "basis": self.basis,
+            "prepared": self.prepared,
+            "pauli_terms": self.pauli_terms,
+            "shots": self.shots,
+            "sha256": self.sha256,
+            "qasm3_file": self.qasm3_file,
+            "qasm2_file": self.qasm2_file,
+            "cnot_count": self.cnot_count,
+            "depth": self.depth,
+            "n_gates": self.n_gates,
+            "ideal_distribution": self.ideal_distribution,
+        }
+
+
+@dataclass
+class DeviceJob:
+    """A complete device job: circuits, their OpenQASM texts, manifest fields and summary."""
+
+    job_name: str
+    job_id: str
+    n_qubits: int
+    identity: float
+    terms: list[dict]
+    groups: list[dict]
+    scale_factors: tuple[int, ...]
+    shots_total_requested: int
+    target_standard_error: float
+    shots_needed: dict[str, int]
+    meta: dict
+    records: list[CircuitRecord]
+    state_preparation: dict[str, int]
+    circuits: dict[str, Circuit] = field(repr=False)
+    qasm3: dict[str, str] = field(repr=False)
+    qasm2: dict[str, str] = field(repr=False)
+    summary: str = field(default="", repr=False)
+
+    @property
+    def shots_total(self) -> int:
+        return int(sum(r.shots for r in self.records))
+
+    def to_manifest(self) -> dict:
+        """The ``manifest.json`` content (a plain JSON-serialisable dict)."""
+        return {
+            "format": JOB_FORMAT,
+            "format_version": JOB_FORMAT_VERSION,
+            "job_id": self.job_id,
+            "job_name": self.job_name,
+            "n_qubits": self.n_qubits,
+            "bit_order": BIT_ORDER,
+            "measurement": "c[k] = measure q[k] for every qubit k",
+            "hamiltonian": {
+                "identity": self.identity,
+                "terms": self.terms,
+                "one_norm": float(sum(abs(t["coeff"]) for t in self.terms)),
+            },
+            "groups": self.groups,
+            "scale_factors": list(self.scale_factors),
+            "folding": "global unitary folding G (G^dagger G)^((s-1)/2), arXiv:2005.10921",
+            "shots_total_requested": self.shots_total_requested,
+            "shots_total": self.shots_total,
+            "target_standard_error": self.target_standard_error,
+            "shots_needed": self.shots_needed,
+            "meta": self.meta,
+            "state_preparation": dict(self.state_preparation),
+            "circuits": [r.to_dict() for r in self.records],
+        }
+
+
+def _id_width(n: int) -> int:
+    return max(2, len(str(max(n - 1, 0))))
+
+
+def build_job(
+    circuit: Circuit,
+    ham,
+    *,
+    shots_total: int,
+    scale_factors: Sequence[int] = (1, 3, 5),
+    calibration: bool = True,
+    job_name: str,
+    meta: Mapping | None = None,
+    groups: Sequence[Sequence[int]] | None = None,
+    min_shots: int = 100,
+    calibration_fraction: float = 0.1,
+    target_se: float = DEFAULT_TARGET_SE,
+) -> DeviceJob:
+    """Build the measurement and calibration circuits for ``circuit`` and Hamiltonian ``ham``.
+
+    ``ham`` is a PauliSum (``x``, ``z``, ``coeffs``, ``n_qubits``); ``groups`` (term indices,
+    identity excluded) default to :func:`default_groups`. A fraction ``calibration_fraction``
+    of ``shots_total`` goes to the two calibration circuits; the rest is split over groups in
+    proportion to ``sum |c|`` and equally over ``scale_factors`` (odd, positive, distinct).
+    """
+    n = int(circuit.n_qubits)
+    if int(ham.n_qubits) != n:
+        raise ValueError(f"Hamiltonian acts on {ham.n_qubits} qubits, circuit on {n}")
+    if shots_total < 1 or min_shots < 1:
+        raise ValueError("shots_total and min_shots must be positive")
+    if not 0 <= calibration_fraction < 1:
+        raise ValueError("calibration_fraction must lie in [0, 1)")
+    scales = tuple(int(s) for s in scale_factors)
+    if not scales or len(set(scales)) != len(scales):
+        raise ValueError(f"scale_factors must be distinct odd positive integers, got {scales}")
+    for s in scales:
+        fold_circuit(Circuit(n), s)  # validates oddness / positivity
+    meta = dict(meta or {})
+    try:
+        json.dumps(meta, allow_nan=False)
+    except (TypeError, ValueError) as err:
+        raise ValueError(f"meta must be JSON-serialisable: {err}") from None
+
+    labels = pauli_labels(ham)
+    coeffs = _real_coeffs(ham)
+    identity_idx = {i for i, lab in enumerate(labels) if set(lab) == {"I"}}
+    identity = float(sum(coeffs[i] for i in identity_idx))
+    terms = [
+        {"index": i, "label": labels[i], "coeff": float(coeffs[i])}
+        for i in range(len(labels))
+        if i not in identity_idx
+    ]
+    group_idx = [np.asarray(g, dtype=int).reshape(-1) for g in (groups or default_groups(ham))]
+    group_idx = [g for g in group_idx if g.size]
+    seen = np.concatenate(group_idx) if group_idx else np.array([], dtype=int)
+    want = sorted(t["index"] for t in terms)
+    if sorted(seen.tolist()) != want:
+        raise ValueError("groups must contain every non-identity term index exactly once")
+
+    group_info = []
+    for g, idx in enumerate(group_idx):
+        basis = group_basis([labels[i] for i in idx], n)  # raises if not QWC
+        weight = float(np.sum(np.abs(coeffs[idx])))
+        group_info.append(
+            {"group": g, "basis": basis, "terms": [int(i) for i in idx], "weight": weight}
+        )
+
+    # ---- shots
+    n_cal = 2 if calibration else 0
+    cal_budget = int(round(calibration_fraction * shots_total)) if calibration else 0
+    cal_shots = allocate_shots(cal_budget, [1.0] * n_cal, min_shots) if n_cal else []
+    weights = [gi["weight"] for gi in group_info for _ in scales]
+    meas_shots = allocate_shots(max(shots_total - sum(cal_shots), 0), weights, min_shots)
+
+    # ---- circuits
+    w = _id_width(len(group_info))
+    records: list[CircuitRecord] = []
+    circuits: dict[str, Circuit] = {}
+    q3: dict[str, str] = {}
+    q2: dict[str, str] = {}
+
+    def add(cid, kind, grp, scale, basis, pterms, shots, circ, ideal, prepared=None):
+        text3 = to_qasm3(circ, name=f"eigensweep circuit {cid} of job {job_name}")
+        text2 = to_qasm2(circ, name=f"eigensweep circuit {cid} of job {job_name}")
+        circuits[cid], q3[cid], q2[cid] = circ, text3, text2
+        records.append(
+            CircuitRecord(
+                circuit_id=cid,
+                kind=kind,
+                group=grp,
+                scale_factor=scale,
+                n_qubits=n,
+                basis=basis,
+                pauli_terms=pterms,
+                shots=int(shots),
+                sha256=sha256_text(text3),
+                qasm3_file=f"{cid}.qasm",
+                qasm2_file=f"{cid}.qasm2",
+                ideal_distribution=ideal,
+                cnot_count=circ.cnot_count,
+                depth=circ.depth,
+                n_gates=len(circ.gates),
+                prepared=prepared,
+            )
+        )
+
+    from eigensweep.device.synthetic import probabilities_to_distribution
+    from eigensweep.qubit.statevector import simulate
+
+    k = 0
+    for gi in group_info:
+        base = measurement_circuit(circuit, gi["basis"])
+        probs = np.abs(simulate(base)) ** 2
+        ideal = probabilities_to_distribution(probs / probs.sum(), n, IDEAL_CUTOFF)
+        pterms = [
+            {"index": int(i), "label": labels[i], "coeff": float(coeffs[i])} for i in gi["terms"]
+        ]
+        for s in scales:
+            cid = f"g{gi['group']:0{w}d}-fold{s}"
+            circ = fold_circuit(base, s)
+            add(cid, "measure", gi["group"], s, gi["basis"], pterms, meas_shots[k], circ, ideal)
+            k += 1
+    if calibration:
+        for bit, shots in zip("01", cal_shots, strict=True):
+            circ = Circuit(n)
+            if bit == "1":
+                for q in range(n):
+                    circ.append("x", (q,))
+            add(
+                f"cal-{bit}",
+                "calibration",
+                None,
+                1,
+                "Z" * n,
+                [],
+                shots,
+                circ,
+                {bit * n: 1.0},
+                prepared=bit * n,
+            )
+
+    job_id = hashlib.sha256("\n".join(sorted(r.sha256 for r in records)).encode()).hexdigest()
+
+    one_norm = float(sum(abs(t["coeff"]) for t in terms))
+    base_needed = math.ceil((one_norm / target_se) ** 2) if one_norm > 0 else 0
+    f_rich, f_lin = _extrapolation_variance_factors(scales)
+    shots_needed = {
+        "scale_1_only": int(base_needed),
+        "zne_linear": int(math.ceil(base_needed * f_lin)),
+        "zne_richardson": int(math.ceil(base_needed * f_rich)),
+    }
+    job = DeviceJob(
+        job_name=str(job_name),
+        job_id=job_id,
+        n_qubits=n,
+        identity=identity,
+        terms=terms,
+        groups=group_info,
+        scale_factors=scales,
+        shots_total_requested=int(shots_total),
+        target_standard_error=float(target_se),
+        shots_needed=shots_needed,
+        meta=meta,
+        records=records,
+        state_preparation={
+            "cnot_count": circuit.cnot_count,
+            "depth": circuit.depth,
+            "n_gates": len(circuit.gates),
+        },
+        circuits=circuits,
+        qasm3=q3,
+        qasm2=q2,
+    )
+    job.summary = _summary(job, one_norm, f_lin, f_rich)
+    return job
+
+
+def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> str:
+    meas = [r for r in job.records if r.kind == "measure"]
+    s1 = [r for r in meas if r.scale_factor == min(job.scale_factors)]
+    var_bound = 0.0
+    for gi in job.groups:
+        n_g = sum(r.shots for r in s1 if r.group == gi["group"])
+        var_bound += gi["weight"] ** 2 / max(n_g, 1)
+    se_bound = math.sqrt(var_bound)
+    lines = [
+        f"# Device job `{job.job_name}`",
+        "",
+        f"- job id: `{job.job_id}`",
+        f"- qubits: {job.n_qubits}; bit order: {BIT_ORDER} (qubit 0 first)",
+        f"- circuits: {len(job.records)} ({len(meas)} measurement, "
+        f"{len(job.records) - len(meas)} readout calibration)",
+        f"- Pauli terms: {len(job.terms)} in {len(job.groups)} qubit-wise-commuting groups; "
+        f"identity offset {job.identity:.10g} Ha; 1-norm of the other coefficients "
+        f"{one_norm:.6g} Ha",
+        f"- state preparation (the optimized circuit, before basis change and folding): "
+        f"{job.state_preparation['cnot_count']} CNOTs, depth {job.state_preparation['depth']}, "
+        f"{job.state_preparation['n_gates']} gates",
+        f"- noise-scale factors (global folding): {', '.join(map(str, job.scale_factors))}",
+        f"- total shots: {job.shots_total} (requested {job.shots_total_requested})",
+        "",
+        "## Circuits",
+        "",
+        "| circuit | kind | group | basis | scale | terms | CNOTs | depth | gates | shots |",
+        "|---|---|---|---|---|---|---|---|---|---|",
+    ]
+    for r in job.records:
+        grp = "" if r.group is None else str(r.group)
+        lines.append(
+            f"| {r.circuit_id} | {r.kind} | {grp} | {r.basis} | {r.scale_factor} | "
+            f"{len(r.pauli_terms)} | {r.cnot_count} | {r.depth} | {r.n_gates} | {r.shots} |"
+        )
+    eps = job.target_standard_error
+    lines += [
+        "",
+        "## Shot estimates (1-norm bound)",
+        "",
+        f"- standard-error bound of the scale-1 energy with these shots: {se_bound * 1e3:.3g} mHa",
+        f"- shots needed for a standard error of {eps * 1e3:.3g} mHa from the bound "
+        f"N = (||c||_1 / eps)^2: {job.shots_needed['scale_1_only']} at scale 1 only",
+        f"- with zero-noise extrapolation over {len(job.scale_factors)} scales (shots split "
+        f"equally): linear fit x{f_lin:.3g} -> {job.shots_needed['zne_linear']}, "
+        f"Richardson x{f_rich:.3g} -> {job.shots_needed['zne_richardson']}",
+        "",
+        COST_WARNING,
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def write_job(job: DeviceJob, folder: str | Path) -> Path:
+    """Write ``<id>.qasm``, ``<id>.qasm2``, ``job-summary.md`` and ``manifest.json`` atomically.
+
+    The manifest is written last, so a folder with a manifest always has all its circuits.
+    Returns the manifest path.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    for r in job.records:
+        atomic_write_text(folder / r.qasm3_file, job.qasm3[r.circuit_id])
+        atomic_write_text(folder / r.qasm2_file, job.qasm2[r.circuit_id])
+    atomic_write_text(folder / "job-summary.md", job.summary)
+    text = json.dumps(job.to_manifest(), indent=1, allow_nan=False) + "\n"
+    return atomic_write_text(folder / "manifest.json", text)
+
+
+_MANIFEST_KEYS = ("job_id", "n_qubits", "bit_order", "hamiltonian", "circuits", "scale_factors")
+_RECORD_KEYS = ("circuit_id", "kind", "scale_factor", "pauli_terms", "shots", "sha256")
+
+
+def load_manifest(path: str | Path) -> dict:
+    """Read and check ``manifest.json`` (a job folder or the file itself)."""
+    path = Path(path)
+    if path.is_dir():
+        path = path / "manifest.json"
+    hint = "re-export the device job with write_job"
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise StageFileError(f"{path}: manifest not found; {hint}") from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as err:
+        msg = " ".join(str(err).split())
+        raise StageFileError(f"{path}: manifest is not readable JSON ({msg}); {hint}") from None
+    if not isinstance(data, dict) or data.get("format") != JOB_FORMAT:
+        raise StageFileError(f"{path}: not an {JOB_FORMAT} manifest; {hint}")
+    if data.get("format_version") != JOB_FORMAT_VERSION:
+        raise StageFileError(
+            f"{path}: manifest format_version {data.get('format_version')!r} is not supported "
+            f"(this eigensweep reads {JOB_FORMAT_VERSION}); {hint}"
+        )
+    missing = [k for k in _MANIFEST_KEYS if k not in data]
+    if missing or not isinstance(data["circuits"], list):
+        raise StageFileError(f"{path}: manifest lacks {missing or ['circuits']}; {hint}")
+    for rec in data["circuits"]:
+        if not isinstance(rec, dict) or any(k not in rec for k in _RECORD_KEYS):
+            raise StageFileError(f"{path}: a circuit record lacks required fields; {hint}")
+    return data
+
+
+def load_job_circuits(folder: str | Path) -> tuple[dict, list[tuple[dict, Circuit]]]:
+    """Manifest and parsed OpenQASM 3 circuits of a job folder, checking each SHA-256."""
+    from eigensweep.device.qasm import QasmReadError, from_qasm3
+
+    folder = Path(folder)
+    manifest = load_manifest(folder)
+    folder = folder if folder.is_dir() else folder.parent
+    items = []
+    for rec in manifest["circuits"]:
+        f = folder / rec.get("qasm3_file", f"{rec['circuit_id']}.qasm")
+        try:
+            text = f.read_text(encoding="utf-8")
+        except OSError:
+            raise StageFileError(f"{f}: circuit file missing; re-export the device job") from None
+        if sha256_text(text) != rec["sha256"]:
+            raise StageFileError(
+                f"{f}: SHA-256 differs from manifest.json (file edited?); re-export the job"
+            )
+        try:
+            items.append((rec, from_qasm3(text)))
+        except QasmReadError as err:
+            raise StageFileError(f"{f}: cannot read circuit ({err}); re-export the job") from None
+    return manifest, items

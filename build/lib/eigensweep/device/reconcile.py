@@ -1,0 +1,533 @@
+"""Reconcile returned device counts with the exported job: energies, mitigation, diagnostics.
+
+Estimates (all in hartree, each with a bootstrap 95% confidence interval):
+
+* ``raw`` -- sum of ``c_i <P_i>`` from the scale-1 measurement circuits' counts;
+* ``readout_mitigated`` -- the same after readout mitigation by per-qubit calibration
+  matrices (tensored inverse + projection onto probabilities, see
+  :mod:`eigensweep.device.mitigation`);
+* ``symmetry_verified`` -- post-selection on known Z2 symmetries (Bonet-Monroig et al., PRA 98,
+  062339 (2018); McArdle, Yuan, Benjamin, PRL 122, 180501 (2019)) for every group in whose
+  measured basis a symmetry generator is diagonal; the kept fraction of shots is reported;
+* ``zne_linear`` / ``zne_richardson`` -- zero-noise extrapolation of the energy over the odd
+  folding scale factors (Temme, Bravyi, Gambetta, PRL 119, 180509 (2017); Giurgica-Tiron et
+  al., IEEE QCE 2020, arXiv:2005.10921), applied to readout-mitigated energies when calibration
+  circuits are present (readout error is not amplified by folding, so it is removed first).
+
+Confidence intervals use the percentile bootstrap (Efron, Ann. Statist. 7, 1 (1979)): every
+circuit's counts, calibration circuits included, are resampled multinomially with the observed
+frequencies and the whole pipeline is re-run per replicate (seeded).
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Mapping, Sequence
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from eigensweep.device import mitigation as mit
+from eigensweep.device.manifest import DeviceJob, load_manifest, pauli_labels
+
+__all__ = [
+    "EnergyEstimate",
+    "CircuitDiagnostics",
+    "ReconcileResult",
+    "reconcile",
+    "plot_histograms",
+    "save_hdf5",
+    "load_hdf5",
+]
+
+ESTIMATES = ("raw", "readout_mitigated", "symmetry_verified", "zne_linear", "zne_richardson")
+JW_NAMES = {"jordan_wigner", "jordan-wigner", "jw"}
+
+
+@dataclass
+class EnergyEstimate:
+    """A point estimate with its bootstrap percentile 95% interval and standard error."""
+
+    value: float
+    ci_low: float
+    ci_high: float
+    stderr: float
+
+    def covers(self, energy: float) -> bool:
+        return bool(self.ci_low <= energy <= self.ci_high)
+
+
+@dataclass
+class CircuitDiagnostics:
+    """Per-circuit comparison of returned and ideal distributions."""
+
+    circuit_id: str
+    kind: str
+    group: int | None
+    scale_factor: int
+    shots_requested: int
+    shots_returned: int
+    tvd: float  # total-variation distance returned vs ideal
+    kept_fraction: float | None  # symmetry verification (scale-1 measure circuits only)
+    top: list[tuple[str, float, float]]  # (bitstring, returned prob, ideal prob)
+
+
+@dataclass
+class ReconcileResult:
+    """Everything :func:`reconcile` found; see the module docstring for the estimates."""
+
+    job_id: str
+    n_qubits: int
+    raw: EnergyEstimate
+    readout_mitigated: EnergyEstimate | None
+    symmetry_verified: EnergyEstimate | None
+    zne_linear: EnergyEstimate | None
+    zne_richardson: EnergyEstimate | None
+    kept_fraction: float | None
+    scale_factors: list[int]
+    scale_energies: list[EnergyEstimate]
+    zne_input: str
+    calibration: np.ndarray | None
+    circuits: list[CircuitDiagnostics]
+    energy_sim: float | None = None
+    energy_exact: float | None = None
+    bootstrap: int = 0
+    seed: int = 0
+    notes: list[str] = field(default_factory=list)
+    samples: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
+
+    def estimates(self) -> dict[str, EnergyEstimate]:
+        """The available estimates by name, in a fixed order."""
+        return {k: getattr(self, k) for k in ESTIMATES if getattr(self, k) is not None}
+
+    def comparison_table(self) -> str:
+        """Markdown table of all estimates beside the simulated and exact energies."""
+
+        def err(v: float, ref: float | None) -> str:
+            return "" if ref is None or not np.isfinite(v) else f"{(v - ref) * 1e3:+.2f}"
+
+        lines = [
+            "| estimate | energy (Ha) | 95% CI (Ha) | minus simulated (mHa) | minus exact (mHa) |",
+            "|---|---|---|---|---|",
+        ]
+        for name, e in self.estimates().items():
+            label = name.replace("_", " ")
+            if name == "symmetry_verified" and self.kept_fraction is not None:
+                label += f" (kept {self.kept_fraction:.1%})"
+            lines.append(
+                f"| {label} | {e.value:.6f} | [{e.ci_low:.6f}, {e.ci_high:.6f}] | "
+                f"{err(e.value, self.energy_sim)} | {err(e.value, self.energy_exact)} |"
+            )
+        if self.energy_sim is not None:
+            lines.append(
+                f"| simulated (noise-free) | {self.energy_sim:.6f} | | | "
+                f"{err(self.energy_sim, self.energy_exact)} |"
+            )
+        if self.energy_exact is not None:
+            lines.append(f"| exact | {self.energy_exact:.6f} | | | |")
+        return "\n".join(lines) + "\n"
+
+    # ------------------------------------------------------------------ storage
+    def to_store(self) -> tuple[dict[str, np.ndarray], dict]:
+        """(arrays, JSON-serialisable meta) for an HDF5 store; inverse of :meth:`from_store`."""
+        arrays = {f"samples/{k}": np.asarray(v, dtype=float) for k, v in self.samples.items()}
+        arrays["tvd"] = np.array([c.tvd for c in self.circuits], dtype=float)
+        if self.calibration is not None:
+            arrays["calibration"] = np.asarray(self.calibration, dtype=float)
+        meta = {
+            "kind": "eigensweep-reconcile-result",
+            "version": 1,
+            "job_id": self.job_id,
+            "n_qubits": self.n_qubits,
+            "estimates": {k: _est_dict(getattr(self, k)) for k in ESTIMATES},
+            "kept_fraction": self.kept_fraction,
+            "scale_factors": list(self.scale_factors),
+            "scale_energies": [_est_dict(e) for e in self.scale_energies],
+            "zne_input": self.zne_input,
+            "circuits": [asdict(c) for c in self.circuits],
+            "energy_sim": self.energy_sim,
+            "energy_exact": self.energy_exact,
+            "bootstrap": self.bootstrap,
+            "seed": self.seed,
+            "notes": list(self.notes),
+            "has_calibration": self.calibration is not None,
+        }
+        return arrays, json.loads(json.dumps(meta))
+
+    @classmethod
+    def from_store(cls, arrays: Mapping[str, np.ndarray], meta: Mapping) -> ReconcileResult:
+        """Rebuild a result from :meth:`to_store` output."""
+        if meta.get("kind") != "eigensweep-reconcile-result":
+            raise ValueError("not an eigensweep reconcile result")
+        est = {k: _est_from(meta["estimates"].get(k)) for k in ESTIMATES}
+        circuits = [
+            CircuitDiagnostics(**{**c, "top": [tuple(t) for t in c["top"]]})
+            for c in meta["circuits"]
+        ]
+        samples = {
+            k.split("/", 1)[1]: np.asarray(v) for k, v in arrays.items() if k.startswith("samples/")
+        }
+        return cls(
+            job_id=meta["job_id"],
+            n_qubits=int(meta["n_qubits"]),
+            **est,
+            kept_fraction=meta["kept_fraction"],
+            scale_factors=[int(s) for s in meta["scale_factors"]],
+            scale_energies=[_est_from(e) for e in meta["scale_energies"]],
+            zne_input=meta["zne_input"],
+            calibration=np.asarray(arrays["calibration"]) if meta["has_calibration"] else None,
+            circuits=circuits,
+            energy_sim=meta["energy_sim"],
+            energy_exact=meta["energy_exact"],
+            bootstrap=int(meta["bootstrap"]),
+            seed=int(meta["seed"]),
+            notes=list(meta["notes"]),
+            samples=samples,
+        )
+
+
+def _est_dict(e: EnergyEstimate | None) -> dict | None:
+    return None if e is None else asdict(e)
+
+
+def _est_from(d: Mapping | None) -> EnergyEstimate | None:
+    return None if d is None else EnergyEstimate(**{k: float(v) for k, v in d.items()})
+
+
+def save_hdf5(result: ReconcileResult, path: str | Path) -> Path:
+    """Write :meth:`ReconcileResult.to_store` to HDF5 (datasets + ``meta`` JSON attribute)."""
+    import h5py
+
+    path = Path(path)
+    arrays, meta = result.to_store()
+    tmp = path.with_name(f".{path.name}.tmp")
+    with h5py.File(tmp, "w") as fh:
+        fh.attrs["meta"] = json.dumps(meta)
+        for k, v in arrays.items():
+            fh.create_dataset(k, data=v)
+    tmp.replace(path)
+    return path
+
+
+def load_hdf5(path: str | Path) -> ReconcileResult:
+    """Read a result written by :func:`save_hdf5`."""
+    import h5py
+
+    arrays: dict[str, np.ndarray] = {}
+    with h5py.File(path, "r") as fh:
+        meta = json.loads(fh.attrs["meta"])
+        fh.visititems(
+            lambda name, obj: (
+                arrays.__setitem__(name, obj[()]) if isinstance(obj, h5py.Dataset) else None
+            )
+        )
+    return ReconcileResult.from_store(arrays, meta)
+
+
+# ----------------------------------------------------------------------------- core
+
+
+def _estimate(samples: np.ndarray) -> EnergyEstimate:
+    """Replicate 0 is the point estimate; 1.. are bootstrap replicates."""
+    point = float(samples[0])
+    boot = samples[1:]
+    boot = boot[np.isfinite(boot)]
+    if boot.size < 2:
+        return EnergyEstimate(point, point, point, 0.0)
+    lo, hi = np.percentile(boot, [2.5, 97.5])
+    return EnergyEstimate(point, float(lo), float(hi), float(np.std(boot, ddof=1)))
+
+
+def _resample(counts: np.ndarray, n_boot: int, rng: np.random.Generator) -> np.ndarray:
+    """(1 + n_boot, 2**n) probabilities: observed, then multinomial bootstrap replicates."""
+    total = int(counts.sum())
+    p = counts / total
+    out = np.empty((1 + n_boot, counts.size))
+    out[0] = p
+    if n_boot:
+        out[1:] = rng.multinomial(total, p, size=n_boot) / total
+    return out
+
+
+def _as_manifest(job) -> dict:
+    if isinstance(job, DeviceJob):
+        return job.to_manifest()
+    if isinstance(job, Mapping):
+        return dict(job)
+    return load_manifest(job)
+
+
+def _check_hamiltonian(manifest: dict, ham) -> float:
+    """Check the manifest was built for ``ham``; return its identity coefficient."""
+    n = int(manifest["n_qubits"])
+    if int(ham.n_qubits) != n:
+        raise ValueError(f"Hamiltonian has {ham.n_qubits} qubits, the job {n}")
+    labels = pauli_labels(ham)
+    coeffs = np.real(np.asarray(ham.coeffs)).astype(float).reshape(-1)
+    for t in manifest["hamiltonian"]["terms"]:
+        i = int(t["index"])
+        if (
+            i >= len(labels)
+            or labels[i] != t["label"]
+            or abs(coeffs[i] - t["coeff"]) > 1e-9 * max(1.0, abs(t["coeff"]))
+        ):
+            raise ValueError(
+                "the job manifest was built for a different Hamiltonian "
+                f"(term {i} {t['label']!r}); reconcile with the Hamiltonian it was exported for"
+            )
+    identity = float(sum(c for c, lab in zip(coeffs, labels, strict=True) if set(lab) == {"I"}))
+    if abs(identity - float(manifest["hamiltonian"]["identity"])) > 1e-9 * max(1, abs(identity)):
+        raise ValueError("the job manifest's identity coefficient differs from the Hamiltonian")
+    return identity
+
+
+def _symmetries(
+    generators, sector, n_electrons, mapping, n: int, notes: list[str]
+) -> list[tuple[str, int]]:
+    """List of (label, required eigenvalue of the Pauli string) usable for verification."""
+    if generators is not None:
+        if int(generators.n_qubits) != n:
+            notes.append(
+                f"symmetry generators act on {generators.n_qubits} qubits, the job on {n}: "
+                "not used (tapered problems carry no symmetries left to verify)"
+            )
+            return []
+        if sector is None or len(sector) != len(pauli_labels(generators)):
+            raise ValueError("give one sector value (+1 or -1) per symmetry generator")
+        coeffs = np.real(np.asarray(generators.coeffs)).reshape(-1)
+        out = []
+        for lab, c, s in zip(pauli_labels(generators), coeffs, sector, strict=True):
+            if int(s) not in (1, -1):
+                raise ValueError(f"sector values must be +1 or -1, got {s!r}")
+            out.append((lab, int(s) * (1 if c >= 0 else -1)))
+        return out
+    if n_electrons is not None:
+        if mapping is None or str(mapping).lower() in JW_NAMES:
+            return [("Z" * n, -1 if int(n_electrons) % 2 else 1)]
+        notes.append(
+            f"electron-number parity check is only implemented for Jordan-Wigner, "
+            f"not {mapping!r}: no symmetry verification"
+        )
+    return []
+
+
+def _applicable(basis: str, label: str) -> bool:
+    """A generator is diagonal in a group's measured basis if it matches it on its support."""
+    eff = basis.replace("I", "Z")
+    return all(g == "I" or g == b for g, b in zip(label, eff, strict=True))
+
+
+def _top(ret: np.ndarray, ideal: np.ndarray, n: int, k: int = 8) -> list:
+    order = list(np.argsort(-ideal, kind="stable")[:k]) + list(np.argsort(-ret, kind="stable")[:k])
+    idx = list(dict.fromkeys(int(i) for i in order if ret[i] > 0 or ideal[i] > 0))
+    idx.sort(key=lambda i: (-ideal[i], -ret[i], i))
+    return [(format(i, f"0{n}b"), float(ret[i]), float(ideal[i])) for i in idx[:k]]
+
+
+def reconcile(
+    job,
+    counts: Mapping,
+    ham,
+    *,
+    generators=None,
+    sector: Sequence[int] | None = None,
+    n_electrons: int | None = None,
+    mapping: str | None = None,
+    bootstrap: int = 1000,
+    seed: int = 0,
+    energy_sim: float | None = None,
+    energy_exact: float | None = None,
+) -> ReconcileResult:
+    """Energies and diagnostics from validated counts (``load_results`` output).
+
+    ``job`` is the manifest dict (or a DeviceJob / job folder); ``counts`` maps circuit id to
+    ``{bitstring: count}`` (a full results object is accepted too). ``generators``/``sector``
+    are the Z2 symmetries (pre-tapering, on the job's qubits) and their eigenvalues; without
+    them, ``n_electrons`` gives the number-parity symmetry ``Z...Z = (-1)^N`` for the
+    Jordan-Wigner mapping (``mapping`` None means the project's default, Jordan-Wigner).
+    """
+    manifest = _as_manifest(job)
+    if "results" in counts and "format" in counts:
+        counts = {cid: r["counts"] for cid, r in counts["results"].items()}
+    n = int(manifest["n_qubits"])
+    identity = _check_hamiltonian(manifest, ham)
+    records = manifest["circuits"]
+    missing = [r["circuit_id"] for r in records if r["circuit_id"] not in counts]
+    if missing:
+        raise ValueError(f"no counts for circuit {missing[0]!r}; load them with load_results")
+    notes: list[str] = []
+    rng = np.random.default_rng(np.random.SeedSequence([int(seed), 20180509]))
+    n_boot = int(bootstrap)
+
+    vec = {r["circuit_id"]: mit.counts_to_vector(counts[r["circuit_id"]], n) for r in records}
+    for cid, v in vec.items():
+        if v.sum() <= 0:
+            raise ValueError(f"circuit {cid!r} has zero shots")
+    # each circuit gets its own bootstrap stream, so memory stays one circuit at a time
+    streams = dict(zip(vec, rng.spawn(len(vec)), strict=True))
+
+    # ---- readout calibration
+    cal = {r.get("prepared"): r["circuit_id"] for r in records if r["kind"] == "calibration"}
+    matrices = None
+    if "0" * n in cal and "1" * n in cal:
+        z_id, o_id = cal["0" * n], cal["1" * n]
+        matrices = mit.calibration_matrices(
+            _resample(vec[z_id], n_boot, streams[z_id]),
+            _resample(vec[o_id], n_boot, streams[o_id]),
+            n,
+        )
+        det = np.linalg.det(matrices)
+        if np.any(np.abs(det) < 1e-6):
+            notes.append("a readout confusion matrix is singular: no readout mitigation")
+            matrices = None
+    else:
+        notes.append("no all-zeros/all-ones calibration circuits: no readout mitigation")
+
+    symm = _symmetries(generators, sector, n_electrons, mapping, n, notes)
+    meas = [r for r in records if r["kind"] == "measure"]
+    if not meas:
+        raise ValueError("the job has no measurement circuits; nothing to reconcile")
+    scales = sorted({int(r["scale_factor"]) for r in meas})
+    if 1 not in scales:
+        notes.append(f"no scale-1 circuits: raw energy uses scale {scales[0]}")
+    s0 = scales[0]
+
+    def group_energy(rec: dict, p: np.ndarray) -> np.ndarray:
+        labels = [t["label"] for t in rec["pauli_terms"]]
+        coeffs = np.array([t["coeff"] for t in rec["pauli_terms"]], dtype=float)
+        return mit.term_expectations(p, labels) @ coeffs
+
+    width = 1 + n_boot
+    e_raw = {s: np.full(width, identity) for s in scales}
+    e_mit = {s: np.full(width, identity) for s in scales}
+    e_sym = np.full(width, identity)
+    kept_tot, shots_tot = 0.0, 0.0
+    kept_by_id: dict[str, float] = {}
+    any_verified = False
+    for rec in meas:
+        cid, s = rec["circuit_id"], int(rec["scale_factor"])
+        p = _resample(vec[cid], n_boot, streams[cid])
+        e_raw[s] += group_energy(rec, p)
+        if matrices is not None:
+            e_mit[s] += group_energy(rec, mit.mitigate_readout(p, matrices))
+        if s == s0:
+            usable = [(lab, ev) for lab, ev in symm if _applicable(rec["basis"], lab)]
+            if usable:
+                any_verified = True
+                sup = [[ch != "I" for ch in lab] for lab, _ in usable]
+                mask = mit.symmetry_mask(sup, [ev for _, ev in usable], n)
+                kept = p[:, mask].sum(axis=1)
+                ps = np.where(mask[None, :], p, 0.0)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    ps = ps / kept[:, None]
+                e_sym += group_energy(rec, ps)  # NaN where nothing was kept
+                kept_by_id[cid] = float(kept[0])
+                kept_tot += float(kept[0]) * vec[cid].sum()
+                shots_tot += vec[cid].sum()
+            else:
+                e_sym += group_energy(rec, p)
+    samples: dict[str, np.ndarray] = {"raw": e_raw[s0]}
+    if matrices is not None:
+        samples["readout_mitigated"] = e_mit[s0]
+    kept_fraction = None
+    if any_verified:
+        samples["symmetry_verified"] = e_sym
+        kept_fraction = kept_tot / shots_tot
+        if not np.isfinite(e_sym[0]):
+            notes.append("symmetry verification kept no shots in some circuit")
+    elif symm:
+        notes.append("no measured group is diagonal in a symmetry generator: no verification")
+
+    zne_input = "readout_mitigated" if matrices is not None else "raw"
+    per_scale = e_mit if matrices is not None else e_raw
+    if len(scales) >= 2:
+        stack = np.stack([per_scale[s] for s in scales], axis=1)
+        samples["zne_linear"] = mit.extrapolate_linear(scales, stack)
+        samples["zne_richardson"] = mit.extrapolate_richardson(scales, stack)
+    else:
+        notes.append("one noise-scale factor only: no zero-noise extrapolation")
+    for s in scales:
+        samples[f"scale_{s}"] = per_scale[s]
+
+    diags = []
+    for rec in records:
+        cid = rec["circuit_id"]
+        ideal = np.zeros(2**n)
+        for bits, pr in rec.get("ideal_distribution", {}).items():
+            ideal[int(bits, 2)] = pr
+        ret = vec[cid] / vec[cid].sum()
+        diags.append(
+            CircuitDiagnostics(
+                circuit_id=cid,
+                kind=rec["kind"],
+                group=rec.get("group"),
+                scale_factor=int(rec["scale_factor"]),
+                shots_requested=int(rec["shots"]),
+                shots_returned=int(vec[cid].sum()),
+                tvd=float(mit.total_variation_distance(ret, ideal)),
+                kept_fraction=kept_by_id.get(cid),
+                top=_top(ret, ideal, n),
+            )
+        )
+        if int(vec[cid].sum()) != int(rec["shots"]):
+            notes.append(f"{cid}: {int(vec[cid].sum())} shots returned, {rec['shots']} requested")
+
+    est = {k: _estimate(v) for k, v in samples.items() if not k.startswith("scale_")}
+    return ReconcileResult(
+        job_id=manifest["job_id"],
+        n_qubits=n,
+        raw=est["raw"],
+        readout_mitigated=est.get("readout_mitigated"),
+        symmetry_verified=est.get("symmetry_verified"),
+        zne_linear=est.get("zne_linear"),
+        zne_richardson=est.get("zne_richardson"),
+        kept_fraction=kept_fraction,
+        scale_factors=scales,
+        scale_energies=[_estimate(per_scale[s]) for s in scales],
+        zne_input=zne_input,
+        calibration=None if matrices is None else matrices[0],
+        circuits=diags,
+        energy_sim=None if energy_sim is None else float(energy_sim),
+        energy_exact=None if energy_exact is None else float(energy_exact),
+        bootstrap=n_boot,
+        seed=int(seed),
+        notes=notes,
+        samples=samples,
+    )
+
+
+def plot_histograms(result: ReconcileResult, path: str | Path, *, max_circuits: int = 12) -> Path:
+    """Bar charts of returned vs ideal probabilities of the top bitstrings, one panel per circuit.
+
+    Measurement circuits come first (lowest scale factor first), then calibration circuits;
+    at most ``max_circuits`` panels. Written with matplotlib's Agg canvas (no display needed).
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    diags = sorted(
+        result.circuits,
+        key=lambda c: (c.kind != "measure", c.scale_factor, c.group or 0, c.circuit_id),
+    )[:max_circuits]
+    ncols = min(3, max(1, len(diags)))
+    nrows = max(1, -(-len(diags) // ncols))
+    fig = Figure(figsize=(4.2 * ncols, 3.2 * nrows), layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(nrows, ncols, squeeze=False).ravel()
+    for ax, d in zip(axes, diags, strict=False):
+        labels = [t[0] for t in d.top]
+        x = np.arange(len(labels))
+        ax.bar(x - 0.2, [t[1] for t in d.top], width=0.4, label="returned")
+        ax.bar(x + 0.2, [t[2] for t in d.top], width=0.4, label="ideal")
+        ax.set_xticks(x, labels, rotation=60, fontsize=7, family="monospace")
+        ax.set_xlabel("bitstring (qubit 0 first)")
+        ax.set_ylabel("probability")
+        ax.set_title(f"{d.circuit_id} (TVD {d.tvd:.3f})", fontsize=9)
+        ax.legend(fontsize=7)
+    for ax in axes[len(diags) :]:
+        ax.set_visible(False)
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(path, dpi=110)
+    return path

@@ -1,0 +1,313 @@
+"""The planner: a validated configuration -> the stage jobs of a sweep, keyed by content.
+
+Each stage job (a :class:`Node`) has a key: the first 16 hex digits of SHA-256 over the canonical
+JSON of ``{stage, stage format version, fully resolved parameters, parent keys}``. Keys therefore
+form a Merkle chain: changing the optimizer changes the ``optimize`` key and nothing upstream, so
+integrals and Hamiltonians are reused, also across sweeps that share them.
+
+:func:`build_plan` is a pure function of the configuration (it reads only molecule XYZ files named
+by the configuration); Snakemake rules look nodes up by key.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import ConfigError
+from .stage_table import (  # noqa: F401 (STAGE_VERSIONS, canonical_json re-exported)
+    STAGE_VERSIONS,
+    canonical_json,
+    parent_paths,
+    returned_path,
+    stage_key,
+)
+
+#: Integrals-node parameters that define the molecule itself (what chemistry checks need).
+MOLECULE_KEYS = ("atoms", "basis", "charge", "multiplicity", "unit", "frozen_core", "active")
+
+
+def molecule_kwargs(params: dict) -> dict:
+    """The molecule-defining subset of an integrals node's parameters, as keyword arguments."""
+    return {k: params[k] for k in MOLECULE_KEYS}
+
+
+_PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
+
+
+@dataclass(frozen=True)
+class Node:
+    """One stage job: ``results/<stage>/<key>.h5``."""
+
+    stage: str
+    key: str
+    params: dict
+    parents: dict[str, str] = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        return {
+            "stage": self.stage,
+            "key": self.key,
+            "params": self.params,
+            "parents": self.parents,
+        }
+
+
+@dataclass
+class Plan:
+    """All stage jobs of a sweep plus one row of labels per optimize job."""
+
+    nodes: dict[str, Node]
+    rows: list[dict]
+    exports: list[dict] = field(default_factory=list)
+
+    def by_stage(self, stage: str) -> list[Node]:
+        return [n for n in self.nodes.values() if n.stage == stage]
+
+    def node(self, key: str) -> Node:
+        try:
+            return self.nodes[key]
+        except KeyError:
+            raise ConfigError(f"stage key {key} is not part of this sweep's plan") from None
+
+
+def _format_value(v: float) -> str:
+    return format(float(v), ".10g")
+
+
+def scan_points(mol: dict, where: str) -> list[dict[str, float]]:
+    """Expand a molecule's ``scan`` into a list of {variable: value} points (config order)."""
+    scan = mol.get("scan") or {}
+    axes: dict[str, list[float]] = {}
+    for var, spec in scan.items():
+        if isinstance(spec, dict):
+            vals = np.linspace(spec["start"], spec["stop"], spec["num"]).tolist()
+        else:
+            vals = [float(v) for v in spec]
+        axes[var] = [round(v, 12) for v in vals]
+    if not axes:
+        return [{}]
+    names = list(axes)
+    if mol.get("scan_mode", "product") == "zip":
+        lengths = {len(v) for v in axes.values()}
+        if len(lengths) > 1:
+            raise ConfigError(
+                f"{where}: scan_mode zip needs equally long scans, got "
+                + ", ".join(f"{k}: {len(v)}" for k, v in axes.items())
+                + "; give each variable the same number of values or use scan_mode: product"
+            )
+        combos = list(zip(*axes.values(), strict=True))
+    else:
+        combos = list(itertools.product(*axes.values()))
+    return [dict(zip(names, c, strict=True)) for c in combos]
+
+
+def point_label(point: dict[str, float]) -> str:
+    return ",".join(f"{k}={_format_value(v)}" for k, v in point.items()) or "single"
+
+
+def molecule_geometry(mol: dict, where: str, base_dir: Path) -> str:
+    """The molecule's atom string template (from ``atoms`` or an XYZ file)."""
+    has_atoms, has_xyz = "atoms" in mol, "xyz" in mol
+    if has_atoms == has_xyz:
+        raise ConfigError(f"{where}: give exactly one of 'atoms' or 'xyz'")
+    if has_atoms:
+        return mol["atoms"]
+    from .chem.geometry import read_xyz  # reads a file; no PySCF needed
+
+    path = Path(mol["xyz"])
+    if not path.is_absolute():
+        path = base_dir / path
+    try:
+        return read_xyz(path)
+    except ConfigError as exc:
+        raise ConfigError(f"{where}: xyz: {exc}") from None
+
+
+def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
+    """Substitute {placeholders}; checks placeholders and scan variables match exactly."""
+    used = set(_PLACEHOLDER.findall(template))
+    given = set(point)
+    if used - given:
+        missing = sorted(used - given)[0]
+        raise ConfigError(
+            f"{where}: atoms uses {{{missing}}} but scan has no values for it; add scan: {{{missing}: [...]}}"
+        )
+    if given - used:
+        extra = sorted(given - used)[0]
+        raise ConfigError(
+            f"{where}: scan variable {extra!r} does not appear as {{{extra}}} in atoms; remove it or use it"
+        )
+    text = _PLACEHOLDER.sub(lambda m: _format_value(point[m.group(1)]), template)
+    if "{" in text or "}" in text:
+        raise ConfigError(
+            f"{where}: atoms has a malformed placeholder; use {{name}} with letters, digits, _"
+        )
+    # normalise whitespace so cosmetic edits do not change keys
+    return "; ".join(" ".join(a.split()) for a in re.split(r"[;\n]", text) if a.strip())
+
+
+def method_label(kind: str, entry: dict) -> str:
+    """Short readable label: name plus options that differ from defaults, e.g. ``kupccgsd(k=3)``."""
+    from .config import method_defaults
+
+    defaults = method_defaults(kind, entry["name"])
+    opts = {k: v for k, v in entry.items() if k != "name" and defaults.get(k) != v}
+    if not opts:
+        return entry["name"]
+    return entry["name"] + "(" + ",".join(f"{k}={v}" for k, v in sorted(opts.items())) + ")"
+
+
+def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = "results") -> Plan:
+    """Expand a validated configuration into stage nodes with Merkle keys.
+
+    Args:
+        cfg: output of :func:`eigensweep.config.validate_config` (defaults filled).
+        base_dir: folder against which relative XYZ paths are resolved.
+        results_dir: where imported device results are looked for (external device only).
+
+    Returns:
+        The :class:`Plan`; ``rows`` are ordered molecule, point, then methods.
+    """
+    base_dir = Path(base_dir)
+    nodes: dict[str, Node] = {}
+
+    def add(stage: str, params: dict, parents: dict[str, str]) -> str:
+        key = stage_key(stage, params, parents)
+        nodes.setdefault(key, Node(stage, key, params, dict(parents)))
+        return key
+
+    refs = cfg["references"]
+    meth = cfg["methods"]
+    combos = list(
+        itertools.product(
+            meth["mapping"], meth["taper"], meth["ansatz"], meth["optimizer"], meth["estimator"]
+        )
+    )
+    rows: list[dict] = []
+    for im, mol in enumerate(cfg["molecules"]):
+        where = f"molecules[{im}] ({mol['name']})"
+        template = molecule_geometry(mol, where, base_dir)
+        points = scan_points(mol, where)
+        prev_int: str | None = None
+        prev_opt: dict[int, str] = {}
+        for point in points:
+            atoms = fill_geometry(template, point, f"{where} point {point_label(point)}")
+            int_params = {
+                "atoms": atoms,
+                "unit": mol["unit"],
+                "charge": mol["charge"],
+                "multiplicity": mol["multiplicity"],
+                "basis": mol["basis"].lower(),
+                "symmetry": mol["symmetry"],
+                "frozen_core": mol["frozen_core"],
+                "active": mol["active"],
+                "fci_max_determinants": refs["fci_max_determinants"],
+                "stability": refs["stability"],
+                "neighbour_start": mol["neighbour_start"] and prev_int is not None,
+            }
+            int_parents = {"guess": prev_int} if int_params["neighbour_start"] else {}
+            k_int = add("integrals", int_params, int_parents)
+            prev_int = k_int
+            for ic, (mapping, taper, ansatz, optimizer, estimator) in enumerate(combos):
+                k_ham = add("hamiltonian", {"mapping": mapping}, {"integrals": k_int})
+                k_tap = add("taper", {"taper": taper}, {"hamiltonian": k_ham, "integrals": k_int})
+                opt_params = {
+                    "ansatz": ansatz,
+                    "optimizer": optimizer,
+                    "estimator": estimator,
+                    "seed": cfg["seed"],
+                    "warm_start": bool(meth["warm_start"] and ic in prev_opt),
+                }
+                opt_parents = {"taper": k_tap, "integrals": k_int}
+                if opt_params["warm_start"]:
+                    opt_parents["warm"] = prev_opt[ic]
+                k_opt = add("optimize", opt_params, opt_parents)
+                prev_opt[ic] = k_opt
+                rows.append(
+                    {
+                        "molecule": mol["name"],
+                        "point": point_label(point),
+                        **{f"scan_{k}": v for k, v in point.items()},
+                        "basis": mol["basis"].lower(),
+                        "unit": mol["unit"],
+                        "charge": mol["charge"],
+                        "multiplicity": mol["multiplicity"],
+                        "mapping": mapping,
+                        "tapered": taper,
+                        "ansatz": method_label("ansatz", ansatz),
+                        "optimizer": method_label("optimizer", optimizer),
+                        "estimator": method_label("estimator", estimator),
+                        "key": k_opt,
+                        "key_integrals": k_int,
+                        "key_hamiltonian": k_ham,
+                        "key_taper": k_tap,
+                    }
+                )
+    exports = _plan_device(cfg, rows, add, Path(results_dir))
+    return Plan(nodes=nodes, rows=rows, exports=exports)
+
+
+def _row_matches(sel: dict, row: dict) -> bool:
+    return all(str(row.get(k)) == str(v) for k, v in sel.items())
+
+
+def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[dict]:
+    """Export and reconcile nodes for the optimize rows chosen by ``export.select``.
+
+    With ``device.kind: synthetic`` the reconcile stage samples the built-in noisy device
+    itself; with ``external`` a reconcile node exists only once returned counts were imported
+    to ``results/returned/<export key>.json``, and the file's SHA-256 is part of its key.
+    """
+    exp, dev = cfg["export"], cfg["device"]
+    out: list[dict] = []
+    seen: set[str] = set()
+    for sel in exp["select"]:
+        for row in rows:
+            if not _row_matches(sel, row) or row["key"] in seen:
+                continue
+            seen.add(row["key"])
+            k_exp = add(
+                "export",
+                {k: exp[k] for k in ("shots", "scale_factors", "calibration", "target_mha")},
+                {
+                    "optimize": row["key"],
+                    "taper": row["key_taper"],
+                    "integrals": row["key_integrals"],
+                },
+            )
+            rec_params = {
+                "bootstrap": cfg["reconcile"]["bootstrap"],
+                "seed": cfg["seed"],
+                "device": dev["kind"],
+            }
+            parents = {
+                "export": k_exp,
+                "taper": row["key_taper"],
+                "integrals": row["key_integrals"],
+            }
+            if dev["kind"] == "synthetic":
+                rec_params.update(
+                    {k: dev[k] for k in ("readout_error", "depolarizing_1q", "depolarizing_2q")}
+                )
+            else:
+                counts = returned_path(k_exp, results_dir)
+                if not counts.is_file():
+                    out.append({**row, "key_export": k_exp, "key_reconcile": None})
+                    continue
+                rec_params["counts_sha256"] = hashlib.sha256(counts.read_bytes()).hexdigest()
+                parents["counts"] = k_exp
+            k_rec = add("reconcile", rec_params, parents)
+            out.append({**row, "key_export": k_exp, "key_reconcile": k_rec})
+    return out
+
+
+def parent_files(node: Node, results: str = "results") -> dict[str, str]:
+    """Input files of a node by role (``guess`` and ``warm`` point at sibling stage files;
+    ``counts`` at imported device results); roles and their stages come from the stage table."""
+    return parent_paths(node.stage, node.parents, results)

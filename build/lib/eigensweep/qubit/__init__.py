@@ -1,0 +1,67 @@
+"""Qubit Hamiltonians: mappings, Pauli sums, Z2 tapering, sector energies, grouping, kernels.
+
+One method family per module:
+
+- :mod:`.pauli` — :class:`PauliSum` in symplectic form;
+- :mod:`.mapping` — Jordan–Wigner, Bravyi–Kitaev (Seeley, Richard, Love, J. Chem. Phys. 137,
+  224109 (2012)) and parity mappings of molecular Hamiltonians;
+- :mod:`.taper` — Z2 tapering (Bravyi, Gambetta, Mezzacapo, Temme, arXiv:1701.08213);
+- :mod:`.exact` — lowest eigenvalues in an electron-number / S_z sector;
+- :mod:`.grouping` — qubit-wise commuting groups by sorted insertion (Crawford et al., Quantum 5,
+  385 (2021)) and shot budgets (Wecker, Hastings, Troyer, arXiv:1507.08969);
+- :mod:`.statevector` — vectorised NumPy statevector kernels.
+"""
+
+from .exact import sector_basis_states, sector_ground_energy
+from .grouping import measurement_basis, qwc_groups, shots_for_precision
+from .mapping import (
+    MAPPINGS,
+    encode_linear,
+    encoding_matrix,
+    interaction_operator,
+    map_fermion_operator,
+    map_hamiltonian,
+    number_operator,
+    reference_bits,
+    sz_operator,
+)
+from .pauli import PauliSum
+from .statevector import (
+    apply_gate,
+    apply_pauli,
+    apply_pauli_rotation,
+    apply_pauli_sum,
+    basis_state,
+    expectation,
+    simulate,
+)
+from .taper import TaperResult, find_z2_symmetries, no_taper, taper
+
+__all__ = [
+    "MAPPINGS",
+    "PauliSum",
+    "TaperResult",
+    "apply_gate",
+    "apply_pauli",
+    "apply_pauli_rotation",
+    "apply_pauli_sum",
+    "basis_state",
+    "encode_linear",
+    "encoding_matrix",
+    "expectation",
+    "find_z2_symmetries",
+    "interaction_operator",
+    "map_fermion_operator",
+    "map_hamiltonian",
+    "measurement_basis",
+    "no_taper",
+    "number_operator",
+    "qwc_groups",
+    "reference_bits",
+    "sector_basis_states",
+    "sector_ground_energy",
+    "shots_for_precision",
+    "simulate",
+    "sz_operator",
+    "taper",
+]

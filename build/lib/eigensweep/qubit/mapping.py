@@ -1,0 +1,327 @@
+"""Fermion-to-qubit mappings of molecular Hamiltonians: Jordan–Wigner, Bravyi–Kitaev, parity.
+
+- Jordan–Wigner (P. Jordan and E. Wigner, Z. Phys. 47, 631 (1928)): qubit ``k`` stores the
+  occupation of spin orbital ``k``; done by OpenFermion's ``jordan_wigner``.
+- Bravyi–Kitaev (S. Bravyi and A. Kitaev, Ann. Phys. 298, 210 (2002); in the form of J. T.
+  Seeley, M. J. Richard, P. J. Love, J. Chem. Phys. 137, 224109 (2012)): qubit ``k`` stores the
+  parity of a Fenwick-tree set of occupations; done by OpenFermion's ``bravyi_kitaev``.
+- Parity (Seeley, Richard, Love 2012, section on the parity basis): qubit ``k`` stores
+  ``n_0 + ... + n_k (mod 2)``.
+
+All three are *linear* encodings ``b = A n (mod 2)`` of the occupation vector ``n``. The map
+``|n> -> |A n>`` is a CNOT network ``U``, and a Jordan–Wigner string ``X^x Z^z`` becomes
+``U X^x Z^z U^dag = X^{A x} Z^{A^{-T} z}``. The parity Hamiltonian is built that way from the
+Jordan–Wigner one (:func:`encode_linear`); the tests check it against OpenFermion's
+``binary_code_transform`` with ``parity_code``, and check the same construction with the
+Bravyi–Kitaev matrix against OpenFermion's ``bravyi_kitaev``. The matrices also give the
+Hartree–Fock reference bits (:func:`reference_bits`).
+
+Orbital order is OpenFermion's interleaved one: spin orbital ``2p`` is alpha and ``2p + 1`` beta of
+spatial orbital ``p``.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from ..errors import ConfigError
+from .pauli import PauliSum
+
+if TYPE_CHECKING:  # OpenFermion takes seconds to import: only functions that need it load it
+    from openfermion import FermionOperator, InteractionOperator
+
+__all__ = [
+    "MAPPINGS",
+    "interaction_operator",
+    "map_hamiltonian",
+    "map_fermion_operator",
+    "number_operator",
+    "sz_operator",
+    "reference_bits",
+    "encoding_matrix",
+    "encode_linear",
+]
+
+MAPPINGS = ("jordan_wigner", "bravyi_kitaev", "parity")
+_DROP_TOL = 1e-12
+
+
+def _check_mapping(mapping: str) -> str:
+    if not isinstance(mapping, str):
+        raise TypeError(f"mapping must be a str, got {type(mapping).__name__}")
+    if mapping not in MAPPINGS:
+        raise ConfigError(f"unknown mapping {mapping!r}; choose one of {', '.join(MAPPINGS)}")
+    return mapping
+
+
+def _check_n_qubits(n_qubits: int) -> int:
+    if isinstance(n_qubits, bool) or not isinstance(n_qubits, int | np.integer):
+        raise TypeError(f"n_qubits must be an int, got {type(n_qubits).__name__}")
+    if n_qubits < 1:
+        raise ConfigError(f"n_qubits must be >= 1, got {n_qubits}")
+    return int(n_qubits)
+
+
+def interaction_operator(h1e: np.ndarray, eri: np.ndarray, e_core: float) -> InteractionOperator:
+    """Spin-orbital Hamiltonian from spatial-orbital integrals.
+
+    ``H = e_core + sum_{pq,s} h_pq a+_{ps} a_{qs}
+    + 1/2 sum_{pqrs,st} (pq|rs) a+_{ps} a+_{rt} a_{st} a_{qs}`` with chemists' notation
+    ``(pq|rs)`` and interleaved spin orbitals (``2p`` alpha, ``2p + 1`` beta).
+
+    Args:
+        h1e: real ``(norb, norb)`` one-electron integrals in the orbital basis.
+        eri: real ``(norb, norb, norb, norb)`` two-electron integrals ``(pq|rs)`` (full,
+            unpacked: ``pyscf.ao2mo.restore(1, ..., norb)``).
+        e_core: constant energy (nuclear repulsion plus frozen-core energy), hartree.
+
+    Returns:
+        OpenFermion ``InteractionOperator`` on ``2 * norb`` spin orbitals.
+    """
+    from openfermion import InteractionOperator
+
+    if not isinstance(h1e, np.ndarray) or not isinstance(eri, np.ndarray):
+        raise TypeError(
+            f"h1e and eri must be numpy.ndarray, got {type(h1e).__name__} and {type(eri).__name__}"
+        )
+    if isinstance(e_core, bool) or not isinstance(e_core, int | float | np.integer | np.floating):
+        raise TypeError(f"e_core must be a real number, got {type(e_core).__name__}")
+    norb = h1e.shape[0] if h1e.ndim == 2 else -1
+    if h1e.shape != (norb, norb) or eri.shape != (norb,) * 4 or norb < 1:
+        raise ConfigError(
+            f"integral shapes {h1e.shape} and {eri.shape} do not match: "
+            "need (norb, norb) and (norb, norb, norb, norb)"
+        )
+    for name, arr in (("h1e", h1e), ("eri", eri)):
+        if np.iscomplexobj(arr) and np.max(np.abs(arr.imag)) > _DROP_TOL:
+            raise ConfigError(f"{name} has complex entries; only real orbitals are supported")
+    h1 = np.asarray(h1e.real if np.iscomplexobj(h1e) else h1e, dtype=np.float64)
+    g2 = np.asarray(eri.real if np.iscomplexobj(eri) else eri, dtype=np.float64)
+    n = 2 * norb
+    one = np.zeros((n, n))
+    two = np.zeros((n, n, n, n))
+    for s in range(2):
+        one[s::2, s::2] = h1
+    # (pq|rs) a+_{p s} a+_{r t} a_{s t} a_{q s}: InteractionOperator index order [p, r, s, q]
+    g = 0.5 * g2.transpose(0, 2, 3, 1)
+    for s in range(2):
+        for t in range(2):
+            two[s::2, t::2, t::2, s::2] = g
+    return InteractionOperator(float(e_core), one, two)
+
+
+def encoding_matrix(n_qubits: int, mapping: str) -> np.ndarray:
+    """Binary matrix ``A`` of the linear encoding ``b = A n (mod 2)`` of occupations ``n``.
+
+    Jordan–Wigner: identity. Parity: lower triangle of ones, ``b_k = n_0 + ... + n_k``.
+    Bravyi–Kitaev (Seeley, Richard, Love 2012, Fenwick-tree form valid for any ``n``):
+    ``b_k = sum n_j`` over ``j`` from ``(k + 1) - lowbit(k + 1)`` to ``k``.
+
+    Args:
+        n_qubits: number of spin orbitals (= qubits).
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        uint8 array ``(n_qubits, n_qubits)``.
+    """
+    n = _check_n_qubits(n_qubits)
+    _check_mapping(mapping)
+    if mapping == "jordan_wigner":
+        return np.eye(n, dtype=np.uint8)
+    if mapping == "parity":
+        return np.tril(np.ones((n, n), dtype=np.uint8))
+    a = np.zeros((n, n), dtype=np.uint8)
+    for k in range(n):
+        lowbit = (k + 1) & -(k + 1)
+        a[k, k + 1 - lowbit : k + 1] = 1
+    return a
+
+
+def _gf2_inverse(a: np.ndarray) -> np.ndarray:
+    """Inverse of a square binary matrix over GF(2) (Gauss–Jordan)."""
+    n = a.shape[0]
+    aug = np.concatenate([a.astype(bool), np.eye(n, dtype=bool)], axis=1)
+    for col in range(n):
+        pivots = np.flatnonzero(aug[col:, col])
+        if pivots.size == 0:
+            raise ValueError("encoding matrix is singular over GF(2)")
+        p = col + pivots[0]
+        if p != col:
+            aug[[col, p]] = aug[[p, col]]
+        others = np.flatnonzero(aug[:, col])
+        others = others[others != col]
+        aug[others] ^= aug[col]
+    return aug[:, n:].astype(np.uint8)
+
+
+def encode_linear(jw: PauliSum, matrix: np.ndarray) -> PauliSum:
+    """Re-express a Jordan–Wigner Pauli sum in the linear encoding ``b = A n (mod 2)``.
+
+    ``U X^x Z^z U^dag = X^{A x} Z^{A^{-T} z}`` for the CNOT network ``U|n> = |A n>``; with the
+    Hermitian form ``P(x, z) = i^{x.z} X^x Z^z`` each coefficient picks up the sign
+    ``i^{x.z - x'.z'}`` (``x.z`` and ``x'.z'`` have equal parity, so it is real).
+
+    Args:
+        jw: operator in the Jordan–Wigner (occupation-number) encoding.
+        matrix: invertible binary ``(n, n)`` encoding matrix, e.g. :func:`encoding_matrix`.
+
+    Returns:
+        The same operator in the new encoding (canonical order).
+    """
+    if not isinstance(jw, PauliSum):
+        raise TypeError(f"encode_linear accepts a PauliSum, got {type(jw).__name__}")
+    a = np.asarray(matrix, dtype=np.int64) & 1
+    n = jw.n_qubits
+    if a.shape != (n, n):
+        raise ConfigError(f"encoding matrix shape {a.shape} does not match {n} qubits")
+    a_inv_t = _gf2_inverse(a).T.astype(np.int64)
+    x_new = (jw.x.astype(np.int64) @ a.T) & 1
+    z_new = (jw.z.astype(np.int64) @ a_inv_t.T) & 1
+    ny_old = np.count_nonzero(jw.x & jw.z, axis=1)
+    ny_new = np.count_nonzero(x_new & z_new, axis=1)
+    diff = ny_old - ny_new
+    if np.any(diff % 2):
+        raise AssertionError("encode_linear: Y-count parity changed (matrix not invertible?)")
+    sign = np.where(diff % 4 == 0, 1.0, -1.0)
+    return PauliSum(x_new.astype(bool), z_new.astype(bool), jw.coeffs * sign, n).simplify(atol=0.0)
+
+
+def _from_qubit_operator(op, n_qubits: int) -> PauliSum:
+    return PauliSum.from_openfermion(op, n_qubits).simplify(atol=_DROP_TOL)
+
+
+def map_fermion_operator(op: FermionOperator, n_qubits: int, mapping: str) -> PauliSum:
+    """Map a Hermitian fermionic operator (number, S_z, ``i (T - T^dag)``, ...) to qubits.
+
+    Args:
+        op: OpenFermion ``FermionOperator`` or ``InteractionOperator``; must be Hermitian (for an
+            anti-Hermitian excitation generator ``A = T - T^dag`` pass ``1j * A``).
+        n_qubits: number of spin orbitals (the Bravyi–Kitaev and parity strings depend on it).
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        The qubit operator with terms ``|c| <= 1e-12`` dropped.
+
+    Raises:
+        TypeError: ``op`` is neither a ``FermionOperator`` nor an ``InteractionOperator``.
+        ConfigError: unknown mapping or an index ``>= n_qubits``.
+        ValueError: the image has complex coefficients (``op`` not Hermitian).
+    """
+    import openfermion
+    from openfermion import FermionOperator, InteractionOperator
+
+    if not isinstance(op, FermionOperator | InteractionOperator):
+        raise TypeError(
+            "map_fermion_operator accepts openfermion.FermionOperator or InteractionOperator, "
+            f"got {type(op).__name__}"
+        )
+    n = _check_n_qubits(n_qubits)
+    _check_mapping(mapping)
+    if isinstance(op, FermionOperator):
+        used = openfermion.count_qubits(op)
+    else:
+        used = op.n_qubits
+    if used > n:
+        raise ConfigError(f"operator acts on {used} spin orbitals but n_qubits is {n}")
+    if mapping == "bravyi_kitaev":
+        if isinstance(op, InteractionOperator) and op.n_qubits != n:
+            op = openfermion.get_fermion_operator(op)
+        return _from_qubit_operator(openfermion.bravyi_kitaev(op, n_qubits=n), n)
+    jw = _from_qubit_operator(openfermion.jordan_wigner(op), n)
+    if mapping == "jordan_wigner":
+        return jw
+    return encode_linear(jw, encoding_matrix(n, "parity")).simplify(atol=_DROP_TOL)
+
+
+def map_hamiltonian(h1e: np.ndarray, eri: np.ndarray, e_core: float, mapping: str) -> PauliSum:
+    """Qubit Hamiltonian of a molecule from its orbital integrals.
+
+    Args:
+        h1e: ``(norb, norb)`` one-electron integrals.
+        eri: ``(norb,)*4`` chemists' two-electron integrals ``(pq|rs)``.
+        e_core: constant energy (hartree), becomes the identity coefficient.
+        mapping: ``"jordan_wigner"``, ``"bravyi_kitaev"`` or ``"parity"``.
+
+    Returns:
+        Pauli sum on ``2 * norb`` qubits, terms with ``|c| <= 1e-12`` dropped, canonical order.
+
+    Example:
+        H2/STO-3G at 0.74 Å gives 15 Jordan–Wigner terms (identity included).
+    """
+    _check_mapping(mapping)
+    io = interaction_operator(h1e, eri, e_core)
+    return map_fermion_operator(io, io.n_qubits, mapping)
+
+
+def number_operator(n_qubits: int, mapping: str) -> PauliSum:
+    """Total electron number ``N = sum_k a+_k a_k`` under ``mapping`` (diagonal: Z strings).
+
+    Args:
+        n_qubits: number of spin orbitals.
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        The mapped operator.
+    """
+    from openfermion import FermionOperator
+
+    n = _check_n_qubits(n_qubits)
+    op = FermionOperator()
+    for k in range(n):
+        op += FermionOperator(((k, 1), (k, 0)))
+    return map_fermion_operator(op, n, mapping)
+
+
+def sz_operator(n_qubits: int, mapping: str) -> PauliSum:
+    """``S_z = 1/2 sum_p (n_{2p} - n_{2p+1})`` (interleaved alpha/beta) under ``mapping``.
+
+    Args:
+        n_qubits: number of spin orbitals (even).
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        The mapped operator.
+    """
+    from openfermion import FermionOperator
+
+    n = _check_n_qubits(n_qubits)
+    if n % 2:
+        raise ConfigError(f"S_z needs an even number of spin orbitals, got {n}")
+    op = FermionOperator()
+    for k in range(n):
+        op += FermionOperator(((k, 1), (k, 0)), 0.5 if k % 2 == 0 else -0.5)
+    return map_fermion_operator(op, n, mapping)
+
+
+def reference_bits(nelec: tuple[int, int], norb: int, mapping: str) -> np.ndarray:
+    """Computational-basis bits of the Hartree–Fock determinant under ``mapping``.
+
+    The lowest ``n_alpha`` alpha and ``n_beta`` beta spatial orbitals are occupied; occupations
+    ``n`` (interleaved) are encoded as ``b = A n (mod 2)`` (:func:`encoding_matrix`).
+
+    Args:
+        nelec: ``(n_alpha, n_beta)``.
+        norb: number of spatial orbitals.
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        uint8 array of length ``2 * norb``; entry ``k`` is qubit ``k``.
+
+    Example:
+        >>> reference_bits((1, 1), 2, "jordan_wigner")
+        array([1, 1, 0, 0], dtype=uint8)
+    """
+    if not isinstance(nelec, tuple | list) or len(nelec) != 2:
+        raise TypeError(f"nelec must be a tuple (n_alpha, n_beta), got {type(nelec).__name__}")
+    if isinstance(norb, bool) or not isinstance(norb, int | np.integer):
+        raise TypeError(f"norb must be an int, got {type(norb).__name__}")
+    na, nb = (int(v) for v in nelec)
+    if norb < 1 or not (0 <= na <= norb and 0 <= nb <= norb):
+        raise ConfigError(f"nelec {tuple(nelec)} does not fit in {norb} spatial orbitals")
+    occ = np.zeros(2 * norb, dtype=np.int64)
+    occ[0 : 2 * na : 2] = 1
+    occ[1 : 2 * nb : 2] = 1
+    a = encoding_matrix(2 * int(norb), mapping).astype(np.int64)
+    return ((a @ occ) & 1).astype(np.uint8)

@@ -1,0 +1,342 @@
+"""Vectorised NumPy statevector kernels (complex128, no ``2**n x 2**n`` matrices).
+
+Bit order (see :mod:`eigensweep.circuit`): qubit ``k`` is bit ``n - 1 - k`` of the basis-state
+index, i.e. qubit 0 is the most significant bit, as in OpenFermion's ``get_sparse_operator``.
+
+A Pauli string ``P(x, z) = i^{x.z} X^x Z^z`` acts on a basis state as
+``P|b> = i^{ny} (-1)^{popcount(b & zmask)} |b ^ xmask>`` (``ny`` = number of ``Y`` letters).
+:func:`apply_pauli_sum` groups the terms of a Hamiltonian by ``xmask`` (one permutation per
+group, see :class:`eigensweep.qubit.pauli.XMaskGroups`); each group's diagonal phase vector
+factorises over a high/low split of the qubits into short sums of outer products of sign tables.
+Up to ``2**24`` (group, basis state) pairs the groups are compiled once into a cached CSR matrix;
+above that a memory-lean loop rebuilds the diagonals block by block, with the permutation done as
+a column gather shared by all groups with the same low bits plus a flipped strided view over the
+high bits (``O(2**n)`` work space plus cached sign tables: about 100 MB at 20 qubits, against
+2.4 GiB for a CSR matrix of the N2/STO-3G Hamiltonian). Plain NumPy linear algebra; no method
+beyond the Pauli algebra.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..circuit import KNOWN_GATES, Circuit, Gate
+from ..errors import ConfigError
+from .pauli import PauliSum, XMaskGroups, bits_to_mask
+
+__all__ = [
+    "basis_state",
+    "apply_pauli",
+    "apply_pauli_rotation",
+    "apply_pauli_sum",
+    "expectation",
+    "apply_gate",
+    "simulate",
+    "GATE_MATRICES",
+]
+
+_I_POWERS = np.array([1.0, 1j, -1.0, -1j])  # i^k
+# Below this many (group, basis state) pairs the groups are compiled once into a cached CSR
+# matrix (at most ~200 MB, typically a third of that); above it the memory-lean group loop runs.
+_CSR_LIMIT = 1 << 24
+# Diagonal blocks of higher rank than this use one BLAS product instead of outer products.
+_RANK_BLAS = 8
+
+_SQ = 1.0 / np.sqrt(2.0)
+GATE_MATRICES: dict[str, np.ndarray] = {
+    "x": np.array([[0, 1], [1, 0]], dtype=np.complex128),
+    "y": np.array([[0, -1j], [1j, 0]], dtype=np.complex128),
+    "z": np.array([[1, 0], [0, -1]], dtype=np.complex128),
+    "h": np.array([[_SQ, _SQ], [_SQ, -_SQ]], dtype=np.complex128),
+    "s": np.array([[1, 0], [0, 1j]], dtype=np.complex128),
+    "sdg": np.array([[1, 0], [0, -1j]], dtype=np.complex128),
+    "sx": 0.5 * np.array([[1 + 1j, 1 - 1j], [1 - 1j, 1 + 1j]], dtype=np.complex128),
+}
+
+
+def _rotation_matrix(name: str, angle: float) -> np.ndarray:
+    c, s = np.cos(angle / 2.0), np.sin(angle / 2.0)
+    if name == "rx":
+        return np.array([[c, -1j * s], [-1j * s, c]], dtype=np.complex128)
+    if name == "ry":
+        return np.array([[c, -s], [s, c]], dtype=np.complex128)
+    return np.array([[c - 1j * s, 0], [0, c + 1j * s]], dtype=np.complex128)  # rz
+
+
+def _check_state(state: np.ndarray, n_qubits: int | None = None) -> tuple[np.ndarray, int]:
+    if not isinstance(state, np.ndarray):
+        raise TypeError(f"state must be a numpy.ndarray, got {type(state).__name__}")
+    if state.ndim != 1 or state.size == 0 or state.size & (state.size - 1):
+        raise ConfigError(f"state must be a 1-D array of length 2**n, got shape {state.shape}")
+    n = state.size.bit_length() - 1
+    if n_qubits is not None and n != n_qubits:
+        raise ConfigError(f"state has {n} qubits but the operator acts on {n_qubits}")
+    return np.asarray(state, dtype=np.complex128), n
+
+
+def _check_row(row: np.ndarray, n: int, name: str) -> np.ndarray:
+    if not isinstance(row, np.ndarray | list | tuple):
+        raise TypeError(
+            f"{name} must be a numpy array, list or tuple of bits, got {type(row).__name__}"
+        )
+    r = np.asarray(row).astype(bool).reshape(-1)
+    if r.size != n:
+        raise ConfigError(f"{name} has {r.size} entries but the state has {n} qubits")
+    return r
+
+
+def basis_state(bits: np.ndarray) -> np.ndarray:
+    """Computational basis state ``|bits>`` (character/entry ``k`` = qubit ``k``).
+
+    Args:
+        bits: 0/1 array of length ``n_qubits``.
+
+    Returns:
+        complex128 vector of length ``2**n_qubits`` with a single 1.
+
+    Example:
+        >>> np.flatnonzero(basis_state(np.array([1, 0, 0])))
+        array([4])
+    """
+    if not isinstance(bits, np.ndarray | list | tuple):
+        raise TypeError(f"bits must be a numpy array, list or tuple, got {type(bits).__name__}")
+    b = np.asarray(bits).reshape(-1)
+    if b.size == 0 or not np.all((b == 0) | (b == 1)):
+        raise ConfigError("bits must be a non-empty sequence of 0/1 values")
+    state = np.zeros(1 << b.size, dtype=np.complex128)
+    state[int(bits_to_mask(b.astype(bool)))] = 1.0
+    return state
+
+
+def apply_pauli(state: np.ndarray, x_row: np.ndarray, z_row: np.ndarray) -> np.ndarray:
+    """Return ``P(x_row, z_row)|state>`` for one Hermitian Pauli string.
+
+    Args:
+        state: complex vector of length ``2**n``.
+        x_row, z_row: 0/1 rows of length ``n`` (``Y`` where both are set).
+
+    Returns:
+        A new complex128 vector.
+    """
+    psi, n = _check_state(state)
+    x = _check_row(x_row, n, "x_row")
+    z = _check_row(z_row, n, "z_row")
+    xm = int(bits_to_mask(x))
+    zm = int(bits_to_mask(z))
+    idx = np.arange(psi.size, dtype=np.int64)
+    phase = _I_POWERS[int(np.count_nonzero(x & z)) % 4]
+    signed = psi * (1.0 - 2.0 * (np.bitwise_count(idx & zm) & 1))
+    # P|b> = phase(b)|b ^ xm>  =>  out[c] = phase(c ^ xm) psi[c ^ xm]
+    return phase * signed[idx ^ xm]
+
+
+def apply_pauli_rotation(
+    state: np.ndarray, x_row: np.ndarray, z_row: np.ndarray, angle: float
+) -> np.ndarray:
+    """Return ``exp(-i angle/2 P)|state> = cos(angle/2)|state> - i sin(angle/2) P|state>``.
+
+    Args:
+        state: complex vector of length ``2**n``.
+        x_row, z_row: 0/1 rows of the Hermitian Pauli string ``P``.
+        angle: rotation angle in radians (``rz(t) = exp(-i t Z/2)`` convention).
+
+    Returns:
+        A new complex128 vector.
+    """
+    if isinstance(angle, bool) or not isinstance(angle, int | float | np.integer | np.floating):
+        raise TypeError(f"angle must be a real number, got {type(angle).__name__}")
+    psi, _ = _check_state(state)
+    p_psi = apply_pauli(psi, x_row, z_row)
+    return np.cos(angle / 2.0) * psi - 1j * np.sin(angle / 2.0) * p_psi
+
+
+def _cached_csr(grp: XMaskGroups):
+    """The group table as a cached CSR matrix (small problems only)."""
+    if grp._csr_cache is None:
+        grp._csr_cache = grp.to_csr()
+    return grp._csr_cache
+
+
+def _apply_groups_large(grp: XMaskGroups, psi: np.ndarray) -> np.ndarray:
+    """Loop over x-mask groups without forming any matrix.
+
+    Groups are visited sorted by the low part of their mask: the column permutation (low qubits)
+    is one gather shared by all groups with that low mask. Rows (high qubits) are processed in
+    cache-sized blocks; the row permutation inside a block is a flipped strided view, and each
+    block of the group's diagonal is rebuilt from its rank factors
+    (:meth:`XMaskGroups.real_factors`, duplicated along the interleaved real/imaginary layout of
+    ``psi``), so memory stays ``O(2**n)`` and nothing is cached per basis state.
+    """
+    n_high, n_low = grp.n_high, grp.n_low
+    rows, cols = 1 << n_high, 1 << n_low
+    low = cols - 1
+    k = max(0, min(n_high, 16 - (n_low + 1)))  # block = 2**k rows, about 2**16 floats
+    block = 1 << k
+    sign_high, sign_low = grp.sign_tables()
+    factors = grp.real_factors()
+    psi2 = psi.reshape(rows, cols)
+    out = np.zeros((rows, cols), dtype=np.complex128)
+    out_f = out.view(np.float64)  # (rows, 2 * cols), real/imaginary interleaved
+    bshape_f = (2,) * k + (2 * cols,)
+    bshape_c = (2,) * k + (cols,)
+    dbuf = np.empty((block, 2 * cols))
+    tmp = np.empty((block, 2 * cols))
+    dbuf_b, tmp_b = dbuf.reshape(bshape_f), tmp.reshape(bshape_f)
+    col_index = np.arange(cols, dtype=np.int64)
+    order = np.lexsort((grp.masks >> n_low, grp.masks & low))
+    current = -1
+    src_f = psi2.view(np.float64)
+    for g in order:
+        m = int(grp.masks[g])
+        ml, mh = m & low, m >> n_low
+        if ml != current:
+            src = np.take(psi2, col_index ^ ml, axis=1) if ml else psi2
+            src_f = np.ascontiguousarray(src).view(np.float64)
+            current = ml
+        hi, lo = mh & ~(block - 1), mh & (block - 1)
+        flip = tuple(
+            slice(None, None, -1) if (lo >> (k - 1 - j)) & 1 else slice(None) for j in range(k)
+        )
+        a, b = int(grp.starts[g]), int(grp.starts[g + 1])
+        real = factors[g]
+        if real is None:  # complex phases (odd number of Y letters): complex arithmetic
+            w = grp.weights[a:b]
+            left_re = sign_high[a:b].T * w.real
+            left_im = sign_high[a:b].T * w.imag
+        for r0 in range(0, rows, block):
+            src_blk = src_f[(r0 ^ hi) : (r0 ^ hi) + block]
+            if real is None:
+                diag = left_re[r0 : r0 + block] @ sign_low[a:b]
+                diag = diag + 1j * (left_im[r0 : r0 + block] @ sign_low[a:b])
+                src_c = src_blk.view(np.complex128).reshape(bshape_c)[flip]
+                out[r0 : r0 + block] += (diag.reshape(bshape_c) * src_c).reshape(block, cols)
+                continue
+            u, v2 = real
+            if u.shape[0] > _RANK_BLAS:
+                np.matmul(u[:, r0 : r0 + block].T, v2, out=dbuf)
+            else:  # short sum of outer products: tiny GEMMs would only wake BLAS threads
+                np.multiply(u[0, r0 : r0 + block, None], v2[0], out=dbuf)
+                for j in range(1, u.shape[0]):
+                    np.multiply(u[j, r0 : r0 + block, None], v2[j], out=tmp)
+                    dbuf += tmp
+            np.multiply(dbuf_b, src_blk.reshape(bshape_f)[flip], out=tmp_b)
+            out_f[r0 : r0 + block] += tmp
+    return out.reshape(-1)
+
+
+def apply_pauli_sum(state: np.ndarray, ham: PauliSum) -> np.ndarray:
+    """Return ``H|state>`` for a :class:`PauliSum` ``H``.
+
+    Terms are grouped by their ``x`` pattern (same permutation of basis states), so the cost is
+    ``O(n_groups * 2**n)`` rather than ``O(n_terms * 2**n)``; the grouping is cached on ``ham``.
+    Small problems (``n_groups * 2**n <= 2**24``) compile the groups once into a cached CSR
+    matrix (built row-major from the groups, no sorting) and reuse it on every call, which is what
+    an optimizer loop wants; larger ones loop over groups with ``O(2**n)`` extra memory.
+
+    Args:
+        state: complex vector of length ``2**ham.n_qubits``.
+        ham: the operator.
+
+    Returns:
+        A new complex128 vector.
+    """
+    if not isinstance(ham, PauliSum):
+        raise TypeError(f"apply_pauli_sum accepts a PauliSum, got {type(ham).__name__}")
+    psi, _ = _check_state(state, ham.n_qubits)
+    grp = ham.compile()
+    if grp.n_groups == 0:
+        return np.zeros_like(psi)
+    if grp.n_qubits < 4 or grp.n_groups * psi.size <= _CSR_LIMIT:
+        return np.asarray(_cached_csr(grp) @ psi, dtype=np.complex128)
+    return _apply_groups_large(grp, psi)
+
+
+def expectation(state: np.ndarray, ham: PauliSum) -> float:
+    """``<state|H|state>`` (real part) for a normalised ``state``.
+
+    Args:
+        state: complex vector of length ``2**ham.n_qubits``.
+        ham: the operator.
+
+    Returns:
+        The expectation value as a float.
+    """
+    psi, _ = _check_state(state, getattr(ham, "n_qubits", None))
+    return float(np.vdot(psi, apply_pauli_sum(psi, ham)).real)
+
+
+def _apply_one_qubit(psi: np.ndarray, n: int, q: int, mat: np.ndarray) -> np.ndarray:
+    v = psi.reshape(1 << q, 2, 1 << (n - q - 1))
+    out = np.empty_like(v)
+    out[:, 0, :] = mat[0, 0] * v[:, 0, :] + mat[0, 1] * v[:, 1, :]
+    out[:, 1, :] = mat[1, 0] * v[:, 0, :] + mat[1, 1] * v[:, 1, :]
+    return out.reshape(-1)
+
+
+def _apply_cx(psi: np.ndarray, n: int, control: int, target: int) -> np.ndarray:
+    out = psi.copy()
+    v = out.reshape((2,) * n)
+    sel: list = [slice(None)] * n
+    sel[control] = 1
+    sub = v[tuple(sel)]  # view with the control set; target axis shifts if after control
+    t_axis = target if target < control else target - 1
+    sub[...] = np.flip(sub, axis=t_axis).copy()
+    return out
+
+
+def apply_gate(state: np.ndarray, gate: Gate, n_qubits: int) -> np.ndarray:
+    """Apply one :class:`eigensweep.circuit.Gate` (OpenQASM 3 ``stdgates`` meaning).
+
+    Args:
+        state: complex vector of length ``2**n_qubits``.
+        gate: the gate (``cx`` has the control first).
+        n_qubits: number of qubits of the register.
+
+    Returns:
+        A new complex128 vector.
+    """
+    if not isinstance(gate, Gate):
+        raise TypeError(f"apply_gate accepts an eigensweep.circuit.Gate, got {type(gate).__name__}")
+    psi, _ = _check_state(state, n_qubits)
+    if gate.name not in KNOWN_GATES:
+        raise ConfigError(f"unknown gate {gate.name!r}; known: {sorted(KNOWN_GATES)}")
+    if any(not 0 <= q < n_qubits for q in gate.qubits):
+        raise ConfigError(f"gate {gate.name} acts on {gate.qubits}, outside 0..{n_qubits - 1}")
+    if gate.name == "cx":
+        if len(gate.qubits) != 2 or gate.qubits[0] == gate.qubits[1]:
+            raise ConfigError(f"cx needs two distinct qubits, got {gate.qubits}")
+        return _apply_cx(psi, n_qubits, gate.qubits[0], gate.qubits[1])
+    if len(gate.qubits) != 1:
+        raise ConfigError(f"gate {gate.name} acts on one qubit, got {gate.qubits}")
+    if gate.name in GATE_MATRICES:
+        mat = GATE_MATRICES[gate.name]
+    else:
+        if len(gate.params) != 1:
+            raise ConfigError(f"gate {gate.name} needs one angle, got {gate.params}")
+        mat = _rotation_matrix(gate.name, gate.params[0])
+    return _apply_one_qubit(psi, n_qubits, gate.qubits[0], mat)
+
+
+def simulate(circuit: Circuit, initial: np.ndarray | None = None) -> np.ndarray:
+    """Run a circuit on a statevector.
+
+    Args:
+        circuit: the gate list.
+        initial: starting state (default ``|0...0>``); not modified.
+
+    Returns:
+        The final complex128 statevector.
+    """
+    if not isinstance(circuit, Circuit):
+        raise TypeError(
+            f"simulate accepts an eigensweep.circuit.Circuit, got {type(circuit).__name__}"
+        )
+    if initial is None:
+        psi = np.zeros(1 << circuit.n_qubits, dtype=np.complex128)
+        psi[0] = 1.0
+    else:
+        psi, _ = _check_state(initial, circuit.n_qubits)
+        psi = psi.copy()
+    for gate in circuit.gates:
+        psi = apply_gate(psi, gate, circuit.n_qubits)
+    return psi

@@ -1,0 +1,382 @@
+"""Stage actions: read parent stage files, call the science, write the stage file.
+
+One function per stage, each ``run_<stage>(node, inputs, output, progress=None)``. The Snakemake
+scripts in ``workflow/scripts/`` only unpack ``snakemake.params``/``input``/``output`` and call
+these, so every stage can be run and tested without Snakemake.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+
+from .errors import StageFileError
+from .plan import Node, molecule_kwargs
+from .stage_table import STAGES
+from .store import Timer, read_stage, write_stage
+
+Progress = Callable[[str], None] | None
+
+
+def _say(progress: Progress, msg: str) -> None:
+    if progress is not None:
+        progress(msg)
+
+
+def _write(node: Node, output: str, **fields) -> None:
+    """Write this node's stage file (stage, key, parameters and parents come from the node)."""
+    write_stage(
+        output, stage=node.stage, key=node.key, params=node.params, parents=node.parents, **fields
+    )
+
+
+def load_integrals(path: str | Path):
+    """The :class:`~eigensweep.chem.IntegralsResult` stored in an integrals stage file."""
+    from .chem import IntegralsResult
+
+    sd = read_stage(path, stage="integrals")
+    return IntegralsResult.from_store(sd.arrays, sd.meta)
+
+
+def load_taper(path: str | Path):
+    """The :class:`~eigensweep.qubit.TaperResult` stored in a taper stage file."""
+    from .qubit import TaperResult
+
+    sd = read_stage(path, stage="taper")
+    return TaperResult.from_store(sd.arrays), sd
+
+
+def run_integrals(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
+    """SCF, active-space integrals and the classical reference ladder for one geometry point."""
+    from .chem import compute_integrals
+
+    p = node.params
+    guess = None
+    if "guess" in inputs:
+        prev = load_integrals(inputs["guess"])
+        guess = (prev.mo_coeff, prev.mo_occ)
+    with Timer() as t:
+        res = compute_integrals(
+            **molecule_kwargs(p),
+            symmetry=p["symmetry"],
+            fci_max_determinants=p["fci_max_determinants"],
+            stability=p["stability"],
+            guess=guess,
+            label=f"integrals {node.key} ({p['atoms']})",
+        )
+    arrays, meta = res.to_store()
+    _say(
+        progress,
+        f"integrals {node.key}: HF {res.references['hf']:.8f} Eh, exact {res.references['casci']:.8f} Eh",
+    )
+    _write(
+        node,
+        output,
+        arrays=arrays,
+        meta=meta,
+        units={"h1e": "hartree", "eri": "hartree", "mo_energy": "hartree"},
+        wall_s=t.seconds,
+    )
+
+
+#: Largest qubit count for which stages diagonalise the qubit Hamiltonian in its sector.
+SECTOR_CHECK_MAX_QUBITS = 20
+
+
+def sector_check(ham, ints, mapping: str, key: str, taper=None) -> dict:
+    """Lowest qubit-Hamiltonian eigenvalue in the (N, S_z = S) sector vs the integrals' exact energy.
+
+    The qubit sector holds every total spin S' >= S, so its lowest eigenvalue can only be at or
+    below the exact energy of the requested spin state. Above it means the mapping (or
+    tapering) lost the state: that is an error. Below it means a state of another total spin
+    lies lower with the same N and S_z; that is recorded as a note, not an error.
+    """
+    from .qubit import sector_ground_energy
+
+    exact = ints.references.get("casci")
+    if ham.n_qubits > SECTOR_CHECK_MAX_QUBITS or exact is None or not math.isfinite(float(exact)):
+        return {
+            "energy_sector_qubit": None,
+            "sector_check": "skipped (too large or no exact reference)",
+        }
+    n_el = int(sum(ints.nelec))
+    sz = 0.5 * (int(ints.nelec[0]) - int(ints.nelec[1]))
+    e = float(sector_ground_energy(ham, n_electrons=n_el, sz=sz, mapping=mapping, taper=taper))
+    if e > float(exact) + 1e-6:
+        raise StageFileError(
+            f"{key}: the {mapping} qubit Hamiltonian's lowest energy in the N={n_el}, S_z={sz:g} sector "
+            f"({e:.10f} Eh) lies above the exact energy {float(exact):.10f} Eh; the mapping lost the "
+            "state, please report this"
+        )
+    note = (
+        "agrees with the exact energy"
+        if e > float(exact) - 1e-6
+        else ("a state of another total spin lies lower in this N, S_z sector")
+    )
+    return {"energy_sector_qubit": e, "sector_check": note}
+
+
+def run_hamiltonian(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
+    """Map the active-space Hamiltonian to qubits; number and S_z operators; measurement costs."""
+    from .qubit import (
+        map_hamiltonian,
+        number_operator,
+        qwc_groups,
+        reference_bits,
+        shots_for_precision,
+        sz_operator,
+    )
+
+    ints = load_integrals(inputs["integrals"])
+    mapping = node.params["mapping"]
+    with Timer() as t:
+        ham = map_hamiltonian(ints.h1e, ints.eri, ints.e_core, mapping)
+        n_qubits = ham.n_qubits
+        num = number_operator(n_qubits, mapping)
+        sz = sz_operator(n_qubits, mapping)
+        ref = reference_bits(ints.nelec, ints.norb, mapping)
+        groups = qwc_groups(ham)
+        shots = shots_for_precision(ham, groups=groups)
+        check = sector_check(ham, ints, mapping, node.key)
+    arrays = {
+        **ham.to_store("ham_"),
+        **num.to_store("num_"),
+        **sz.to_store("sz_"),
+        "reference_bits": np.asarray(ref, dtype=np.uint8),
+    }
+    meta = {
+        "mapping": mapping,
+        "n_qubits": n_qubits,
+        "n_terms": ham.n_terms,
+        "one_norm": float(ham.one_norm),
+        "n_qwc_groups": len(groups),
+        "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
+        **check,
+        "nelec": list(ints.nelec),
+        "norb": ints.norb,
+    }
+    _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
+    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
+
+
+def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Z2 tapering (or the identity stage that records 'no tapering')."""
+    from .qubit import PauliSum, no_taper, qwc_groups, shots_for_precision, taper
+    from .qubit.statevector import basis_state
+
+    sd = read_stage(inputs["hamiltonian"], stage="hamiltonian")
+    ham = PauliSum.from_store(sd.arrays, "ham_")
+    ref = sd.arrays["reference_bits"]
+    with Timer() as t:
+        res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
+        # measurement cost of the problem the optimizer and the device will see
+        tham = res.hamiltonian
+        groups = qwc_groups(tham)
+        state = basis_state(res.reference_bits) if tham.n_qubits <= 22 else None
+        shots = shots_for_precision(tham, groups=groups, state=state)
+        check = sector_check(
+            tham,
+            load_integrals(inputs["integrals"]),
+            sd.meta["mapping"],
+            node.key,
+            taper=res if node.params["taper"] else None,
+        )
+    arrays = res.to_store()
+    meta = {
+        "mapping": sd.meta["mapping"],
+        "nelec": sd.meta["nelec"],
+        "norb": sd.meta["norb"],
+        "tapered": bool(node.params["taper"]),
+        "n_qubits_before": res.n_qubits_before,
+        "n_qubits": res.hamiltonian.n_qubits,
+        "n_terms": res.hamiltonian.n_terms,
+        "sector": [int(v) for v in res.sector],
+        "one_norm": float(tham.one_norm_nonidentity),
+        "n_qwc_groups": len(groups),
+        "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
+        **check,
+        "shots_variance_at_reference": (
+            int(shots["shots_variance"]) if shots.get("shots_variance") is not None else None
+        ),
+    }
+    _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
+    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
+
+
+def run_optimize(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
+    """Variational optimization of one ansatz x optimizer x estimator on one qubit problem."""
+    from .vqe import run_optimize as optimize_kernel
+
+    p = node.params
+    ints = load_integrals(inputs["integrals"])
+    tap, tap_sd = load_taper(inputs["taper"])
+    init = None
+    if "warm" in inputs:
+        prev = read_stage(inputs["warm"], stage="optimize")
+        init = np.asarray(prev.arrays["params"], dtype=float)
+
+    def report(i: int, energy: float) -> None:
+        if progress is not None and (i < 5 or i % 25 == 0):
+            progress(f"optimize {node.key}: evaluation {i}, energy {energy:.8f} Eh")
+
+    with Timer() as t:
+        res = optimize_kernel(
+            h1e=ints.h1e,
+            eri=ints.eri,
+            e_core=ints.e_core,
+            norb=ints.norb,
+            nelec=tuple(ints.nelec),
+            ansatz=p["ansatz"],
+            optimizer=p["optimizer"],
+            estimator=p["estimator"],
+            qubit_hamiltonian=tap.hamiltonian,
+            reference_bits=tap.reference_bits,
+            mapping=tap_sd.meta["mapping"],
+            tapering=tap,
+            initial_params=init,
+            seed=p["seed"],
+            progress=report,
+        )
+    if not math.isfinite(res.energy):
+        raise StageFileError(
+            f"optimize {node.key}: the optimizer returned a non-finite energy; check the method options"
+        )
+    arrays, meta = res.to_store()
+    meta = {
+        **meta,
+        "n_qubits_problem": tap.hamiltonian.n_qubits,
+        "mapping": tap_sd.meta["mapping"],
+        "tapered": tap_sd.meta["tapered"],
+    }
+    _say(
+        progress,
+        f"optimize {node.key}: E = {res.energy:.8f} Eh after {res.n_evaluations} evaluations",
+    )
+    _write(
+        node,
+        output,
+        arrays=arrays,
+        meta=meta,
+        units={"trace_energy": "hartree", "params": "radian"},
+        wall_s=t.seconds,
+    )
+
+
+def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
+    """Device jobs for one optimized point: OpenQASM 3/2 circuits, manifest and job summary."""
+    from .device import build_job, state_circuit, write_job
+
+    p = node.params
+    opt = read_stage(inputs["optimize"], stage="optimize")
+    tap, tap_sd = load_taper(inputs["taper"])
+    mapping = tap_sd.meta["mapping"]
+    ham = tap.hamiltonian
+    with Timer() as t:
+        circ, e_circ = state_circuit(
+            opt.meta["ansatz_meta"],
+            opt.arrays["params"],
+            mapping,
+            ham,
+            float(opt.meta["energy_exact_at_params"]),
+        )
+        job = build_job(
+            circ,
+            ham,
+            shots_total=p["shots"],
+            scale_factors=tuple(p["scale_factors"]),
+            calibration=p["calibration"],
+            job_name=f"eigensweep-{node.key}",
+            meta={
+                "export_key": node.key,
+                "optimize_key": node.parents["optimize"],
+                "mapping": mapping,
+                "tapered": bool(tap_sd.meta["tapered"]),
+                "energy_simulated": e_circ,
+            },
+            target_se=p["target_mha"] / 1000.0,
+        )
+        folder = Path(output).with_suffix("")
+        write_job(job, folder)
+    manifest = json.loads((folder / "manifest.json").read_text())
+    meta = {
+        "manifest": manifest,
+        "energy_simulated": e_circ,
+        "n_qubits": circ.n_qubits,
+        "cnot_count": circ.cnot_count,
+        "depth": circ.depth,
+        "mapping": mapping,
+        "tapered": bool(tap_sd.meta["tapered"]),
+        "job_folder": folder.name,
+    }
+    _say(
+        progress,
+        f"export {node.key}: {len(manifest['circuits'])} circuits on {circ.n_qubits} qubits in {folder}",
+    )
+    _write(node, output, arrays={}, meta=meta, wall_s=t.seconds)
+
+
+def run_reconcile(
+    node: Node, inputs: dict[str, str], output: str, progress: Progress = None
+) -> None:
+    """Returned counts -> energies with bootstrap intervals: raw, mitigated, verified, extrapolated."""
+    from .device import load_results, reconcile, run_synthetic_device
+
+    p = node.params
+    exp = read_stage(inputs["export"], stage="export")
+    manifest = exp.meta["manifest"]
+    folder = Path(inputs["export"]).with_suffix("")
+    tap, tap_sd = load_taper(inputs["taper"])
+    ints = load_integrals(inputs["integrals"])
+    with Timer() as t:
+        if p["device"] == "synthetic":
+            returned = run_synthetic_device(
+                folder,
+                seed=p["seed"],
+                readout_error=tuple(p["readout_error"]),
+                depolarizing_1q=p["depolarizing_1q"],
+                depolarizing_2q=p["depolarizing_2q"],
+                device="eigensweep synthetic device",
+            )
+            counts = {cid: r["counts"] for cid, r in returned["results"].items()}
+        else:
+            counts = load_results(inputs["counts"], manifest)
+        if tap.generators.n_terms == 0:
+            # untapered job: verify with the Z2 symmetries tapering would have removed
+            from .qubit import taper
+
+            sym = taper(tap.hamiltonian, tap.reference_bits)
+            generators, sector = sym.generators, sym.sector
+        else:
+            # tapered job: its symmetries were removed with the qubits; nothing left to verify
+            generators, sector = None, None
+        res = reconcile(
+            manifest,
+            counts,
+            tap.hamiltonian,
+            generators=generators,
+            sector=sector,
+            n_electrons=None,
+            mapping=tap_sd.meta["mapping"],
+            bootstrap=p["bootstrap"],
+            seed=p["seed"],
+            energy_sim=float(exp.meta["energy_simulated"]),
+            energy_exact=float(ints.references["casci"]),
+        )
+    arrays, meta = res.to_store()
+    meta = {**meta, "counts": counts, "comparison_table": res.comparison_table()}
+    _say(progress, f"reconcile {node.key}: raw {res.raw.value:.6f} Eh")
+    _write(node, output, arrays=arrays, meta=meta, wall_s=t.seconds)
+
+
+#: stage name -> its action, as named in the stage table
+STAGE_ACTIONS = {s.name: globals()[s.action] for s in STAGES}

@@ -1,0 +1,155 @@
+"""Variational engine: determinant-space emulation, ansätze, optimizers, estimators.
+
+The ``optimize`` workflow stage calls :func:`run_optimize`.
+
+Importing the package is light: the method tables and config checks
+(:data:`ANSATZ_DEFAULTS`, :data:`OPTIMIZER_DEFAULTS`, :data:`ESTIMATOR_DEFAULTS`,
+:func:`validate_method`, :func:`check_combination`) come from :mod:`eigensweep.vqe.methods`,
+which needs only NumPy. Everything else is loaded on first access (PEP 562 module
+``__getattr__``), so config validation does not pay for SciPy, PySCF or OpenFermion.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
+from .methods import (
+    ANSATZ_DEFAULTS,
+    ESTIMATOR_DEFAULTS,
+    MAPPINGS,
+    OPTIMIZER_DEFAULTS,
+    check_combination,
+    validate_method,
+)
+
+# public name -> submodule that defines it (imported on first access)
+_LAZY: dict[str, str] = {
+    "AdaptAnsatz": "adapt",
+    "AdaptResult": "adapt",
+    "pool_terms": "adapt",
+    "run_adapt": "adapt",
+    "Excitation": "ansatz",
+    "FermionicAnsatz": "ansatz",
+    "PauliGate": "ansatz",
+    "PauliRotationAnsatz": "ansatz",
+    "circuit_from_meta": "ansatz",
+    "encoded_qubit_state": "ansatz",
+    "generator_paulis": "ansatz",
+    "reference_bits": "ansatz",
+    "rotations_from_meta": "ansatz",
+    "DetSpace": "detspace",
+    "ExcitationGate": "detspace",
+    "fci_ground_state": "detspace",
+    "from_qubit_state": "detspace",
+    "to_qubit_state": "detspace",
+    "OptimizeResult": "engine",
+    "run_optimize": "engine",
+    "Estimate": "estimators",
+    "Estimator": "estimators",
+    "MeasurementPlan": "estimators",
+    "NoisyEstimator": "estimators",
+    "ShotEstimator": "estimators",
+    "make_estimator": "estimators",
+    "molecular_pauli_sum": "estimators",
+    "HardwareEfficientAnsatz": "hardware_efficient",
+    "KUpCCGSD": "kupccgsd",
+    "OptimizerResult": "optimizers",
+    "minimize": "optimizers",
+    "TaperedFermionicAnsatz": "tapered",
+    "taper_excitation": "tapered",
+    "UCCSD": "uccsd",
+}
+
+if TYPE_CHECKING:  # for type checkers and IDEs; at run time these load lazily
+    from .adapt import AdaptAnsatz, AdaptResult, pool_terms, run_adapt
+    from .ansatz import (
+        Excitation,
+        FermionicAnsatz,
+        PauliGate,
+        PauliRotationAnsatz,
+        circuit_from_meta,
+        encoded_qubit_state,
+        generator_paulis,
+        reference_bits,
+        rotations_from_meta,
+    )
+    from .detspace import (
+        DetSpace,
+        ExcitationGate,
+        fci_ground_state,
+        from_qubit_state,
+        to_qubit_state,
+    )
+    from .engine import OptimizeResult, run_optimize
+    from .estimators import (
+        Estimate,
+        Estimator,
+        MeasurementPlan,
+        NoisyEstimator,
+        ShotEstimator,
+        make_estimator,
+        molecular_pauli_sum,
+    )
+    from .hardware_efficient import HardwareEfficientAnsatz
+    from .kupccgsd import KUpCCGSD
+    from .optimizers import OptimizerResult, minimize
+    from .tapered import TaperedFermionicAnsatz, taper_excitation
+    from .uccsd import UCCSD
+
+__all__ = [
+    "ANSATZ_DEFAULTS",
+    "ESTIMATOR_DEFAULTS",
+    "MAPPINGS",
+    "OPTIMIZER_DEFAULTS",
+    "UCCSD",
+    "AdaptAnsatz",
+    "AdaptResult",
+    "DetSpace",
+    "Estimate",
+    "Estimator",
+    "Excitation",
+    "ExcitationGate",
+    "FermionicAnsatz",
+    "HardwareEfficientAnsatz",
+    "KUpCCGSD",
+    "MeasurementPlan",
+    "NoisyEstimator",
+    "OptimizeResult",
+    "OptimizerResult",
+    "PauliGate",
+    "PauliRotationAnsatz",
+    "ShotEstimator",
+    "TaperedFermionicAnsatz",
+    "check_combination",
+    "circuit_from_meta",
+    "encoded_qubit_state",
+    "fci_ground_state",
+    "from_qubit_state",
+    "generator_paulis",
+    "make_estimator",
+    "minimize",
+    "molecular_pauli_sum",
+    "pool_terms",
+    "reference_bits",
+    "rotations_from_meta",
+    "run_adapt",
+    "run_optimize",
+    "taper_excitation",
+    "to_qubit_state",
+    "validate_method",
+]
+
+
+def __getattr__(name: str) -> Any:
+    """Import the submodule defining ``name`` on first access (PEP 562)."""
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"{__name__}.{module}"), name)
+    globals()[name] = value  # later lookups skip __getattr__
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))

@@ -1,0 +1,116 @@
+"""Hardware-efficient ansatz (Kandala et al., Nature 549, 242 (2017)).
+
+Layout (``layers = d``): starting from the reference computational-basis state (HF bits
+in the chosen qubit encoding), a rotation layer, then ``d`` times a CNOT chain
+``cx(0,1) cx(1,2) ... cx(n-2,n-1)`` followed by another rotation layer. A rotation layer is
+``ry(theta)`` then ``rz(theta)`` on every qubit (``rotations="ry_rz"``, ``2 n (d + 1)``
+parameters) or ``ry(theta)`` only (``rotations="ry"``, real amplitudes, ``n (d + 1)``
+parameters). Parameters are ordered layer by layer, qubit by qubit, ``ry`` before ``rz``.
+
+For simulation the ansatz is a :class:`~eigensweep.vqe.ansatz.PauliRotationAnsatz`: ``ry``
+and ``rz`` are the rotations ``exp(-i t/2 Y)``, ``exp(-i t/2 Z)``, and each CNOT is written
+exactly, up to the global phase ``exp(i pi/4)``, as the three fixed rotations
+``exp(-i pi/4 Z_c) exp(-i pi/4 X_t) exp(+i pi/4 Z_c X_t)``. :meth:`circuit` emits the
+native ``ry``/``rz``/``cx`` gates instead (``layers * (n - 1)`` CNOTs).
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from ..circuit import Circuit, circuit_costs
+from .ansatz import PauliGate, PauliRotationAnsatz
+from .methods import ROTATION_SETS
+
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliSum
+
+__all__ = ["ROTATION_SETS", "HardwareEfficientAnsatz"]
+
+
+def _row(n: int, qubits: dict[int, str]) -> tuple[np.ndarray, np.ndarray]:
+    x = np.zeros(n, dtype=bool)
+    z = np.zeros(n, dtype=bool)
+    for q, letter in qubits.items():
+        x[q] = letter in "XY"
+        z[q] = letter in "ZY"
+    return x, z
+
+
+class HardwareEfficientAnsatz(PauliRotationAnsatz):
+    """Kandala-style layered ansatz (module docstring)."""
+
+    name = "hardware_efficient"
+
+    def __init__(
+        self,
+        hamiltonian: PauliSum | None,
+        reference: np.ndarray,
+        layers: int = 2,
+        rotations: str = "ry_rz",
+        *,
+        init_scale: float = 0.1,
+        seed: int = 0,
+    ) -> None:
+        if rotations not in ROTATION_SETS:
+            raise ValueError(f"rotations must be one of {ROTATION_SETS}")
+        if layers < 0:
+            raise ValueError("layers must be >= 0")
+        ref = np.asarray(reference, dtype=np.uint8).reshape(-1)
+        n = ref.size
+        letters = ["Y", "Z"] if rotations == "ry_rz" else ["Y"]
+        gates: list[PauliGate] = []
+        native: list[tuple[str, tuple[int, ...], int]] = []
+        n_params = 0
+
+        def rotation_layer() -> None:
+            nonlocal n_params
+            for q in range(n):
+                for letter in letters:
+                    x, z = _row(n, {q: letter})
+                    gates.append(PauliGate(x, z, n_params))
+                    native.append(("r" + letter.lower(), (q,), n_params))
+                    n_params += 1
+
+        rotation_layer()
+        for _ in range(int(layers)):
+            for c in range(n - 1):
+                t = c + 1
+                for qubits, offset in (
+                    ({c: "Z"}, np.pi / 2),
+                    ({t: "X"}, np.pi / 2),
+                    ({c: "Z", t: "X"}, -np.pi / 2),
+                ):
+                    x, z = _row(n, qubits)
+                    gates.append(PauliGate(x, z, -1, 0.0, offset))
+                native.append(("cx", (c, t), -1))
+            rotation_layer()
+        self.layers = int(layers)
+        self.rotations = rotations
+        self._native = native
+        super().__init__(hamiltonian, ref, gates, n_params, init_scale=init_scale, seed=seed)
+
+    def circuit(self, theta: np.ndarray, mapping: str | None = None) -> Circuit:
+        """Native ``x``/``ry``/``rz``/``cx`` circuit."""
+        theta = np.asarray(theta, dtype=float).reshape(-1)
+        if theta.size != self.n_params:
+            raise ValueError(f"expected {self.n_params} parameters, got {theta.size}")
+        circ = Circuit(self.n_qubits)
+        for q in np.nonzero(self.reference)[0]:
+            circ.append("x", (int(q),))
+        for name, qubits, p in self._native:
+            if p < 0:
+                circ.append(name, qubits)
+            else:
+                circ.append(name, qubits, (float(theta[p]),))
+        return circ
+
+    def circuit_costs(self, mapping: str | None = None) -> dict[str, int]:
+        return circuit_costs(self.circuit(np.full(self.n_params, 0.1)))
+
+    def meta(self) -> dict:
+        out = super().meta()
+        out.update(layers=self.layers, rotations=self.rotations)
+        return out
