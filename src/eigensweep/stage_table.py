@@ -143,34 +143,10 @@ def _json_default(o: Any) -> Any:
     raise TypeError(f"cannot serialise {type(o).__name__}")
 
 
-#: Options removed because they never had an effect, with the only value they ever took:
-#: keys are computed as if they were still there, so stage files cached before the removal
-#: keep their keys. Only the hash sees them; plan nodes and stage files do not hold them.
-RETIRED_KEY_PARAMS: Mapping[str, Mapping[str, Mapping[str, Any]]] = MappingProxyType(
-    {"optimize": {"ansatz": {"restarts": 0, "restart_scale": 0.1}}}
-)
-
-
-def _keyed_params(stage: str, params: dict) -> dict:
-    retired = RETIRED_KEY_PARAMS.get(stage)
-    if not retired:
-        return params
-    out = dict(params)
-    for field_name, extra in retired.items():
-        if isinstance(out.get(field_name), dict):
-            out[field_name] = {**extra, **out[field_name]}
-    return out
-
-
 def stage_key(stage: str, params: dict, parents: Mapping[str, str]) -> str:
     """First 16 hex digits of SHA-256 over the canonical JSON of the stage's identity."""
     blob = canonical_json(
-        {
-            "stage": stage,
-            "version": STAGE_VERSIONS[stage],
-            "params": _keyed_params(stage, params),
-            "parents": parents,
-        }
+        {"stage": stage, "version": STAGE_VERSIONS[stage], "params": params, "parents": parents}
     )
     return hashlib.sha256(blob.encode()).hexdigest()[:16]
 
