@@ -203,16 +203,16 @@ def test_yaml_is_read_as_plain_data(tmp_path, text, fragment):
 
 def test_reads_are_bounded_and_regular_files_only(tmp_path):
     big = _write(tmp_path, GOOD + "#" * 3_000_000 + "\n", "big.yaml")
-    with pytest.raises(ConfigError, match="larger than"):
+    with pytest.raises(ConfigError, match="byte limit"):
         load_config(big)
-    with pytest.raises(ConfigError, match="not a regular file"):
+    with pytest.raises(ConfigError, match="regular file"):
         load_config(tmp_path)
-    with pytest.raises(ConfigError, match="not a regular file"):
+    with pytest.raises(ConfigError, match="regular file"):
         load_config("/dev/zero")
     fifo = tmp_path / "pipe.yaml"
     os.mkfifo(fifo)
     t0 = time.perf_counter()
-    with pytest.raises(ConfigError, match="not a regular file"):
+    with pytest.raises(ConfigError, match="regular file"):
         load_config(fifo)  # would block forever if opened for reading
     assert time.perf_counter() - t0 < 5
     (tmp_path / "bin.yaml").write_bytes(b"\xff\xfe\x00bad")

@@ -21,7 +21,6 @@ from eigensweep.store import (
     FORMAT_VERSION,
     atomic_path,
     atomic_write_text,
-    read_bounded,
     read_stage,
     write_stage,
 )
@@ -251,12 +250,14 @@ def test_atomic_write_uses_umask(tmp_path):
 
 
 def test_bounded_read_refuses_fifo_and_large_files(tmp_path):
+    from eigensweep.inputs import read_bounded
+
     fifo = tmp_path / "pipe"
     os.mkfifo(fifo)
     with pytest.raises(StageFileError, match="regular file"):
-        read_bounded(fifo, 100, "counts file")
+        read_bounded(fifo, 100, "counts file", StageFileError)
     big = tmp_path / "big"
     big.write_bytes(b"0" * 101)
     with pytest.raises(StageFileError, match="above the 100-byte limit"):
-        read_bounded(big, 100, "counts file")
+        read_bounded(big, 100, "counts file", StageFileError)
     assert read_bounded(big, 101, "counts file") == b"0" * 101

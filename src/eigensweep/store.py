@@ -44,7 +44,7 @@ import h5py
 import numpy as np
 
 from . import __version__
-from .errors import EigensweepError, StageFileError
+from .errors import StageFileError
 from .stage_table import STAGE_VERSIONS, canonical_json, stage_key
 
 FORMAT = "eigensweep-stage"
@@ -112,32 +112,6 @@ def atomic_write_text(path: str | Path, text: str) -> Path:
     with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="\n") as fh:
         fh.write(text)
     return path
-
-
-def read_bounded(
-    path: str | Path, limit: int, what: str, error: type[EigensweepError] = StageFileError
-) -> bytes:
-    """Bytes of a regular file no larger than ``limit``; one-line error naming ``what`` otherwise.
-
-    Refuses FIFOs, devices and folders (``/dev/zero`` as an input would never end) and files
-    larger than ``limit`` bytes, without echoing any of their content.
-    """
-    path = Path(path)
-    try:
-        st = os.stat(path)
-        if not stat.S_ISREG(st.st_mode):
-            raise error(f"{path}: {what} must be a regular file, not a device, pipe or folder")
-        if st.st_size > limit:
-            raise error(f"{path}: {what} is {st.st_size} bytes, above the {limit}-byte limit")
-        with open(path, "rb") as fh:
-            data = fh.read(limit + 1)
-    except FileNotFoundError:
-        raise error(f"{path}: {what} not found; check the path") from None
-    except OSError as exc:
-        raise error(f"{path}: cannot read {what} ({exc.strerror}); check the path") from None
-    if len(data) > limit:
-        raise error(f"{path}: {what} grew past the {limit}-byte limit while being read")
-    return data
 
 
 @dataclass

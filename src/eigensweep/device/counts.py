@@ -24,7 +24,7 @@ import jsonschema
 
 from eigensweep.device.manifest import DeviceJob, atomic_write_text, load_manifest
 from eigensweep.errors import ResultsFileError, StageFileError
-from eigensweep.store import read_bounded
+from eigensweep.inputs import read_bounded
 
 __all__ = [
     "RESULTS_FORMAT",
