@@ -148,8 +148,10 @@ def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
         raise ConfigError(
             f"{where}: atoms has a malformed placeholder; use {{name}} with letters, digits, _"
         )
-    # normalise whitespace so cosmetic edits do not change keys
-    return "; ".join(" ".join(a.split()) for a in re.split(r"[;\n]", text) if a.strip())
+    from .chem.geometry import canonical_atoms  # no PySCF needed
+
+    # one spelling (symbols, numbers, separators) so cosmetic edits do not change keys
+    return canonical_atoms(text, where=where)
 
 
 def method_label(kind: str, entry: dict) -> str:
