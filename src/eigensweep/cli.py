@@ -21,12 +21,14 @@ DEFAULT_CONFIG = "config/config.yaml"
 
 
 def _default_config() -> Path:
+    """``./config/config.yaml`` of the current folder; no other fallback."""
     local = Path(DEFAULT_CONFIG)
-    if local.is_file():
-        return local
-    from .paths import repo_root
-
-    return repo_root() / DEFAULT_CONFIG
+    if not local.is_file():
+        raise EigensweepError(
+            f"no --config given and no {DEFAULT_CONFIG} in {Path.cwd()}; give --config FILE "
+            "or run in a sweep folder that has config/config.yaml"
+        )
+    return local
 
 
 def _load_plan(config: str | None):
@@ -262,13 +264,21 @@ def cmd_report(args) -> int:
 
 
 def cmd_archive(args) -> int:
-    from .archive import make_archive
+    from .archive import ARCHIVE_PATTERN, make_archive
 
     path, cfg, plan = _load_plan(args.config)
-    stamp = time.strftime("%Y%m%d-%H%M%S")
-    out = Path(args.output or f"eigensweep-archive-{stamp}.tar.gz")
-    report = Path(args.report) if args.report else Path("results/report.html")
-    make_archive(plan, [path], out, results="results", report=report)
+    print(f"eigensweep: archiving the sweep of {path}", flush=True)
+    out = Path(args.output or ARCHIVE_PATTERN.format(stamp=time.strftime("%Y%m%d-%H%M%S")))
+    make_archive(
+        plan,
+        cfg,
+        path,
+        out,
+        results="results",
+        title=args.title,
+        authors=args.author or (),
+        license=args.license,
+    )
     print(
         f"eigensweep: wrote {out} ({out.stat().st_size / 1e6:.1f} MB); check it with: eigensweep verify {out}"
     )
@@ -278,11 +288,21 @@ def cmd_archive(args) -> int:
 def cmd_verify(args) -> int:
     from .archive import verify_archive
 
-    rep = verify_archive(args.archive, stage=None if args.stage == "none" else args.stage)
+    rep = verify_archive(
+        args.archive,
+        stage=None if args.stage == "none" else args.stage,
+        key=args.key,
+        all_stages=args.all,
+    )
     print(f"eigensweep: {args.archive}: {rep.n_files} files match their SHA-256")
-    if rep.rerun_stage:
+    print(
+        f"eigensweep: exactly the {rep.n_stage_files} stage files of the archived config's plan; "
+        f"{', '.join(rep.tables)} re-derived from them and identical"
+    )
+    if rep.rerun_keys:
         print(
-            f"eigensweep: re-ran {rep.rerun_stage} {rep.rerun_key} from archived inputs: "
+            f"eigensweep: re-ran {len(rep.rerun_keys)} stage job(s) from archived inputs "
+            f"({', '.join(rep.rerun_keys[:3])}{', ...' if len(rep.rerun_keys) > 3 else ''}): "
             f"largest difference {rep.max_abs_diff:.3g}"
         )
     print("eigensweep: archive verified")
@@ -344,23 +364,34 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_report)
 
     p = sub.add_parser(
-        "archive", help="pack config, stage files, summary, plots and environment into a tar.gz"
+        "archive",
+        help="pack exactly this sweep (plan's stage files, regenerated tables and plots, "
+        "workflow, environment) into a runnable tar.gz",
     )
-    p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
+    p.add_argument("--config", help=f"sweep configuration (YAML); default ./{DEFAULT_CONFIG}")
     p.add_argument("--output", help="archive file (default eigensweep-archive-<time>.tar.gz)")
+    p.add_argument("--title", help="title of the archive (RO-Crate name)")
     p.add_argument(
-        "--report", help="Snakemake report to include (default results/report.html if present)"
+        "--author",
+        action="append",
+        help="author, 'Name' or 'Name <ORCID>' (repeat for several)",
     )
+    p.add_argument("--license", help="licence of the archived data, e.g. CC-BY-4.0")
     p.set_defaults(func=cmd_archive)
 
-    p = sub.add_parser("verify", help="check an archive's hashes and re-run one stage from it")
+    p = sub.add_parser(
+        "verify",
+        help="check an archive: hashes, plan, re-derived tables; re-run stage jobs from it",
+    )
     p.add_argument("archive")
     p.add_argument(
         "--stage",
         default="hamiltonian",
         choices=[*STAGE_NAMES, "none"],
-        help="stage to re-run from archived inputs (default hamiltonian; none = hashes only)",
+        help="re-run the first job of this stage (default hamiltonian; none = no re-run)",
     )
+    p.add_argument("--key", help="re-run this stage job (a key from the archive's plan.json)")
+    p.add_argument("--all", action="store_true", help="re-run every stage job (slow)")
     p.set_defaults(func=cmd_verify)
 
     p = sub.add_parser(
