@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import os
+import shutil
 import subprocess
 import sys
 import sysconfig
@@ -37,8 +38,12 @@ def _run(cmd: list[str], **kw) -> subprocess.CompletedProcess:
 
 @pytest.mark.slow
 def test_sweep_from_a_built_wheel(tmp_path):
+    # build from a clean copy: setuptools' in-tree build/ folder would keep stale files
+    src = tmp_path / "src"
+    junk = (".git", ".venv*", "build", "dist", "*.egg-info", "results", "logs", ".snakemake")
+    shutil.copytree(ROOT, src, ignore=shutil.ignore_patterns(*junk, "__pycache__", ".*_cache"))
     wheels = tmp_path / "wheels"
-    _run([sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(wheels), str(ROOT)])
+    _run([sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(wheels), str(src)])
     (wheel,) = wheels.glob("eigensweep-*.whl")
 
     venv = tmp_path / "venv"
