@@ -123,7 +123,7 @@ class Baseline:
     def __init__(self, m: dict, ansatz, sample: int | None = None) -> None:
         import openfermion as of
 
-        from eigensweep.vqe import molecular_pauli_sum
+        from eigensweep.qubit.mapping import map_hamiltonian
 
         self.n = 2 * m["norb"]
         ops = ansatz.operator_list()
@@ -137,7 +137,7 @@ class Baseline:
             self.gens.append(of.get_sparse_operator(gen, self.n).tocsr())
         t_gen_setup = (time.perf_counter() - t0) * self.scale_gen
         t0 = time.perf_counter()
-        qham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"]).to_openfermion()
+        qham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner").to_openfermion()
         items = sorted(qham.terms.items())
         if sample is None:
             self.ham = of.get_sparse_operator(qham, self.n).tocsr()

@@ -190,3 +190,11 @@ def test_number_and_sz_are_diagonal(mapping):
         # reference: OpenFermion number_operator computed at test time
         assert abs(ours - ref).max() < 1e-12
     assert sorted(np.unique(np.round(ours.diagonal().real)).tolist()) == list(range(9))
+
+
+def test_schema_mapping_names_are_the_implemented_mappings():
+    # common practice: the config's allowed values are exactly what the code implements
+    from eigensweep.config import load_schema
+
+    enum = load_schema()["properties"]["methods"]["properties"]["mapping"]["items"]["enum"]
+    assert tuple(enum) == MAPPINGS

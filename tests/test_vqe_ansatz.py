@@ -11,6 +11,7 @@ import pytest
 sys.path.insert(0, str(Path(__file__).parent))
 from test_vqe_common import h2_two_qubit, molecule, space_of  # noqa: E402
 
+from eigensweep.qubit.mapping import map_hamiltonian  # noqa: E402
 from eigensweep.vqe import (  # noqa: E402
     UCCSD,
     AdaptAnsatz,
@@ -19,7 +20,6 @@ from eigensweep.vqe import (  # noqa: E402
     PauliGate,
     PauliRotationAnsatz,
     fci_ground_state,
-    molecular_pauli_sum,
     pool_terms,
     run_optimize,
 )
@@ -82,7 +82,7 @@ def test_fermionic_gradients_match_finite_differences(index):
 
 def test_qubit_ansatz_gradients_match_finite_differences():
     m = molecule("H2")
-    ham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"])
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     hea = HardwareEfficientAnsatz(ham, np.array([1, 1, 0, 0]), layers=2)
     theta = np.random.default_rng(2).uniform(-1, 1, hea.n_params)
     _fd_check(hea.energy_and_gradient, hea.energy, theta)

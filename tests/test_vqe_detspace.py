@@ -15,15 +15,17 @@ from test_vqe_common import molecule, space_of  # noqa: E402
 
 from eigensweep.circuit import circuit_from_rotations  # noqa: E402
 from eigensweep.qubit import statevector as sv  # noqa: E402
+from eigensweep.qubit.mapping import (  # noqa: E402
+    encode_occupations,
+    encode_state,
+    generator_paulis,
+    map_hamiltonian,
+)
 from eigensweep.vqe import (  # noqa: E402
     UCCSD,
     KUpCCGSD,
-    encoded_qubit_state,
     from_qubit_state,
-    generator_paulis,
-    molecular_pauli_sum,
     pool_terms,
-    reference_bits,
     to_qubit_state,
 )
 
@@ -84,7 +86,7 @@ def test_random_ci_vector_energy_equals_jw_hamiltonian(name):
     c /= np.linalg.norm(c)
     q = to_qubit_state(c, space.norb, space.nelec)
     # reference: OpenFermion JW operator of the same integrals, computed at test time
-    ham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"])
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     assert abs(space.energy(c) - sv.expectation(q, ham)) < 1e-10
     assert np.allclose(from_qubit_state(q, space.norb, space.nelec), c)
 
@@ -103,7 +105,7 @@ def test_pauli_rotations_reproduce_state_energy(mapping):
     # reference: OpenFermion mapping of the integrals' Hamiltonian, computed at test time
     n = 2 * m["norb"]
     if mapping == "parity":
-        op = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"]).to_openfermion()
+        op = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner").to_openfermion()
         fer = of.reverse_jordan_wigner(op, n)
         qop = of.binary_code_transform(fer, of.parity_code(n))
         from eigensweep.qubit.pauli import PauliSum
@@ -111,16 +113,16 @@ def test_pauli_rotations_reproduce_state_energy(mapping):
         qop.compress(1e-12)
         ham = PauliSum.from_openfermion(qop, n)
     else:
-        ham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"], mapping)
+        ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], mapping)
     assert abs(sv.expectation(psi, ham) - ansatz.energy(theta)) < 1e-9
 
 
 def test_reference_bits_bk_and_parity():
     # common practice: parity encoding stores prefix parities
-    assert list(reference_bits([0, 1], "parity", 4)) == [1, 0, 0, 0]
-    assert list(reference_bits([0, 1], "jordan_wigner", 4)) == [1, 1, 0, 0]
+    assert list(encode_occupations([1, 1, 0, 0], "parity")) == [1, 0, 0, 0]
+    assert list(encode_occupations([1, 1, 0, 0], "jordan_wigner")) == [1, 1, 0, 0]
     # BK of |1100>: qubit 1 stores n0 + n1 = 0, qubit 3 stores the total parity = 0
-    assert list(reference_bits([0, 1], "bravyi_kitaev", 4)) == [1, 0, 0, 0]
+    assert list(encode_occupations([1, 1, 0, 0], "bravyi_kitaev")) == [1, 0, 0, 0]
 
 
 def test_compiled_circuit_matches_rotations_and_costs():
@@ -181,13 +183,13 @@ def test_encoded_state_energy_and_reference_bits(mapping):
     m = molecule("LiH")
     ansatz = UCCSD(space_of("LiH"))
     theta = 0.1 * np.random.default_rng(4).standard_normal(ansatz.n_params)
-    psi = encoded_qubit_state(ansatz.state(theta), m["norb"], m["nelec"], mapping)
+    psi = encode_state(to_qubit_state(ansatz.state(theta), m["norb"], m["nelec"]), mapping)
     # reference: OpenFermion-mapped Hamiltonian (eigensweep.qubit.map_hamiltonian) at test time
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], mapping)
     assert abs(sv.expectation(psi, ham) - ansatz.energy(theta)) < 1e-9
-    ref = reference_bits(ansatz.occupied_spin_orbitals(), mapping, 12)
+    ref = ansatz.pauli_rotations(theta, mapping)[0]
     assert np.array_equal(ref, qubit_reference_bits(m["nelec"], m["norb"], mapping))
-    hf = encoded_qubit_state(space_of("LiH").hf_state(), m["norb"], m["nelec"], mapping)
+    hf = encode_state(to_qubit_state(space_of("LiH").hf_state(), m["norb"], m["nelec"]), mapping)
     assert abs(abs(np.vdot(sv.basis_state(ref), hf)) - 1.0) < 1e-12
 
 
@@ -214,7 +216,7 @@ def test_circuit_from_stored_meta_reproduces_state():
     meta = json.loads(json.dumps(hea.ansatz_meta))
     circ = circuit_from_meta(meta, hea.params)
     assert circ.cnot_count == hea.cnot_count == 3
-    ham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"])
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     assert abs(sv.expectation(sv.simulate(circ), ham) - hea.energy_exact_at_params) < 1e-10
 
 
@@ -226,5 +228,5 @@ def test_open_shell_sector_state_equals_openfermion():
     ansatz = UCCSD(space)
     theta = 0.3 * np.random.default_rng(9).standard_normal(ansatz.n_params)
     assert np.max(np.abs(ansatz.qubit_state(theta) - _jw_reference(ansatz, theta))) < 1e-10
-    ham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"])
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     assert abs(sv.expectation(ansatz.qubit_state(theta), ham) - ansatz.energy(theta)) < 1e-10

@@ -13,13 +13,13 @@ sys.path.insert(0, str(Path(__file__).parent))
 from test_vqe_common import h2_two_qubit, molecule, space_of  # noqa: E402
 
 from eigensweep.qubit import statevector as sv  # noqa: E402
+from eigensweep.qubit.mapping import map_hamiltonian  # noqa: E402
 from eigensweep.vqe import (  # noqa: E402
     UCCSD,
     MeasurementPlan,
     NoisyEstimator,
     OptimizeResult,
     ShotEstimator,
-    molecular_pauli_sum,
     run_optimize,
 )
 
@@ -28,7 +28,7 @@ def _lih_state():
     m = molecule("LiH")
     ansatz = UCCSD(space_of("LiH"))
     theta = 0.05 * np.random.default_rng(0).standard_normal(ansatz.n_params)
-    ham = molecular_pauli_sum(m["h1e"], m["eri"], m["e_core"], m["norb"])
+    ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     return ansatz, theta, ham
 
 

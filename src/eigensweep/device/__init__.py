@@ -45,7 +45,7 @@ from eigensweep.device.reconcile import (
     plot_histograms,
     reconcile,
 )
-from eigensweep.device.synthetic import run_synthetic_device, statevector, write_results
+from eigensweep.device.synthetic import run_synthetic_device, write_results
 
 __all__ = [
     "BIT_ORDER",
@@ -77,7 +77,6 @@ __all__ = [
     "reconcile",
     "run_synthetic_device",
     "state_circuit",
-    "statevector",
     "to_qasm2",
     "to_qasm3",
     "unfold_circuit",

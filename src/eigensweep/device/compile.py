@@ -129,7 +129,7 @@ def state_circuit(
 ) -> tuple[Circuit, float]:
     """The optimized state's circuit on the problem's qubits, checked against the optimizer.
 
-    The circuit is :func:`eigensweep.vqe.ansatz.circuit_from_meta` of the stored ansatz (the
+    The circuit is :func:`eigensweep.vqe.circuits.circuit_from_meta` of the stored ansatz (the
     same compilation that gives the optimize stage's reported CNOT count and depth): fermionic
     excitations mapped with ``mapping`` for an untapered problem, the stored (already tapered)
     Pauli rotations for a tapered one (Bravyi et al. 2017, arXiv:1701.08213), native gates for
@@ -153,7 +153,7 @@ def state_circuit(
     """
     from eigensweep.errors import StageFileError
     from eigensweep.qubit.statevector import expectation, simulate
-    from eigensweep.vqe.ansatz import circuit_from_meta
+    from eigensweep.vqe.circuits import circuit_from_meta
 
     circ = circuit_from_meta(ansatz_meta, params, mapping)
     if circ.n_qubits != int(ham.n_qubits):

@@ -380,8 +380,7 @@ def build_job(
             )
         )
 
-    from eigensweep.device.synthetic import probabilities_to_distribution
-    from eigensweep.qubit.statevector import simulate
+    from eigensweep.qubit.statevector import probabilities_to_distribution, simulate
 
     k = 0
     for gi in group_info:

@@ -40,7 +40,6 @@ __all__ = [
 ]
 
 ESTIMATES = ("raw", "readout_mitigated", "symmetry_verified", "zne_linear", "zne_richardson")
-JW_NAMES = {"jordan_wigner", "jordan-wigner", "jw"}
 
 
 @dataclass
@@ -271,7 +270,7 @@ def _symmetries(
             out.append((lab, int(s) * (1 if c >= 0 else -1)))
         return out
     if n_electrons is not None:
-        if mapping is None or str(mapping).lower() in JW_NAMES:
+        if mapping in (None, "jordan_wigner"):
             return [("Z" * n, -1 if int(n_electrons) % 2 else 1)]
         notes.append(
             f"electron-number parity check is only implemented for Jordan-Wigner, "

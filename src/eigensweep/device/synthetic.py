@@ -15,77 +15,30 @@ Noise model (all seeded, reproducible):
   ``p0to1`` and ``1 -> 0`` with ``p1to0`` (scalars or per-qubit arrays); this is the
   uncorrelated model that tensored readout mitigation corrects.
 
-The batched kernel here (:func:`simulate_batch`, :func:`statevector`) uses the project-wide
-conventions of :mod:`eigensweep.circuit`: qubit 0 is the most significant bit of the index,
-and bitstring character ``k`` is qubit ``k``.
+The trajectories run on eigensweep's one statevector simulator
+(:mod:`eigensweep.qubit.statevector`, batched gate kernels) with the project-wide conventions
+of :mod:`eigensweep.circuit`: qubit 0 is the most significant bit of the index, and bitstring
+character ``k`` is qubit ``k``.
 """
 
 from __future__ import annotations
 
 import json
-import math
 from collections.abc import Mapping
 from pathlib import Path
 
 import numpy as np
 
-from eigensweep.circuit import Circuit, Gate
+from eigensweep.circuit import Circuit
+from eigensweep.qubit.statevector import GATE_MATRICES, apply_gate_batch, apply_matrix_1q
 
 __all__ = [
-    "statevector",
     "simulate_batch",
-    "probabilities_to_distribution",
     "run_synthetic_device",
     "write_results",
 ]
 
-_SQ2 = 1.0 / math.sqrt(2.0)
-_FIXED = {
-    "x": np.array([[0, 1], [1, 0]], dtype=complex),
-    "y": np.array([[0, -1j], [1j, 0]], dtype=complex),
-    "z": np.array([[1, 0], [0, -1]], dtype=complex),
-    "h": np.array([[_SQ2, _SQ2], [_SQ2, -_SQ2]], dtype=complex),
-    "s": np.array([[1, 0], [0, 1j]], dtype=complex),
-    "sdg": np.array([[1, 0], [0, -1j]], dtype=complex),
-    "sx": 0.5 * np.array([[1 + 1j, 1 - 1j], [1 - 1j, 1 + 1j]], dtype=complex),
-}
-_PAULI = [None, _FIXED["x"], _FIXED["y"], _FIXED["z"]]
-
-
-def _matrix(gate: Gate) -> np.ndarray:
-    if gate.name in _FIXED:
-        return _FIXED[gate.name]
-    t = gate.params[0] / 2.0
-    c, s = math.cos(t), math.sin(t)
-    if gate.name == "rx":
-        return np.array([[c, -1j * s], [-1j * s, c]], dtype=complex)
-    if gate.name == "ry":
-        return np.array([[c, -s], [s, c]], dtype=complex)
-    if gate.name == "rz":
-        return np.array([[complex(c, -s), 0], [0, complex(c, s)]], dtype=complex)
-    raise ValueError(f"synthetic device cannot simulate gate {gate.name!r}")
-
-
-def _apply_1q(state: np.ndarray, u: np.ndarray, q: int) -> np.ndarray:
-    """Apply a 2x2 matrix to qubit ``q`` of a batched state of shape (B, 2, ..., 2)."""
-    axis = 1 + q
-    out = np.tensordot(u, state, axes=([1], [axis]))
-    return np.moveaxis(out, 0, axis)
-
-
-def _apply_cx(state: np.ndarray, c: int, t: int) -> np.ndarray:
-    idx = [slice(None)] * state.ndim
-    idx[1 + c] = 1
-    sub = state[tuple(idx)]  # view with the control axis removed
-    t_axis = 1 + t if t < c else t
-    sub[...] = np.flip(sub, axis=t_axis).copy()
-    return state
-
-
-def _apply_gate(state: np.ndarray, gate: Gate) -> np.ndarray:
-    if gate.name == "cx":
-        return _apply_cx(state, gate.qubits[0], gate.qubits[1])
-    return _apply_1q(state, _matrix(gate), gate.qubits[0])
+_PAULI = [None, GATE_MATRICES["x"], GATE_MATRICES["y"], GATE_MATRICES["z"]]
 
 
 def _apply_random_paulis(
@@ -102,7 +55,7 @@ def _apply_random_paulis(
         for code in (1, 2, 3):
             sel = np.flatnonzero(letter == code)
             if sel.size:
-                sub[sel] = _apply_1q(sub[sel], _PAULI[code], q)
+                sub[sel] = apply_matrix_1q(sub[sel], q, _PAULI[code])
     state[hit] = sub
     return state
 
@@ -133,10 +86,10 @@ def simulate_batch(
     noisy = bool(np.any(probs > 0))
     if noisy and rng is None:
         raise ValueError("a noisy simulation needs an rng")
-    state = np.zeros((batch,) + (2,) * n, dtype=complex)
-    state[(slice(None),) + (0,) * n] = 1.0
+    state = np.zeros((batch, 1 << n), dtype=complex)
+    state[:, 0] = 1.0
     for i, g in enumerate(circuit.gates):
-        state = _apply_gate(state, g)
+        state = apply_gate_batch(state, g)
         if not noisy:
             continue
         if first_error is None:
@@ -147,20 +100,7 @@ def simulate_batch(
             if probs[i] > 0 and after.any():
                 hit |= after & (rng.random(batch) < probs[i])
         state = _apply_random_paulis(state, g.qubits, np.flatnonzero(hit), rng)
-    return np.ascontiguousarray(state).reshape(batch, 2**n)
-
-
-def statevector(circuit: Circuit) -> np.ndarray:
-    """Exact statevector of ``circuit`` applied to |0...0> (qubit 0 = most significant bit)."""
-    return simulate_batch(circuit, 1)[0]
-
-
-def probabilities_to_distribution(probs: np.ndarray, n_qubits: int, cutoff: float = 1e-12):
-    """``{bitstring: probability}`` for entries ``>= cutoff``; character ``k`` is qubit ``k``."""
-    probs = np.asarray(probs, dtype=float)
-    return {
-        format(int(i), f"0{n_qubits}b"): float(probs[i]) for i in np.flatnonzero(probs >= cutoff)
-    }
+    return state
 
 
 def _per_qubit(value, n: int, what: str) -> np.ndarray:

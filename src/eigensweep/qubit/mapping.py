@@ -14,7 +14,10 @@ All three are *linear* encodings ``b = A n (mod 2)`` of the occupation vector ``
 Jordan–Wigner one (:func:`encode_linear`); the tests check it against OpenFermion's
 ``binary_code_transform`` with ``parity_code``, and check the same construction with the
 Bravyi–Kitaev matrix against OpenFermion's ``bravyi_kitaev``. The matrices also give the
-Hartree–Fock reference bits (:func:`reference_bits`).
+Hartree–Fock reference bits (:func:`reference_bits`, :func:`encode_occupations`), statevectors in
+the encoding (:func:`encode_state`) and the ansätze's excitation generators as Pauli strings
+(:func:`generator_paulis`, without OpenFermion). This module is the one home of the encodings in
+eigensweep; its GF(2) algebra is :mod:`eigensweep.qubit.gf2`.
 
 Orbital order is OpenFermion's interleaved one: spin orbital ``2p`` is alpha and ``2p + 1`` beta of
 spatial orbital ``p``.
@@ -22,11 +25,14 @@ spatial orbital ``p``.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+from functools import lru_cache
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import ConfigError
+from . import gf2
 from .pauli import PauliSum
 
 if TYPE_CHECKING:  # OpenFermion takes seconds to import: only functions that need it load it
@@ -40,15 +46,21 @@ __all__ = [
     "number_operator",
     "sz_operator",
     "reference_bits",
-    "encoding_matrix",
+    "check_mapping",
     "encode_linear",
+    "encode_occupations",
+    "encode_state",
+    "encoding_matrices",
+    "encoding_matrix",
+    "generator_paulis",
 ]
 
 MAPPINGS = ("jordan_wigner", "bravyi_kitaev", "parity")
 _DROP_TOL = 1e-12
 
 
-def _check_mapping(mapping: str) -> str:
+def check_mapping(mapping: str) -> str:
+    """Return ``mapping`` if it is one of :data:`MAPPINGS`; ``TypeError``/``ConfigError`` else."""
     if not isinstance(mapping, str):
         raise TypeError(f"mapping must be a str, got {type(mapping).__name__}")
     if mapping not in MAPPINGS:
@@ -127,7 +139,7 @@ def encoding_matrix(n_qubits: int, mapping: str) -> np.ndarray:
         uint8 array ``(n_qubits, n_qubits)``.
     """
     n = _check_n_qubits(n_qubits)
-    _check_mapping(mapping)
+    check_mapping(mapping)
     if mapping == "jordan_wigner":
         return np.eye(n, dtype=np.uint8)
     if mapping == "parity":
@@ -139,21 +151,19 @@ def encoding_matrix(n_qubits: int, mapping: str) -> np.ndarray:
     return a
 
 
-def _gf2_inverse(a: np.ndarray) -> np.ndarray:
-    """Inverse of a square binary matrix over GF(2) (Gauss–Jordan)."""
-    n = a.shape[0]
-    aug = np.concatenate([a.astype(bool), np.eye(n, dtype=bool)], axis=1)
-    for col in range(n):
-        pivots = np.flatnonzero(aug[col:, col])
-        if pivots.size == 0:
-            raise ValueError("encoding matrix is singular over GF(2)")
-        p = col + pivots[0]
-        if p != col:
-            aug[[col, p]] = aug[[p, col]]
-        others = np.flatnonzero(aug[:, col])
-        others = others[others != col]
-        aug[others] ^= aug[col]
-    return aug[:, n:].astype(np.uint8)
+@lru_cache(maxsize=64)
+def encoding_matrices(n_qubits: int, mapping: str) -> tuple[np.ndarray, np.ndarray]:
+    """``(A, A^{-T})`` of the linear encoding ``b = A n (mod 2)`` (read-only uint8 arrays).
+
+    ``A`` (:func:`encoding_matrix`) moves occupations and ``X`` parts of Pauli strings
+    (``x -> A x``), ``A^{-T}`` moves ``Z`` parts (``z -> A^{-T} z``); Jordan–Wigner gives two
+    identities.
+    """
+    a = encoding_matrix(n_qubits, mapping)
+    a_inv_t = gf2.inverse(a).T.copy()
+    a.setflags(write=False)
+    a_inv_t.setflags(write=False)
+    return a, a_inv_t
 
 
 def encode_linear(jw: PauliSum, matrix: np.ndarray) -> PauliSum:
@@ -176,7 +186,7 @@ def encode_linear(jw: PauliSum, matrix: np.ndarray) -> PauliSum:
     n = jw.n_qubits
     if a.shape != (n, n):
         raise ConfigError(f"encoding matrix shape {a.shape} does not match {n} qubits")
-    a_inv_t = _gf2_inverse(a).T.astype(np.int64)
+    a_inv_t = gf2.inverse(a).T.astype(np.int64)
     x_new = (jw.x.astype(np.int64) @ a.T) & 1
     z_new = (jw.z.astype(np.int64) @ a_inv_t.T) & 1
     ny_old = np.count_nonzero(jw.x & jw.z, axis=1)
@@ -218,7 +228,7 @@ def map_fermion_operator(op: FermionOperator, n_qubits: int, mapping: str) -> Pa
             f"got {type(op).__name__}"
         )
     n = _check_n_qubits(n_qubits)
-    _check_mapping(mapping)
+    check_mapping(mapping)
     if isinstance(op, FermionOperator):
         used = openfermion.count_qubits(op)
     else:
@@ -250,7 +260,7 @@ def map_hamiltonian(h1e: np.ndarray, eri: np.ndarray, e_core: float, mapping: st
     Example:
         H2/STO-3G at 0.74 Å gives 15 Jordan–Wigner terms (identity included).
     """
-    _check_mapping(mapping)
+    check_mapping(mapping)
     io = interaction_operator(h1e, eri, e_core)
     return map_fermion_operator(io, io.n_qubits, mapping)
 
@@ -320,8 +330,149 @@ def reference_bits(nelec: tuple[int, int], norb: int, mapping: str) -> np.ndarra
     na, nb = (int(v) for v in nelec)
     if norb < 1 or not (0 <= na <= norb and 0 <= nb <= norb):
         raise ConfigError(f"nelec {tuple(nelec)} does not fit in {norb} spatial orbitals")
-    occ = np.zeros(2 * norb, dtype=np.int64)
+    occ = np.zeros(2 * norb, dtype=np.uint8)
     occ[0 : 2 * na : 2] = 1
     occ[1 : 2 * nb : 2] = 1
-    a = encoding_matrix(2 * int(norb), mapping).astype(np.int64)
+    return encode_occupations(occ, mapping)
+
+
+def encode_occupations(occupations: Sequence[int] | np.ndarray, mapping: str) -> np.ndarray:
+    """Qubit bits ``b = A n (mod 2)`` of the spin-orbital occupations ``n`` under ``mapping``.
+
+    Args:
+        occupations: 0/1 per spin orbital (interleaved order), one entry per qubit.
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        uint8 array; entry ``k`` is qubit ``k``.
+
+    Example:
+        >>> encode_occupations([1, 1, 0, 0], "parity")
+        array([1, 0, 0, 0], dtype=uint8)
+    """
+    occ = np.asarray(occupations, dtype=np.int64).reshape(-1)
+    if occ.size == 0 or np.any((occ != 0) & (occ != 1)):
+        raise ConfigError("occupations must be a non-empty sequence of 0/1 values")
+    a = encoding_matrices(int(occ.size), mapping)[0].astype(np.int64)
     return ((a @ occ) & 1).astype(np.uint8)
+
+
+def encode_state(psi_jw: np.ndarray, mapping: str) -> np.ndarray:
+    """A Jordan–Wigner statevector written in the linear encoding of ``mapping``.
+
+    The CNOT network ``U|n> = |A n>`` moves amplitude ``psi_JW[n]`` to basis state ``A n``; this
+    is the frame of :func:`map_hamiltonian`, :func:`reference_bits` and
+    :func:`generator_paulis`. Only nonzero amplitudes are moved (a fixed-N state touches a
+    small part of the register).
+
+    Args:
+        psi_jw: statevector of length ``2**n`` (qubit 0 = most significant bit).
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        A new complex128 statevector.
+    """
+    psi = np.asarray(psi_jw, dtype=np.complex128).reshape(-1)
+    n = psi.size.bit_length() - 1
+    if psi.size != 1 << n or n < 1:
+        raise ConfigError(f"statevector length {psi.size} is not a power of two >= 2")
+    if check_mapping(mapping) == "jordan_wigner":
+        return psi.copy()
+    idx = np.flatnonzero(psi)
+    shifts = np.arange(n - 1, -1, -1, dtype=np.int64)  # qubit k is bit n - 1 - k
+    occ = (idx[:, None] >> shifts[None, :]) & 1
+    bits = (occ @ encoding_matrices(n, mapping)[0].T.astype(np.int64)) & 1
+    out = np.zeros_like(psi)
+    out[bits @ (np.int64(1) << shifts)] = psi[idx]
+    return out
+
+
+# ---------------------------------------------------------------------------- generators
+FermionTerm = tuple[tuple[int, int], ...]
+"""A product of ladder operators ``((spin_orbital, 1 = creation / 0 = annihilation), ...)``."""
+
+
+def _jw_ladder(orbital: int, creation: bool) -> list[tuple[int, int, complex]]:
+    """JW image of ``a^dagger_p`` / ``a_p`` as ``[(xmask, zmask, c)]`` meaning ``c X^x Z^z``.
+
+    ``a_p = Z_0 ... Z_{p-1} (X_p + i Y_p)/2`` and ``Y = i X Z`` give
+    ``a_p = (X_p Z_{<p} - X_p Z_{<=p})/2`` and ``a^dagger_p = (X_p Z_{<p} + X_p Z_{<=p})/2``.
+    Bit ``k`` of a mask is qubit ``k``.
+    """
+    below = (1 << orbital) - 1
+    bit = 1 << orbital
+    return [(bit, below, 0.5), (bit, below | bit, 0.5 if creation else -0.5)]
+
+
+def _times(
+    left: dict[tuple[int, int], complex], right: list[tuple[int, int, complex]]
+) -> dict[tuple[int, int], complex]:
+    """Product of two operators in the unphased form ``sum c X^x Z^z``.
+
+    ``X^x1 Z^z1 X^x2 Z^z2 = (-1)^{|z1 & x2|} X^{x1 ^ x2} Z^{z1 ^ z2}``.
+    """
+    out: dict[tuple[int, int], complex] = {}
+    for (x1, z1), c1 in left.items():
+        for x2, z2, c2 in right:
+            key = (x1 ^ x2, z1 ^ z2)
+            sign = -1.0 if (z1 & x2).bit_count() & 1 else 1.0
+            out[key] = out.get(key, 0.0) + sign * c1 * c2
+    return out
+
+
+@lru_cache(maxsize=65536)
+def generator_paulis(
+    term: FermionTerm, mapping: str, n_qubits: int
+) -> tuple[tuple[np.ndarray, np.ndarray, float], ...]:
+    """Pauli decomposition ``G = T - T^dagger = i sum_j c_j P_j`` as ``((x, z, c_j), ...)``.
+
+    The ansätze's excitation generators, mapped without OpenFermion (fast, cached): ``T``
+    (leftmost operator first) is multiplied out in the Jordan–Wigner form (:func:`_jw_ladder`);
+    for Bravyi–Kitaev and parity every string is carried through the encoding's CNOT network,
+    ``X^x Z^z -> X^{A x} Z^{A^{-T} z}`` (:func:`encoding_matrices`, Seeley, Richard, Love,
+    J. Chem. Phys. 137, 224109 (2012)). Strings are returned in the order of their sparse
+    ``((qubit, letter), ...)`` keys, identity terms (global phases) are dropped; the tests
+    compare the result with OpenFermion's transforms.
+
+    Raises:
+        ValueError: the image is not anti-Hermitian or its strings do not commute (then the
+            product form ``prod_j exp(phi c_j i P_j)`` would be inexact).
+    """
+    check_mapping(mapping)
+    n = int(n_qubits)
+    op: dict[tuple[int, int], complex] = {(0, 0): 1.0}
+    for orbital, action in term:
+        if not 0 <= int(orbital) < n:
+            raise ValueError(f"spin orbital {orbital} of {term} outside {n} qubits")
+        op = _times(op, _jw_ladder(int(orbital), bool(action)))
+    gen: dict[tuple[int, int], complex] = {}
+    for (x, z), c in op.items():
+        # (c X^x Z^z)^dagger = conj(c) Z^z X^x = conj(c) (-1)^{|x & z|} X^x Z^z
+        adj = np.conj(c) * (-1.0 if (x & z).bit_count() & 1 else 1.0)
+        gen[(x, z)] = gen.get((x, z), 0.0) + c - adj
+    a, a_inv_t = (m.astype(np.int64) for m in encoding_matrices(n, mapping))
+    rows = []
+    for (xm, zm), c in gen.items():
+        if abs(c) < 1e-14 or (xm == 0 and zm == 0):
+            continue
+        x = np.array([(xm >> k) & 1 for k in range(n)], dtype=bool)
+        z = np.array([(zm >> k) & 1 for k in range(n)], dtype=bool)
+        if mapping != "jordan_wigner":
+            x = ((a @ x) & 1).astype(bool)
+            z = ((a_inv_t @ z) & 1).astype(bool)
+        # X^x Z^z = (-i)^{|x & z|} P(x, z) with the Hermitian P = i^{x.z} X^x Z^z
+        coeff = complex(c) * (-1j) ** int(np.count_nonzero(x & z))
+        cj = coeff / 1j  # G = i sum c_j P_j
+        if abs(cj.imag) > 1e-12:
+            raise ValueError(f"mapped generator of {term} is not anti-Hermitian")
+        key = tuple((int(q), "IXZY"[int(x[q]) + 2 * int(z[q])]) for q in np.flatnonzero(x | z))
+        rows.append((key, x, z, float(cj.real)))
+    rows.sort(key=lambda r: r[0])
+    out = tuple((x, z, c) for _, x, z, c in rows)
+    for a_i in range(len(out)):
+        for b_i in range(a_i):
+            xa, za, _ = out[a_i]
+            xb, zb, _ = out[b_i]
+            if np.logical_xor.reduce((xa & zb) ^ (za & xb)):
+                raise ValueError(f"Pauli strings of the mapped generator {term} do not commute")
+    return out

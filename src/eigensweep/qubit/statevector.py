@@ -30,7 +30,12 @@ __all__ = [
     "apply_pauli_rotation",
     "apply_pauli_sum",
     "expectation",
+    "apply_cx",
     "apply_gate",
+    "apply_gate_batch",
+    "apply_matrix_1q",
+    "gate_matrix",
+    "probabilities_to_distribution",
     "simulate",
     "GATE_MATRICES",
 ]
@@ -265,23 +270,59 @@ def expectation(state: np.ndarray, ham: PauliSum) -> float:
     return float(np.vdot(psi, apply_pauli_sum(psi, ham)).real)
 
 
-def _apply_one_qubit(psi: np.ndarray, n: int, q: int, mat: np.ndarray) -> np.ndarray:
-    v = psi.reshape(1 << q, 2, 1 << (n - q - 1))
-    out = np.empty_like(v)
-    out[:, 0, :] = mat[0, 0] * v[:, 0, :] + mat[0, 1] * v[:, 1, :]
-    out[:, 1, :] = mat[1, 0] * v[:, 0, :] + mat[1, 1] * v[:, 1, :]
-    return out.reshape(-1)
+def apply_matrix_1q(states: np.ndarray, qubit: int, matrix: np.ndarray) -> np.ndarray:
+    """Apply a 2x2 ``matrix`` to ``qubit`` of one state or a batch of states (last axis ``2**n``).
+
+    The kernel of every one-qubit gate in eigensweep: circuits (:func:`apply_gate`), the
+    estimators' measurement basis changes and readout confusion, and the synthetic device's
+    trajectories. The result has the common dtype of ``states`` and ``matrix`` (a real
+    ``matrix`` on real probabilities stays real).
+
+    Args:
+        states: array ``(..., 2**n)``; not modified.
+        qubit: target qubit (qubit 0 = most significant bit).
+        matrix: ``(2, 2)`` array.
+
+    Returns:
+        A new array of the same shape.
+    """
+    dim = states.shape[-1]
+    lead = states.shape[:-1]
+    v = states.reshape(lead + (1 << qubit, 2, dim >> (qubit + 1)))
+    out = np.empty(v.shape, dtype=np.result_type(states, matrix))
+    out[..., 0, :] = matrix[0, 0] * v[..., 0, :] + matrix[0, 1] * v[..., 1, :]
+    out[..., 1, :] = matrix[1, 0] * v[..., 0, :] + matrix[1, 1] * v[..., 1, :]
+    return out.reshape(states.shape)
 
 
-def _apply_cx(psi: np.ndarray, n: int, control: int, target: int) -> np.ndarray:
-    out = psi.copy()
-    v = out.reshape((2,) * n)
-    sel: list = [slice(None)] * n
-    sel[control] = 1
-    sub = v[tuple(sel)]  # view with the control set; target axis shifts if after control
-    t_axis = target if target < control else target - 1
+def apply_cx(states: np.ndarray, control: int, target: int) -> np.ndarray:
+    """CNOT on one state or a batch of states (last axis ``2**n``); a new array."""
+    n = states.shape[-1].bit_length() - 1
+    lead = states.shape[:-1]
+    out = states.copy()
+    v = out.reshape(lead + (2,) * n)
+    sel: list = [slice(None)] * (len(lead) + n)
+    sel[len(lead) + control] = 1
+    sub = v[tuple(sel)]  # view with the control set; the target axis shifts if after control
+    t_axis = len(lead) + (target if target < control else target - 1)
     sub[...] = np.flip(sub, axis=t_axis).copy()
     return out
+
+
+def gate_matrix(gate: Gate) -> np.ndarray:
+    """The 2x2 matrix of a one-qubit :class:`~eigensweep.circuit.Gate` (OpenQASM 3 meaning)."""
+    if gate.name in GATE_MATRICES:
+        return GATE_MATRICES[gate.name]
+    if gate.name not in ("rx", "ry", "rz") or len(gate.params) != 1:
+        raise ConfigError(f"gate {gate.name} is not a one-qubit gate with known matrix")
+    return _rotation_matrix(gate.name, gate.params[0])
+
+
+def apply_gate_batch(states: np.ndarray, gate: Gate) -> np.ndarray:
+    """Apply one gate to every state of a batch ``(batch, 2**n)`` (no input checks)."""
+    if gate.name == "cx":
+        return apply_cx(states, gate.qubits[0], gate.qubits[1])
+    return apply_matrix_1q(states, gate.qubits[0], gate_matrix(gate))
 
 
 def apply_gate(state: np.ndarray, gate: Gate, n_qubits: int) -> np.ndarray:
@@ -305,16 +346,12 @@ def apply_gate(state: np.ndarray, gate: Gate, n_qubits: int) -> np.ndarray:
     if gate.name == "cx":
         if len(gate.qubits) != 2 or gate.qubits[0] == gate.qubits[1]:
             raise ConfigError(f"cx needs two distinct qubits, got {gate.qubits}")
-        return _apply_cx(psi, n_qubits, gate.qubits[0], gate.qubits[1])
+        return apply_cx(psi, gate.qubits[0], gate.qubits[1])
     if len(gate.qubits) != 1:
         raise ConfigError(f"gate {gate.name} acts on one qubit, got {gate.qubits}")
-    if gate.name in GATE_MATRICES:
-        mat = GATE_MATRICES[gate.name]
-    else:
-        if len(gate.params) != 1:
-            raise ConfigError(f"gate {gate.name} needs one angle, got {gate.params}")
-        mat = _rotation_matrix(gate.name, gate.params[0])
-    return _apply_one_qubit(psi, n_qubits, gate.qubits[0], mat)
+    if gate.name not in GATE_MATRICES and len(gate.params) != 1:
+        raise ConfigError(f"gate {gate.name} needs one angle, got {gate.params}")
+    return apply_matrix_1q(psi, gate.qubits[0], gate_matrix(gate))
 
 
 def simulate(circuit: Circuit, initial: np.ndarray | None = None) -> np.ndarray:
@@ -340,3 +377,13 @@ def simulate(circuit: Circuit, initial: np.ndarray | None = None) -> np.ndarray:
     for gate in circuit.gates:
         psi = apply_gate(psi, gate, circuit.n_qubits)
     return psi
+
+
+def probabilities_to_distribution(
+    probs: np.ndarray, n_qubits: int, cutoff: float = 1e-12
+) -> dict[str, float]:
+    """``{bitstring: probability}`` for entries ``>= cutoff``; character ``k`` is qubit ``k``."""
+    probs = np.asarray(probs, dtype=float)
+    return {
+        format(int(i), f"0{n_qubits}b"): float(probs[i]) for i in np.flatnonzero(probs >= cutoff)
+    }

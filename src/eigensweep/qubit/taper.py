@@ -33,65 +33,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ConfigError, StageFileError
+from . import gf2
 from .pauli import PauliSum, pauli_product, symplectic_inner
 
 _I_POWERS = np.array([1.0, 1j, -1.0, -1j])  # i^k, exact
 
-__all__ = ["TaperResult", "find_z2_symmetries", "taper", "no_taper", "gf2_null_space"]
-
-
-def _rref_gf2(mat: np.ndarray, col_order: np.ndarray | None = None) -> tuple[np.ndarray, list[int]]:
-    """Reduced row-echelon form over GF(2), pivots searched in ``col_order``.
-
-    Returns:
-        ``(rows, pivots)``: the nonzero rows (bool) and their pivot columns.
-    """
-    m = np.array(mat, dtype=bool, copy=True)
-    n_rows, n_cols = m.shape
-    order = np.arange(n_cols) if col_order is None else np.asarray(col_order)
-    pivots: list[int] = []
-    r = 0
-    for c in order:
-        if r == n_rows:
-            break
-        cand = np.flatnonzero(m[r:, c])
-        if cand.size == 0:
-            continue
-        p = r + cand[0]
-        if p != r:
-            m[[r, p]] = m[[p, r]]
-        others = np.flatnonzero(m[:, c])
-        others = others[others != r]
-        m[others] ^= m[r]
-        pivots.append(int(c))
-        r += 1
-    return m[:r], pivots
-
-
-def gf2_null_space(mat: np.ndarray) -> np.ndarray:
-    """Basis of ``{v : mat @ v = 0 (mod 2)}``, one vector per free column (deterministic).
-
-    Args:
-        mat: binary ``(rows, cols)`` matrix.
-
-    Returns:
-        bool array ``(dim, cols)``.
-    """
-    mat = np.asarray(mat, dtype=bool)
-    n_cols = mat.shape[1]
-    rref, pivots = _rref_gf2(mat)
-    free = [c for c in range(n_cols) if c not in set(pivots)]
-    basis = np.zeros((len(free), n_cols), dtype=bool)
-    for i, f in enumerate(free):
-        basis[i, f] = True
-        for row, p in zip(rref, pivots, strict=True):
-            if row[f]:
-                basis[i, p] = True
-    return basis
-
-
-def _span_rank(rows: np.ndarray) -> int:
-    return len(_rref_gf2(rows)[1]) if rows.shape[0] else 0
+__all__ = ["TaperResult", "find_z2_symmetries", "taper", "no_taper"]
 
 
 def find_z2_symmetries(ham: PauliSum) -> PauliSum:
@@ -111,18 +58,18 @@ def find_z2_symmetries(ham: PauliSum) -> PauliSum:
     keep = ~ham.identity_mask & (ham.coeffs != 0)
     x, z = ham.x[keep], ham.z[keep]
     # Z-only symmetries: x_t . z_s = 0 for all terms
-    z_only = gf2_null_space(x) if x.shape[0] else np.eye(n, dtype=bool)
+    z_only = gf2.null_space(x) if x.shape[0] else np.eye(n, dtype=bool)
     if z_only.shape[0]:
-        z_only, _ = _rref_gf2(z_only, col_order=np.arange(n - 1, -1, -1))
+        z_only, _ = gf2.rref(z_only, col_order=np.arange(n - 1, -1, -1))
     # full group: rows (z_t | x_t) acting on (x_s | z_s)
-    full = gf2_null_space(np.hstack([z, x])) if x.shape[0] else np.eye(2 * n, dtype=bool)
+    full = gf2.null_space(np.hstack([z, x])) if x.shape[0] else np.eye(2 * n, dtype=bool)
     gens_x = [np.zeros(n, dtype=bool)] * z_only.shape[0]
     gens_z = list(z_only)
     current = np.hstack([np.zeros((z_only.shape[0], n), dtype=bool), z_only])
-    rank = _span_rank(current)
+    rank = gf2.rank(current)
     for v in full:
         trial = np.vstack([current, v[None, :]])
-        r = _span_rank(trial)
+        r = gf2.rank(trial)
         if r > rank:
             current, rank = trial, r
             gens_x.append(v[:n])

@@ -29,15 +29,12 @@ _LAZY: dict[str, str] = {
     "AdaptResult": "adapt",
     "pool_terms": "adapt",
     "run_adapt": "adapt",
-    "Excitation": "ansatz",
-    "FermionicAnsatz": "ansatz",
-    "PauliGate": "ansatz",
-    "PauliRotationAnsatz": "ansatz",
-    "circuit_from_meta": "ansatz",
-    "encoded_qubit_state": "ansatz",
-    "generator_paulis": "ansatz",
-    "reference_bits": "ansatz",
-    "rotations_from_meta": "ansatz",
+    "Excitation": "fermionic",
+    "FermionicAnsatz": "fermionic",
+    "PauliGate": "pauli_rotation",
+    "PauliRotationAnsatz": "pauli_rotation",
+    "circuit_from_meta": "circuits",
+    "rotations_from_meta": "circuits",
     "DetSpace": "detspace",
     "ExcitationGate": "detspace",
     "fci_ground_state": "detspace",
@@ -51,7 +48,6 @@ _LAZY: dict[str, str] = {
     "NoisyEstimator": "estimators",
     "ShotEstimator": "estimators",
     "make_estimator": "estimators",
-    "molecular_pauli_sum": "estimators",
     "HardwareEfficientAnsatz": "hardware_efficient",
     "KUpCCGSD": "kupccgsd",
     "OptimizerResult": "optimizers",
@@ -63,17 +59,7 @@ _LAZY: dict[str, str] = {
 
 if TYPE_CHECKING:  # for type checkers and IDEs; at run time these load lazily
     from .adapt import AdaptAnsatz, AdaptResult, pool_terms, run_adapt
-    from .ansatz import (
-        Excitation,
-        FermionicAnsatz,
-        PauliGate,
-        PauliRotationAnsatz,
-        circuit_from_meta,
-        encoded_qubit_state,
-        generator_paulis,
-        reference_bits,
-        rotations_from_meta,
-    )
+    from .circuits import circuit_from_meta, rotations_from_meta
     from .detspace import (
         DetSpace,
         ExcitationGate,
@@ -89,11 +75,12 @@ if TYPE_CHECKING:  # for type checkers and IDEs; at run time these load lazily
         NoisyEstimator,
         ShotEstimator,
         make_estimator,
-        molecular_pauli_sum,
     )
+    from .fermionic import Excitation, FermionicAnsatz
     from .hardware_efficient import HardwareEfficientAnsatz
     from .kupccgsd import KUpCCGSD
     from .optimizers import OptimizerResult, minimize
+    from .pauli_rotation import PauliGate, PauliRotationAnsatz
     from .tapered import TaperedFermionicAnsatz, taper_excitation
     from .uccsd import UCCSD
 
@@ -123,15 +110,11 @@ __all__ = [
     "TaperedFermionicAnsatz",
     "check_combination",
     "circuit_from_meta",
-    "encoded_qubit_state",
     "fci_ground_state",
     "from_qubit_state",
-    "generator_paulis",
     "make_estimator",
     "minimize",
-    "molecular_pauli_sum",
     "pool_terms",
-    "reference_bits",
     "rotations_from_meta",
     "run_adapt",
     "run_optimize",

@@ -44,17 +44,12 @@ import numpy as np
 
 from ..errors import ConfigError
 from ..qubit import statevector as sv
-from .ansatz import (
-    Excitation,
-    FermionicAnsatz,
-    PauliGate,
-    PauliRotationAnsatz,
-    generator_paulis,
-    sd_excitation_terms,
-)
+from ..qubit.mapping import generator_paulis
 from .detspace import DetSpace, FermionTerm
+from .fermionic import Excitation, FermionicAnsatz, sd_excitation_terms
 from .methods import POOLS
 from .optimizers import minimize
+from .pauli_rotation import PauliGate, PauliRotationAnsatz
 from .tapered import TaperedFermionicAnsatz, TaperedString, taper_excitation
 
 if TYPE_CHECKING:

@@ -8,7 +8,7 @@ of ``qubit_hamiltonian`` / ``tapering`` (the sweep axis ``methods.mapping``):
   (:mod:`eigensweep.vqe.detspace`) with adjoint gradients; no qubit Hamiltonian is needed.
   Circuit costs are those of the Pauli-rotation circuit under ``mapping``.
 * the same + ``shots`` / ``noisy``: the state is propagated exactly in determinant space,
-  written as the statevector of ``mapping``'s encoding (:func:`encoded_qubit_state`) and
+  written as the statevector of ``mapping``'s encoding (:func:`~eigensweep.qubit.mapping.encode_state`) and
   sampled against the mapped Hamiltonian (``tapering.hamiltonian`` or ``qubit_hamiltonian``
   when given, else built from the integrals).
 * fermionic ansatz, tapered (``tapering`` with at least one Z2 generator; Bravyi, Gambetta,
@@ -45,9 +45,11 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ..errors import ConfigError
-from .ansatz import FermionicAnsatz, circuit_from_meta, encoded_qubit_state
-from .ansatz import reference_bits as mapped_reference_bits
-from .detspace import DetSpace, fci_ground_state
+from ..qubit.mapping import encode_state
+from ..qubit.mapping import reference_bits as mapped_reference_bits
+from .circuits import circuit_from_meta
+from .detspace import DetSpace, fci_ground_state, to_qubit_state
+from .fermionic import FermionicAnsatz
 from .kupccgsd import KUpCCGSD
 from .methods import (
     ANSATZ_DEFAULTS,
@@ -88,7 +90,7 @@ class OptimizeResult:
     equals the determinant-space FCI energy to 1e-6 Eh, up to 16 qubits), or nan when it cannot
     be formed. ``n_qubits``, ``cnot_count`` and ``depth`` are those of the circuit that is run
     (tapered qubits for a tapered problem), compiled at the optimized parameters exactly as the
-    export stage writes it (:func:`~eigensweep.vqe.ansatz.circuit_from_meta`; rotations left at
+    export stage writes it (:func:`~eigensweep.vqe.circuits.circuit_from_meta`; rotations left at
     zero angle are left out).
     """
 
@@ -174,18 +176,10 @@ def _qubit_ground_overlap(
     return float(np.sum(np.abs(ground.conj().T @ psi) ** 2))
 
 
-def _hf_occupied(nelec: tuple[int, int]) -> list[int]:
-    return sorted([2 * i for i in range(nelec[0])] + [2 * i + 1 for i in range(nelec[1])])
-
-
 def _mapped_hamiltonian(
     h1e: np.ndarray, eri: np.ndarray, e_core: float, norb: int, mapping: str
 ) -> PauliSum:
-    """The qubit Hamiltonian of the integrals under ``mapping`` (OpenFermion, imported here)."""
-    if mapping == "jordan_wigner":
-        from .estimators import molecular_pauli_sum
-
-        return molecular_pauli_sum(h1e, eri, e_core, norb)
+    """The qubit Hamiltonian of the integrals under ``mapping`` (OpenFermion, imported there)."""
     from ..qubit.mapping import map_hamiltonian
 
     return map_hamiltonian(h1e, eri, float(e_core), mapping)
@@ -257,7 +251,7 @@ def _check_mapping_frame(
     elif tapering.n_qubits_before <= _FRAME_CHECK_MAX_QUBITS:
         from ..qubit.statevector import expectation
 
-        psi = encoded_qubit_state(c_fci, space.norb, space.nelec, mapping)
+        psi = encode_state(to_qubit_state(c_fci, space.norb, space.nelec), mapping)
         e_tap, e_det = expectation(psi, tapering.hamiltonian), e_fci
     else:
         return
@@ -352,9 +346,7 @@ def run_optimize(
             hamiltonian=_mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
             if qubit_pool
             else None,
-            reference=mapped_reference_bits(_hf_occupied(nelec), mapping, 2 * norb)
-            if qubit_pool
-            else None,
+            reference=mapped_reference_bits(nelec, norb, mapping) if qubit_pool else None,
             tapering=tapering if tapered else None,
             mapping=mapping,
         )
@@ -391,7 +383,7 @@ def run_optimize(
                         "reference_bits: required for a qubit Hamiltonian on "
                         f"{ham.n_qubits} != 2*norb qubits"
                     )
-                ref = mapped_reference_bits(_hf_occupied(nelec), mapping, 2 * norb)
+                ref = mapped_reference_bits(nelec, norb, mapping)
                 jw_statevector = True
             else:
                 ref = np.asarray(reference_bits, dtype=np.uint8).reshape(-1)
@@ -418,7 +410,7 @@ def run_optimize(
     if det_space:
 
         def qubit_state(theta: np.ndarray) -> np.ndarray:
-            return encoded_qubit_state(ans.state(theta), norb, nelec, mapping)
+            return encode_state(to_qubit_state(ans.state(theta), norb, nelec), mapping)
 
     else:
 
@@ -543,7 +535,7 @@ def run_optimize(
     elif jw_statevector and ans.n_qubits == 2 * norb:
         # untapered statevector in the mapping's encoding: the FCI vector maps exactly
         enc = "jordan_wigner" if name == "adapt" else mapping
-        gs = encoded_qubit_state(c_fci, norb, nelec, enc)
+        gs = encode_state(to_qubit_state(c_fci, norb, nelec), enc)
         overlap = float(abs(np.vdot(gs, ans.state(params))) ** 2)
     else:
         # tapered or user-given operator: its lowest eigenspace, if that is the FCI energy

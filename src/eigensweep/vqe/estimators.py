@@ -33,6 +33,7 @@ import numpy as np
 from ..errors import ConfigError
 from ..qubit.grouping import qwc_groups
 from ..qubit.pauli import PauliSum, bits_to_mask
+from ..qubit.statevector import GATE_MATRICES, apply_matrix_1q
 from ..qubit.statevector import expectation as sv_expectation
 from .methods import ESTIMATOR_DEFAULTS, validate_estimator
 
@@ -44,7 +45,6 @@ __all__ = [
     "NoisyEstimator",
     "ShotEstimator",
     "make_estimator",
-    "molecular_pauli_sum",
     "validate_estimator",
 ]
 
@@ -58,55 +58,8 @@ class Estimate:
     shots: int
 
 
-def molecular_pauli_sum(
-    h1e: np.ndarray,
-    eri: np.ndarray,
-    e_core: float,
-    norb: int,
-    mapping: str = "jordan_wigner",
-) -> PauliSum:
-    """Qubit Hamiltonian of the active-space integrals (interleaved spin orbitals).
-
-    ``H = e_core + sum h_pq a^+_p a_q + 1/2 sum (pq|rs) a^+_{p s} a^+_{r t} a_{s t} a_{q s}``
-    mapped with OpenFermion (``jordan_wigner`` or ``bravyi_kitaev``).
-    """
-    import openfermion as of  # heavy (seconds): only when a Hamiltonian is built here
-
-    n = 2 * norb
-    one = np.zeros((n, n))
-    two = np.zeros((n, n, n, n))
-    h1e = np.asarray(h1e, dtype=float)
-    eri = np.asarray(eri, dtype=float).reshape((norb,) * 4)
-    for s in (0, 1):
-        one[s::2, s::2] = h1e
-    # (pq|rs) a+_p a+_r a_s a_q  ->  two[p, r, s, q]
-    phys = 0.5 * eri.transpose(0, 2, 3, 1)
-    for s in (0, 1):
-        for t in (0, 1):
-            two[s::2, t::2, t::2, s::2] += phys
-    iop = of.InteractionOperator(float(e_core), one, two)
-    if mapping == "jordan_wigner":
-        qop = of.jordan_wigner(iop)
-    elif mapping == "bravyi_kitaev":
-        qop = of.bravyi_kitaev(of.get_fermion_operator(iop), n)
-    else:
-        raise ConfigError(
-            f"mapping: unknown value {mapping!r}; allowed: jordan_wigner, bravyi_kitaev"
-        )
-    qop.compress(1e-12)
-    return PauliSum.from_openfermion(qop, n)
-
-
-def _apply_1q(psi: np.ndarray, n: int, q: int, mat: np.ndarray) -> np.ndarray:
-    v = psi.reshape(1 << q, 2, 1 << (n - q - 1))
-    out = np.empty_like(v)
-    out[:, 0, :] = mat[0, 0] * v[:, 0, :] + mat[0, 1] * v[:, 1, :]
-    out[:, 1, :] = mat[1, 0] * v[:, 0, :] + mat[1, 1] * v[:, 1, :]
-    return out.reshape(-1)
-
-
-_H = np.array([[1, 1], [1, -1]], dtype=np.complex128) / math.sqrt(2.0)
-_HSDG = _H @ np.array([[1, 0], [0, -1j]], dtype=np.complex128)
+_H = GATE_MATRICES["h"]
+_HSDG = GATE_MATRICES["h"] @ GATE_MATRICES["sdg"]  # sdg, then h
 
 
 class MeasurementPlan:
@@ -154,9 +107,9 @@ class MeasurementPlan:
         for q in range(n):
             b = self.bases[g][q]
             if b == 1:
-                phi = _apply_1q(phi, n, q, _H)
+                phi = apply_matrix_1q(phi, q, _H)
             elif b == 3:
-                phi = _apply_1q(phi, n, q, _HSDG)
+                phi = apply_matrix_1q(phi, q, _HSDG)
         p = np.abs(phi) ** 2
         return p / p.sum()
 
@@ -241,7 +194,7 @@ class NoisyEstimator(ShotEstimator):
         if self.p01 or self.p10:
             conf = np.array([[1.0 - self.p01, self.p10], [self.p01, 1.0 - self.p10]])
             for q in range(n):
-                p = _apply_1q(p.astype(np.complex128), n, q, conf).real
+                p = apply_matrix_1q(p, q, conf)
         p = np.clip(p, 0.0, None)
         return p / p.sum()
 

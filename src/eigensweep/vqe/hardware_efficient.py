@@ -11,7 +11,7 @@ be. A rotation layer is ``ry(theta)`` then ``rz(theta)`` on every qubit (``rotat
 ``2 n (d + 1)`` parameters) or ``ry(theta)`` only (``rotations="ry"``, real amplitudes,
 ``n (d + 1)`` parameters). Parameters are ordered layer by layer, qubit by qubit, ``ry`` before ``rz``.
 
-For simulation the ansatz is a :class:`~eigensweep.vqe.ansatz.PauliRotationAnsatz`: ``ry``
+For simulation the ansatz is a :class:`~eigensweep.vqe.pauli_rotation.PauliRotationAnsatz`: ``ry``
 and ``rz`` are the rotations ``exp(-i t/2 Y)``, ``exp(-i t/2 Z)``, and each CNOT is written
 exactly, up to the global phase ``exp(i pi/4)``, as the three fixed rotations
 ``exp(-i pi/4 Z_c) exp(-i pi/4 X_t) exp(+i pi/4 Z_c X_t)``. :meth:`circuit` emits the
@@ -25,8 +25,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..circuit import Circuit, circuit_costs
-from .ansatz import PauliGate, PauliRotationAnsatz
 from .methods import ROTATION_SETS
+from .pauli_rotation import PauliGate, PauliRotationAnsatz
 
 if TYPE_CHECKING:
     from ..qubit.pauli import PauliSum

@@ -19,8 +19,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .ansatz import Excitation, FermionicAnsatz
 from .detspace import DetSpace
+from .fermionic import Excitation, FermionicAnsatz
 
 
 class KUpCCGSD(FermionicAnsatz):

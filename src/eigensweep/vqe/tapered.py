@@ -10,7 +10,7 @@ state of the sector equals ``exp(-i (s a)/2 P')`` on the tapered state: the sign
 the angle.
 
 A fermionic excitation gate ``exp(phi G)``, ``G = T - T^dagger``, is the product of the commuting
-rotations of its mapped strings (:func:`eigensweep.vqe.ansatz.generator_paulis`, angle
+rotations of its mapped strings (:func:`eigensweep.qubit.mapping.generator_paulis`, angle
 ``-2 phi c_j``); each string is tapered separately. Strings of one excitation that land on the
 same tapered string are merged (their angles add; they commute, so this is exact) and strings
 whose merged angle vanishes are removed.
@@ -41,9 +41,10 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .ansatz import Excitation, FermionicAnsatz, PauliGate, PauliRotationAnsatz, generator_paulis
+from ..qubit.mapping import check_mapping, generator_paulis
 from .detspace import FermionTerm
-from .methods import check_mapping
+from .fermionic import Excitation, FermionicAnsatz
+from .pauli_rotation import PauliGate, PauliRotationAnsatz
 
 if TYPE_CHECKING:
     from ..qubit.taper import TaperResult
@@ -168,13 +169,13 @@ class TaperedFermionicAnsatz(PauliRotationAnsatz):
 
     State ``prod_k exp(-i a_k/2 P_k)|reference>`` on ``tapering.n_qubits`` qubits with
     ``reference = tapering.reference_bits``, energies of ``tapering.hamiltonian`` and adjoint
-    gradients (:class:`~eigensweep.vqe.ansatz.PauliRotationAnsatz`). Parameter ``j`` is the
+    gradients (:class:`~eigensweep.vqe.pauli_rotation.PauliRotationAnsatz`). Parameter ``j`` is the
     untapered parameter ``kept_params[j]``; symmetry-forbidden excitations are dropped (module
     docstring).
 
     Args:
         excitations: the untapered gates (first applied first), as in
-            :class:`~eigensweep.vqe.ansatz.FermionicAnsatz`.
+            :class:`~eigensweep.vqe.fermionic.FermionicAnsatz`.
         n_params: number of untapered parameters.
         mapping: the mapping of ``tapering``.
         tapering: a tapering with at least one generator (zero generators work too, giving the
@@ -248,7 +249,7 @@ class TaperedFermionicAnsatz(PauliRotationAnsatz):
 
     def meta(self) -> dict:
         """Tapered Pauli rotations and reference bits (enough for
-        :func:`~eigensweep.vqe.ansatz.circuit_from_meta`), plus the tapering bookkeeping."""
+        :func:`~eigensweep.vqe.circuits.circuit_from_meta`), plus the tapering bookkeeping."""
         out = {**self._extra_meta, **super().meta()}
         out.update(
             tapered=True,

@@ -8,7 +8,7 @@ product ``prod_k exp(theta_k (T_k - T_k^dagger))`` over spin-conserving occupied
 excitations of the Hartree-Fock determinant (all orbitals of the active space are
 correlated; no frozen core). Application order (first applied first): alpha-alpha doubles,
 beta-beta doubles, alpha-beta doubles, alpha singles, beta singles (orderings in
-:func:`eigensweep.vqe.ansatz.sd_excitation_terms`); the parameter vector follows the same
+:func:`eigensweep.vqe.fermionic.sd_excitation_terms`); the parameter vector follows the same
 order. Parameter counts (STO-3G, no frozen core): H2 3, LiH 92, BeH2 204, H2O 140.
 
 ``spin_adapted=True`` ties the parameters of spin-complementary excitations (alpha <-> beta
@@ -22,8 +22,8 @@ instead of 92.
 
 from __future__ import annotations
 
-from .ansatz import Excitation, FermionicAnsatz, sd_excitation_terms, tie_spin_complements
 from .detspace import DetSpace
+from .fermionic import Excitation, FermionicAnsatz, sd_excitation_terms, tie_spin_complements
 
 
 class UCCSD(FermionicAnsatz):

@@ -1,0 +1,272 @@
+"""Qubit-space ansätze: products of Pauli rotations on a computational-basis reference.
+
+:class:`PauliRotationAnsatz` is the state ``prod_k exp(-i a_k/2 P_k)|ref>`` simulated on the
+statevector (:mod:`eigensweep.qubit.statevector`) with adjoint gradients (Jones & Gacon,
+arXiv:2009.02823); the hardware-efficient ansatz, qubit-ADAPT and fermionic ansätze carried
+through Z2 tapering are built on it. ``circuit`` compiles with
+:func:`eigensweep.circuit.circuit_from_rotations`, the compiler the device export uses.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from ..circuit import Circuit, PauliRotation, circuit_costs, circuit_from_rotations
+from ..qubit import statevector as sv
+
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliSum
+
+__all__ = ["PauliGate", "PauliRotationAnsatz", "pauli_label"]
+
+
+def pauli_label(x: np.ndarray, z: np.ndarray) -> str:
+    """Letter string (character ``k`` = qubit ``k``) of the Pauli string ``(x, z)``."""
+    return "".join("IXZY"[int(a) + 2 * int(b)] for a, b in zip(x, z, strict=True))
+
+
+@dataclass(frozen=True)
+class PauliGate:
+    """``exp(-i a/2 P(x, z))`` with ``a = coeff * theta[param] + offset`` (``param = -1``: fixed)."""
+
+    x: np.ndarray
+    z: np.ndarray
+    param: int
+    coeff: float = 1.0
+    offset: float = 0.0
+
+
+class PauliRotationAnsatz:
+    """Product of Pauli rotations on a computational-basis reference, on statevectors.
+
+    State ``prod_k exp(-i a_k/2 P_k)|ref>`` (``gates[0]`` first); energies are expectation
+    values of a :class:`~eigensweep.qubit.pauli.PauliSum` (possibly tapered). The gradient is
+    the adjoint one (Jones & Gacon, arXiv:2009.02823): with ``dU_k/da_k = -i/2 P_k U_k``,
+    ``dE/da_k = Im <lambda_k|P_k|psi_k>``.
+    """
+
+    name = "pauli_rotations"
+
+    def __init__(
+        self,
+        hamiltonian: PauliSum | None,
+        reference: np.ndarray,
+        gates: Sequence[PauliGate],
+        n_params: int,
+        *,
+        init_scale: float = 0.0,
+        seed: int = 0,
+    ) -> None:
+        self.reference = np.asarray(reference, dtype=np.uint8).reshape(-1)
+        self._n_qubits = int(self.reference.size)
+        if hamiltonian is not None and hamiltonian.n_qubits != self._n_qubits:
+            raise ValueError(
+                f"Hamiltonian acts on {hamiltonian.n_qubits} qubits, reference has {self._n_qubits}"
+            )
+        self.hamiltonian = hamiltonian
+        self.gates = list(gates)
+        self._n_params = int(n_params)
+        for g in self.gates:
+            if g.param >= self._n_params:
+                raise ValueError(f"gate parameter index {g.param} out of range")
+        self._params = np.array([max(g.param, 0) for g in self.gates], dtype=np.intp)
+        self._coeffs = np.array([g.coeff if g.param >= 0 else 0.0 for g in self.gates])
+        self._offsets = np.array([g.offset for g in self.gates], dtype=float)
+        self.init_scale = float(init_scale)
+        self.seed = int(seed)
+        self._single: list[tuple[int, str]] = []
+        for g in self.gates:
+            support = np.flatnonzero(g.x | g.z)
+            if support.size == 1:
+                q = int(support[0])
+                self._single.append((q, "Y" if g.x[q] and g.z[q] else ("X" if g.x[q] else "Z")))
+            else:
+                self._single.append((-1, ""))
+        self._tables: list[tuple[np.ndarray, np.ndarray, complex] | None] | None = None
+
+    # bytes of precomputed multi-qubit Pauli tables allowed per ansatz
+    TABLE_BUDGET = 256 * 2**20
+
+    def _build_tables(self) -> list[tuple[np.ndarray, np.ndarray, complex] | None]:
+        """``P_k psi = phase_k * sign_k * psi[perm_k]`` for the multi-qubit strings, if the
+        tables fit in :attr:`TABLE_BUDGET` (one sign vector per gate, one index vector per
+        distinct X part); otherwise ``None`` entries (generic kernel)."""
+        n = self._n_qubits
+        dim = 1 << n
+        multi = [k for k, (q, _) in enumerate(self._single) if q < 0]
+        weights = 1 << (n - 1 - np.arange(n, dtype=np.int64))  # qubit 0 = most significant bit
+        xms = {int(weights @ self.gates[k].x) for k in multi}
+        if 8 * dim * (len(multi) + len(xms)) > self.TABLE_BUDGET:
+            return [None] * len(self.gates)
+        idx = np.arange(dim, dtype=np.int64)
+        perms = {xm: idx ^ xm for xm in xms}
+        tables: list[tuple[np.ndarray, np.ndarray, complex] | None] = [None] * len(self.gates)
+        for k in multi:
+            g = self.gates[k]
+            perm = perms[int(weights @ g.x)]
+            zm = int(weights @ g.z)
+            sign = 1.0 - 2.0 * (np.bitwise_count(perm & zm) & 1)
+            phase = (1j) ** int(np.count_nonzero(g.x & g.z))
+            tables[k] = (perm, sign, complex(phase))
+        return tables
+
+    def _table(self, k: int) -> tuple[np.ndarray, np.ndarray, complex] | None:
+        if self._tables is None:
+            self._tables = self._build_tables()
+        return self._tables[k]
+
+    @property
+    def n_params(self) -> int:
+        return self._n_params
+
+    @property
+    def n_qubits(self) -> int:
+        return self._n_qubits
+
+    def initial_params(self) -> np.ndarray:
+        """``init_scale * N(0, 1)`` from ``seed`` (zeros when ``init_scale == 0``)."""
+        if self.init_scale == 0.0:
+            return np.zeros(self.n_params)
+        return self.init_scale * np.random.default_rng(self.seed).standard_normal(self.n_params)
+
+    def angles(self, theta: np.ndarray) -> np.ndarray:
+        theta = np.asarray(theta, dtype=float).reshape(-1)
+        if theta.size != self.n_params:
+            raise ValueError(f"expected {self.n_params} parameters, got {theta.size}")
+        if not self.gates:
+            return np.zeros(0)
+        safe = theta[self._params] if theta.size else np.zeros(len(self.gates))
+        return self._coeffs * safe + self._offsets
+
+    def _rotate(self, psi: np.ndarray, k: int, angle: float) -> np.ndarray:
+        """``exp(-i angle/2 P_k) psi``; single-qubit strings on a reshaped view."""
+        q, letter = self._single[k]
+        if q < 0:
+            table = self._table(k)
+            if table is None:
+                g = self.gates[k]
+                return sv.apply_pauli_rotation(psi, g.x, g.z, angle)
+            perm, sign, phase = table
+            flipped = psi[perm]
+            flipped *= sign
+            out = np.cos(angle / 2.0) * psi
+            out += (-1j * np.sin(angle / 2.0) * phase) * flipped
+            return out
+        v = psi.reshape(1 << q, 2, -1)
+        c, s = np.cos(angle / 2.0), np.sin(angle / 2.0)
+        out = np.empty_like(v)
+        a, b = v[:, 0, :], v[:, 1, :]
+        if letter == "Z":
+            out[:, 0, :] = (c - 1j * s) * a
+            out[:, 1, :] = (c + 1j * s) * b
+        elif letter == "X":
+            out[:, 0, :] = c * a - 1j * s * b
+            out[:, 1, :] = c * b - 1j * s * a
+        else:  # Y
+            out[:, 0, :] = c * a - s * b
+            out[:, 1, :] = c * b + s * a
+        return out.reshape(-1)
+
+    def _pauli(self, psi: np.ndarray, k: int) -> np.ndarray:
+        """``P_k psi``."""
+        q, letter = self._single[k]
+        if q < 0:
+            table = self._table(k)
+            if table is None:
+                g = self.gates[k]
+                return sv.apply_pauli(psi, g.x, g.z)
+            perm, sign, phase = table
+            out = psi[perm]
+            out *= sign
+            out *= phase
+            return out
+        v = psi.reshape(1 << q, 2, -1)
+        out = np.empty_like(v)
+        if letter == "Z":
+            out[:, 0, :] = v[:, 0, :]
+            out[:, 1, :] = -v[:, 1, :]
+        elif letter == "X":
+            out[:, 0, :] = v[:, 1, :]
+            out[:, 1, :] = v[:, 0, :]
+        else:
+            out[:, 0, :] = -1j * v[:, 1, :]
+            out[:, 1, :] = 1j * v[:, 0, :]
+        return out.reshape(-1)
+
+    def state(self, theta: np.ndarray) -> np.ndarray:
+        """Complex statevector (qubit 0 = most significant bit)."""
+        psi = sv.basis_state(self.reference)
+        for k, a in enumerate(self.angles(theta)):
+            psi = self._rotate(psi, k, float(a))
+        return psi
+
+    qubit_state = state
+
+    def _ham(self) -> PauliSum:
+        if self.hamiltonian is None:
+            raise RuntimeError("this ansatz was built without a Hamiltonian")
+        return self.hamiltonian
+
+    def energy(self, theta: np.ndarray) -> float:
+        return sv.expectation(self.state(theta), self._ham())
+
+    def energy_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
+        """Energy and exact gradient (adjoint sweep)."""
+        ham = self._ham()
+        angles = self.angles(theta)
+        psi = self.state(theta)
+        lam = sv.apply_pauli_sum(psi, ham)
+        energy = float(np.vdot(psi, lam).real)
+        da = np.zeros(len(self.gates))
+        for k in range(len(self.gates) - 1, -1, -1):
+            g = self.gates[k]
+            if g.param >= 0:
+                da[k] = float(np.vdot(lam, self._pauli(psi, k)).imag)
+            if k:
+                psi = self._rotate(psi, k, float(-angles[k]))
+                lam = self._rotate(lam, k, float(-angles[k]))
+        grad = np.bincount(self._params, weights=self._coeffs * da, minlength=self.n_params)
+        return energy, grad
+
+    def operator_list(self) -> list[dict]:
+        """Rotations in application order: Pauli label, parameter (-1 fixed), coeff, offset."""
+        return [
+            {
+                "kind": "pauli",
+                "label": pauli_label(g.x, g.z),
+                "param": int(g.param),
+                "coeff": float(g.coeff),
+                "offset": float(g.offset),
+            }
+            for g in self.gates
+        ]
+
+    def meta(self) -> dict:
+        return {
+            "name": self.name,
+            "n_params": self.n_params,
+            "n_qubits": self.n_qubits,
+            "reference_bits": [int(b) for b in self.reference],
+            "operators": self.operator_list(),
+        }
+
+    def pauli_rotations(
+        self, theta: np.ndarray, mapping: str | None = None
+    ) -> tuple[np.ndarray, list[PauliRotation]]:
+        """Reference bits and rotations (already in qubit space; ``mapping`` is ignored)."""
+        rots = [
+            (g.x.copy(), g.z.copy(), float(a))
+            for g, a in zip(self.gates, self.angles(theta), strict=True)
+        ]
+        return self.reference.copy(), rots
+
+    def circuit(self, theta: np.ndarray, mapping: str | None = None) -> Circuit:
+        ref, rots = self.pauli_rotations(theta)
+        return circuit_from_rotations(ref, rots)
+
+    def circuit_costs(self, mapping: str | None = None) -> dict[str, int]:
+        return circuit_costs(self.circuit(np.full(self.n_params, 0.1)))
