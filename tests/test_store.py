@@ -6,6 +6,7 @@ reader, wherever the layout itself is what is checked.
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import os
@@ -15,7 +16,7 @@ import h5py
 import numpy as np
 import pytest
 
-from eigensweep.errors import StageFileError
+from eigensweep.errors import EigensweepError, StageFileError
 from eigensweep.stage_table import stage_key
 from eigensweep.store import (
     FORMAT_VERSION,
@@ -98,6 +99,16 @@ def test_content_hash_excludes_timings(tmp_path):
     b = _write(tmp_path / "b")
     with h5py.File(a) as fa, h5py.File(b) as fb:
         assert fa.attrs["content_sha256"] == fb.attrs["content_sha256"]
+
+
+def test_timings_in_results_are_outside_the_content_hash(tmp_path):
+    # issue 19: identical runs differed in content_sha256 because wall_s was hashed
+    a = _write(tmp_path / "a", meta={**META, "wall_s": 1.0})
+    b = _write(tmp_path / "b", meta={**META, "wall_s": 2.0})
+    with h5py.File(a) as fa, h5py.File(b) as fb:
+        assert fa.attrs["content_sha256"] == fb.attrs["content_sha256"]
+        assert fb["timing"].attrs["wall_s"] == 2.0 and "wall_s" not in fb["results"].attrs
+    assert read_stage(b).meta == {**META, "wall_s": 2.0}
 
 
 def test_key_must_match_file_name(tmp_path):
@@ -261,3 +272,51 @@ def test_bounded_read_refuses_fifo_and_large_files(tmp_path):
     with pytest.raises(StageFileError, match="above the 100-byte limit"):
         read_bounded(big, 100, "counts file", StageFileError)
     assert read_bounded(big, 101, "counts file") == b"0" * 101
+
+
+@pytest.mark.parametrize(
+    "code, words", [(errno.ENOSPC, "disk full"), (errno.EROFS, "read-only file system")]
+)
+def test_full_or_read_only_disk_is_one_line_naming_the_folder(tmp_path, monkeypatch, code, words):
+    # errno values from POSIX (ENOSPC "No space left on device", EROFS); the old store let
+    # CPython's traceback through
+    import eigensweep.store as store
+
+    def fail(src, dst):
+        raise OSError(code, os.strerror(code))
+
+    monkeypatch.setattr(store.os, "replace", fail)
+    with pytest.raises(EigensweepError, match=words) as ei:
+        _write(tmp_path)
+    msg = str(ei.value)
+    assert msg.startswith(str(tmp_path / "integrals")) and "\n" not in msg
+    assert not list((tmp_path / "integrals").iterdir())  # no temporary file left behind
+
+
+def test_real_full_disk_on_a_small_tmpfs(tmp_path):
+    # a 256 kB tmpfs really fills up (Linux tmpfs size= option); root only, skipped elsewhere
+    import subprocess
+
+    if os.geteuid() != 0:
+        pytest.skip("mounting a tmpfs needs root")
+    mnt = tmp_path / "small"
+    mnt.mkdir()
+    if subprocess.run(["mount", "-t", "tmpfs", "-o", "size=256k", "tmpfs", str(mnt)]).returncode:
+        pytest.skip("cannot mount a tmpfs here")
+    try:
+        key = stage_key("integrals", {}, {})
+        path = mnt / "integrals" / f"{key}.h5"
+        with pytest.raises(EigensweepError, match="disk full") as ei:
+            write_stage(
+                path,
+                stage="integrals",
+                key=key,
+                params={},
+                parents={},
+                arrays={"a": np.zeros(100_000)},
+                meta={},
+            )
+        assert "\n" not in str(ei.value)
+        assert not list(path.parent.iterdir())
+    finally:
+        subprocess.run(["umount", str(mnt)])

@@ -156,7 +156,7 @@ def _run_locked(args, path: Path, plan, locked: bool) -> int:
     if locked:
         # Under the folder lock no other writer exists: temporary files are leftovers of
         # killed jobs (never stage files, which appear only by an atomic rename).
-        for tmp in results.glob("*/.*.tmp"):
+        for tmp in results.rglob(".*.tmp"):
             tmp.unlink(missing_ok=True)
     status = {key: _status(node, results) for key, node in plan.nodes.items()}
     pending = [plan.nodes[k] for k, st in status.items() if st != "cached"]

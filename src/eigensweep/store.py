@@ -14,7 +14,8 @@ Layout of every stage file ``results/<stage>/<key>.h5`` (format version 2)::
 
 ``content_sha256`` covers every dataset's name, dtype, shape and bytes plus the canonical JSON
 of the results, so a damaged file is refused on read even when HDF5 itself still opens it.
-Timings (``wall_s``, ``created``) are outside it: identical runs have identical content hashes.
+Timings are outside it (the ``wall_s`` and ``created`` attributes, and top-level results named in
+:data:`TIMING_KEYS`, stored in ``/timing``): identical runs have identical content hashes.
 On every read the key is recomputed from the stored stage, version, parameters and parent keys;
 a file whose stored identity does not hash to its key is refused.
 
@@ -25,6 +26,7 @@ This module also holds the one atomic file write (:func:`atomic_path`, :func:`at
 from __future__ import annotations
 
 import contextlib
+import errno
 import hashlib
 import json
 import os
@@ -44,11 +46,13 @@ import h5py
 import numpy as np
 
 from . import __version__
-from .errors import StageFileError
+from .errors import EigensweepError, StageFileError
 from .stage_table import STAGE_VERSIONS, canonical_json, stage_key
 
 FORMAT = "eigensweep-stage"
 FORMAT_VERSION = 2
+#: Top-level results that are timings: stored under ``/timing``, outside the content hash.
+TIMING_KEYS = ("wall_s",)
 KNOWN_FORMAT_VERSIONS = {2}
 #: Largest stage file read (bytes): a bound against a huge or endless file given as a stage file.
 MAX_STAGE_FILE_BYTES = 8 * 2**30
@@ -82,8 +86,13 @@ def atomic_path(path: str | Path, *, prefix: str | None = None) -> Iterator[Path
         ...     tmp.write_text("a,b\n1,2\n")
     """
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, name = tempfile.mkstemp(prefix=prefix or f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, name = tempfile.mkstemp(
+            prefix=prefix or f".{path.name}.", suffix=".tmp", dir=path.parent
+        )
+    except OSError as exc:
+        raise _write_error(path, exc) from None
     os.close(fd)
     tmp = Path(name)
     try:
@@ -92,10 +101,41 @@ def atomic_path(path: str | Path, *, prefix: str | None = None) -> Iterator[Path
             os.fsync(fh.fileno())
         os.chmod(tmp, _file_mode())
         os.replace(tmp, path)
+    except OSError as exc:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        err = _write_error(path, exc)
+        if err is exc:
+            raise
+        raise err from None
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+
+
+_FULL = (errno.ENOSPC, getattr(errno, "EDQUOT", errno.ENOSPC))
+
+
+def _write_error(path: Path, exc: OSError) -> OSError | EigensweepError:
+    """A one-line error naming the folder for a full, read-only or forbidden disk; otherwise
+    the original error (a bug, shown with its traceback)."""
+    folder = path.parent
+    text = str(exc)
+    if exc.errno in _FULL or "No space left" in text or "errno = 28" in text:
+        return EigensweepError(
+            f"{folder}: disk full (or quota exceeded) while writing {path.name}; free space and "
+            "rerun (finished files are kept)"
+        )
+    if exc.errno == errno.EROFS or "Read-only file system" in text:
+        return EigensweepError(
+            f"{folder}: read-only file system; run from a folder you can write to"
+        )
+    if exc.errno in (errno.EACCES, errno.EPERM):
+        return EigensweepError(
+            f"{folder}: no permission to write {path.name}; run from a folder you can write to"
+        )
+    return exc
 
 
 def atomic_write_bytes(path: str | Path, data: bytes) -> Path:
@@ -248,7 +288,8 @@ def write_stage(
             "this is a bug in the caller"
         )
     arrays = _prepare(arrays)
-    meta_text = canonical_json(meta)
+    timing = {k: meta[k] for k in TIMING_KEYS if k in meta}
+    meta_text = canonical_json({k: v for k, v in meta.items() if k not in timing})
     units = dict(units or {})
     unknown = sorted(set(units) - set(arrays))
     if unknown:
@@ -272,6 +313,7 @@ def write_stage(
             if name in units:
                 ds.attrs["units"] = units[name]
         _write_tree(f.create_group("results"), json.loads(meta_text))
+        _write_tree(f.create_group("timing"), json.loads(canonical_json(timing)))
     return path
 
 
@@ -359,6 +401,8 @@ def read_stage(path: str | Path, *, stage: str | None = None, key: str | None = 
             f["data"].visititems(_grab)
             meta = _read_tree(f["results"])
             meta_text = canonical_json(meta)
+            if "timing" in f:
+                meta.update(_read_tree(f["timing"]))
     except StageFileError:
         raise
     except (OSError, KeyError, ValueError, TypeError) as exc:
