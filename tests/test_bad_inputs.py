@@ -24,7 +24,11 @@ CASES = [
     ("top-level-list", "- 1\n- 2\n", "top level must be a mapping"),
     ("python-tag", "molecules: !!python/object/apply:os.system ['true']\n", "YAML syntax error"),
     ("unknown-top-key", cfg(top="sede: 3\n"), "sede: unknown key"),
-    ("unknown-molecule-key", cfg(mol=GOOD_MOL + "\n    bassis: sto-3g"), "molecules[0].bassis: unknown key"),
+    (
+        "unknown-molecule-key",
+        cfg(mol=GOOD_MOL + "\n    bassis: sto-3g"),
+        "molecules[0].bassis: unknown key",
+    ),
     ("charge-type", cfg(mol=GOOD_MOL + "\n    charge: one"), "molecules[0].charge"),
     ("multiplicity-zero", cfg(mol=GOOD_MOL + "\n    multiplicity: 0"), "molecules[0].multiplicity"),
     (

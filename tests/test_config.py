@@ -293,3 +293,32 @@ def test_min_distance_matches_scipy_pdist_and_scales():
     assert full[i - 1, j - 1] == pytest.approx(full.min(), abs=1e-12) and i < j
     big = [("H", tuple(p)) for p in rng.uniform(-300, 300, size=(150_000, 3))]
     assert min_distance(big)[0] > 0  # the pure-Python pair loop took hours here
+
+
+# ---------------------------------------------------------------------------- renamed options
+@pytest.mark.parametrize(
+    "kind, entry, new",
+    [
+        ("ansatz", {"name": "hardware_efficient", "layers": 1}, "rounds"),
+        ("ansatz", {"name": "hardware_efficient", "rotations": "ry_rz"}, "axes: yz"),
+        ("ansatz", {"name": "adapt", "pool": "fermionic_sd"}, "'singles_doubles'"),
+        ("ansatz", {"name": "adapt", "pool": "fermionic_gsd"}, "'generalised_singles_doubles'"),
+        ("optimizer", {"name": "spsa", "target_step": 0.2}, "first_step"),
+        ("optimizer", {"name": "spsa", "calibration_samples": 5}, "gain_estimates"),
+        ("optimizer", {"name": "spsa", "average_last": 5}, "iterate_average"),
+        ("optimizer", {"name": "rbf_surrogate", "success_tolerance": 2}, "widen_after"),
+        ("optimizer", {"name": "rbf_surrogate", "fail_tolerance": 2}, "narrow_after"),
+    ],
+)
+def test_old_option_names_are_refused_naming_the_replacement(kind, entry, new):
+    # each old name is an error (never accepted silently) whose one line names the new name
+    with pytest.raises(ConfigError) as err:
+        complete_method(kind, entry)
+    msg = str(err.value)
+    assert new in msg and "renamed" in msg and "\n" not in msg
+    cfg = {
+        "molecules": [{"name": "h2", "atoms": "H 0 0 0; H 0 0 0.74"}],
+        "methods": {kind: [entry]},
+    }
+    with pytest.raises(ConfigError, match="renamed"):
+        validate_config(cfg)

@@ -63,7 +63,7 @@ def _fd_check(fun_and_grad, fun, theta, h=1e-5, n_check=8):
 
 def _fermionic_ansatze():
     space = space_of("LiH")
-    adapt_terms = pool_terms("fermionic_sd", space.norb, space.nelec)[::7]
+    adapt_terms = pool_terms("singles_doubles", space.norb, space.nelec)[::7]
     return [
         UCCSD(space),
         UCCSD(space, spin_adapted=True),
@@ -83,7 +83,7 @@ def test_fermionic_gradients_match_finite_differences(index):
 def test_qubit_ansatz_gradients_match_finite_differences():
     m = molecule("H2")
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
-    hea = HardwareEfficientAnsatz(ham, np.array([1, 1, 0, 0]), layers=2)
+    hea = HardwareEfficientAnsatz(ham, np.array([1, 1, 0, 0]), rounds=2)
     theta = np.random.default_rng(2).uniform(-1, 1, hea.n_params)
     _fd_check(hea.energy_and_gradient, hea.energy, theta)
     ham2, _ = h2_two_qubit()
@@ -103,14 +103,14 @@ def test_hea_circuit_matches_simulation():
     from eigensweep.qubit import statevector as sv
 
     ham, _ = h2_two_qubit()
-    hea = HardwareEfficientAnsatz(ham, np.array([1, 0]), layers=2, rotations="ry_rz")
+    hea = HardwareEfficientAnsatz(ham, np.array([1, 0]), rounds=2, axes="yz")
     theta = np.random.default_rng(4).uniform(-2, 2, hea.n_params)
     circ = hea.circuit(theta)
     assert circ.cnot_count == 2 and hea.circuit_costs()["cnot_count"] == 2
     overlap = abs(np.vdot(sv.simulate(circ), hea.state(theta)))
     assert abs(overlap - 1.0) < 1e-12
     assert hea.n_params == 2 * 2 * 3
-    assert HardwareEfficientAnsatz(ham, np.array([0, 0]), layers=1, rotations="ry").n_params == 4
+    assert HardwareEfficientAnsatz(ham, np.array([0, 0]), rounds=1, axes="y").n_params == 4
 
 
 @pytest.mark.parametrize("name", ["H2", "LiH", "BeH2", "H2O"])
@@ -132,7 +132,7 @@ def test_adapt_lih_beats_uccsd_parameter_count():
     m = molecule("LiH")
     res = run_optimize(
         **m,
-        ansatz={"name": "adapt", "pool": "fermionic_sd", "gradient_tolerance": 1e-3},
+        ansatz={"name": "adapt", "pool": "singles_doubles", "gradient_tolerance": 1e-3},
         optimizer={"name": "lbfgs"},
         estimator={"name": "exact"},
     )
@@ -148,7 +148,7 @@ def test_adapt_generalized_pool_h2():
     m = molecule("H2")
     res = run_optimize(
         **m,
-        ansatz={"name": "adapt", "pool": "fermionic_gsd", "max_operators": 4},
+        ansatz={"name": "adapt", "pool": "generalised_singles_doubles", "max_operators": 4},
         optimizer={"name": "lbfgs"},
         estimator={"name": "exact"},
     )
@@ -194,9 +194,9 @@ def test_qubit_adapt_lih_chemical_accuracy_with_fewer_cnots():
     assert res.cnot_count < uccsd_cnots
 
 
-@pytest.mark.parametrize("layers", [0, 1, 2, 3])
-@pytest.mark.parametrize("rotations", ["ry_rz", "ry"])
-def test_hea_at_zero_parameters_is_the_hartree_fock_state(layers, rotations):
+@pytest.mark.parametrize("rounds", [0, 1, 2, 3])
+@pytest.mark.parametrize("axes", ["yz", "y"])
+def test_hea_at_zero_parameters_is_the_hartree_fock_state(rounds, axes):
     from pyscf import gto, scf
 
     from eigensweep.qubit import map_hamiltonian, reference_bits
@@ -205,7 +205,7 @@ def test_hea_at_zero_parameters_is_the_hartree_fock_state(layers, rotations):
     m = molecule("H2")
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     hf_bits = reference_bits(m["nelec"], m["norb"], "jordan_wigner")
-    hea = HardwareEfficientAnsatz(ham, hf_bits, layers=layers, rotations=rotations)
+    hea = HardwareEfficientAnsatz(ham, hf_bits, rounds=rounds, axes=axes)
     zero = np.zeros(hea.n_params)
     # reference: PySCF RHF energy computed here (the HF determinant's energy)
     mf = scf.RHF(gto.M(atom="H 0 0 0; H 0 0 0.74", basis="sto-3g", verbose=0))
@@ -227,7 +227,7 @@ def test_hea_run_on_tapered_lih_starts_at_hf_and_ends_below():
     tap = taper(ham, reference_bits(m["nelec"], m["norb"], "parity"))
     res = run_optimize(
         **m,
-        ansatz={"name": "hardware_efficient", "layers": 1, "init_scale": 0.0},
+        ansatz={"name": "hardware_efficient", "rounds": 1, "init_scale": 0.0},
         optimizer={"name": "lbfgs", "maxiter": 30},
         estimator={"name": "exact"},
         mapping="parity",

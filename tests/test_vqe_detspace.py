@@ -165,7 +165,7 @@ def test_generator_paulis_equal_openfermion(mapping):
     # computed at test time; 10 spin orbitals (not a power of two) and an open shell
     norb, nelec = 5, (3, 2)
     n = 2 * norb
-    for term in pool_terms("fermionic_gsd", norb, nelec)[::3]:
+    for term in pool_terms("generalised_singles_doubles", norb, nelec)[::3]:
         ours = [
             (tuple((int(q), "IXZY"[int(x[q]) + 2 * int(z[q])]) for q in np.flatnonzero(x | z)), c)
             for x, z, c in generator_paulis(term, mapping, n)
@@ -209,7 +209,7 @@ def test_circuit_from_stored_meta_reproduces_state():
     assert circ.cnot_count == res.cnot_count and circ.depth == res.depth
     hea = run_optimize(
         **m,
-        ansatz={"name": "hardware_efficient", "layers": 1},
+        ansatz={"name": "hardware_efficient", "rounds": 1},
         optimizer={"name": "lbfgs", "maxiter": 5},
         estimator={"name": "exact"},
     )

@@ -91,7 +91,7 @@ def test_noisy_estimator_biases_as_modelled():
 @pytest.mark.parametrize(
     "optimizer",
     [
-        {"name": "spsa", "maxiter": 300, "average_last": 30},
+        {"name": "spsa", "maxiter": 300, "iterate_average": 30},
         {"name": "rbf_surrogate", "maxiter": 120, "smoothing": 0.1},
     ],
 )
@@ -100,7 +100,7 @@ def test_two_qubit_h2_with_1000_shots_reaches_few_mha(optimizer):
     m = molecule("H2")
     res = run_optimize(
         **m,
-        ansatz={"name": "hardware_efficient", "layers": 1, "rotations": "ry"},
+        ansatz={"name": "hardware_efficient", "rounds": 1, "axes": "y"},
         optimizer=optimizer,
         estimator={"name": "shots", "shots": 1000, "seed": 5},
         qubit_hamiltonian=ham,
@@ -147,7 +147,7 @@ def test_optimize_result_store_round_trip():
     m = molecule("H2")
     res = run_optimize(
         **m,
-        ansatz={"name": "hardware_efficient", "layers": 1},
+        ansatz={"name": "hardware_efficient", "rounds": 1},
         optimizer={"name": "lbfgs"},
         estimator={"name": "exact"},
         qubit_hamiltonian=h2_two_qubit()[0],

@@ -30,7 +30,7 @@ def _run(h2, optimizer, seed=3):
     kw = {k: v for k, v in h2.items() if k != "e_fci"}
     return run_optimize(
         **kw,
-        ansatz={"name": "hardware_efficient", "layers": 1},
+        ansatz={"name": "hardware_efficient", "rounds": 1},
         optimizer=optimizer,
         estimator={"name": "exact"},
         seed=seed,

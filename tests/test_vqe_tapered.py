@@ -161,7 +161,7 @@ def test_tapered_adapt_lih_matches_determinant_space():
     # reference: untapered determinant-space ADAPT (same selections up to round-off)
     assert abs(res.energy - full.energy) < 1e-7
     assert res.n_params == full.n_params and res.n_qubits == 8
-    assert res.ansatz_meta["pool"] == "fermionic_sd"
+    assert res.ansatz_meta["pool"] == "singles_doubles"
     assert res.ansatz_meta["pool_operators_dropped"] > 0  # point-group-forbidden excitations
 
 

@@ -377,7 +377,7 @@ def check_combination(
     =====================================  ==========================  ==========================
     ``uccsd``, ``kupccgsd``                determinant space, any      tapered statevector, any
                                            mapping (costs in it)       mapping
-    ``adapt`` (``fermionic_sd``/``gsd``)   determinant space, any      tapered statevector, any
+    ``adapt`` (fermionic pools)            determinant space, any      tapered statevector, any
                                            mapping                     mapping
     ``adapt`` (``pool: qubit``)            JW statevector,             not supported
                                            ``jordan_wigner`` only
@@ -418,7 +418,7 @@ def _check_ansatz_encoding(ansatz: dict[str, Any], taper: bool, mapping: str) ->
         raise ConfigError(
             "ansatz.pool: 'qubit' (qubit-ADAPT) runs on the Jordan-Wigner statevector and allows "
             f"only methods.mapping jordan_wigner with methods.taper false, got {mapping!r}, taper "
-            f"{str(taper).lower()}; use pool fermionic_sd or fermionic_gsd"
+            f"{str(taper).lower()}; use pool singles_doubles or generalised_singles_doubles"
         )
 
 

@@ -5,16 +5,16 @@ simulations on a quantum computer", Nat. Commun. 10, 3007 (2019).
 
 Pools (spin-conserving excitations ``G = T - T^dagger``):
 
-``fermionic_sd``
+``singles_doubles``
     occupied -> virtual singles and doubles of the HF determinant (the UCCSD operators).
 ``qubit``
     qubit-ADAPT (Tang et al., PRX Quantum 2, 020310 (2021)): the distinct Pauli strings of
-    the Jordan-Wigner-mapped ``fermionic_sd`` generators with their Z letters removed
+    the Jordan-Wigner-mapped ``singles_doubles`` generators with their Z letters removed
     (each has an odd number of Y letters); each selected string ``P`` becomes the rotation
     ``exp(-i theta/2 P)`` on the JW statevector, whose gradient at 0 is
     ``Im <H psi|P|psi>``. These rotations do not conserve the particle number in general;
     the simulation is therefore done on the full qubit statevector.
-``fermionic_gsd``
+``generalised_singles_doubles``
     generalized singles ``a^+_p a_q`` (``p > q``, same spin) and generalized doubles
     ``a^+_p a^+_q a_s a_r`` on four distinct spin orbitals with ``p > q``, ``r > s``,
     ``(p, q) > (r, s)`` and equal alpha/beta counts on both sides.
@@ -70,10 +70,10 @@ __all__ = [
 
 def pool_terms(pool: str, norb: int, nelec: tuple[int, int]) -> list[FermionTerm]:
     """Excitation operators ``T`` of a pool (see module docstring)."""
-    if pool == "fermionic_sd":
+    if pool == "singles_doubles":
         doubles, singles = sd_excitation_terms(norb, nelec)
         return singles + doubles
-    if pool == "fermionic_gsd":
+    if pool == "generalised_singles_doubles":
         n = 2 * norb
         terms: list[FermionTerm] = []
         for p in range(n):
@@ -93,7 +93,7 @@ def pool_terms(pool: str, norb: int, nelec: tuple[int, int]) -> list[FermionTerm
 
 
 def qubit_pool(norb: int, nelec: tuple[int, int]) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Distinct Z-stripped Pauli strings ``(x, z)`` of the JW ``fermionic_sd`` generators."""
+    """Distinct Z-stripped Pauli strings ``(x, z)`` of the JW ``singles_doubles`` generators."""
     n = 2 * norb
     doubles, singles = sd_excitation_terms(norb, nelec)
     seen: dict[bytes, tuple[np.ndarray, np.ndarray]] = {}
@@ -194,7 +194,7 @@ class AdaptResult:
 def run_adapt(
     space: DetSpace,
     *,
-    pool: str = "fermionic_sd",
+    pool: str = "singles_doubles",
     gradient_tolerance: float = 1e-3,
     max_operators: int = 50,
     optimizer: dict | None = None,
@@ -220,7 +220,7 @@ def run_adapt(
         if tapered:
             raise ConfigError(
                 "ansatz.pool: 'qubit' cannot run on a tapered Hamiltonian; use pool "
-                "fermionic_sd or fermionic_gsd, or methods.taper false"
+                "singles_doubles or generalised_singles_doubles, or methods.taper false"
             )
         if hamiltonian is None or reference is None:
             raise ValueError("the qubit pool needs the JW Hamiltonian and reference bits")

@@ -60,8 +60,8 @@ def circuit_from_meta(meta: dict, params: np.ndarray, mapping: str = "jordan_wig
         hea = HardwareEfficientAnsatz(
             None,
             np.asarray(meta["reference_bits"], dtype=np.uint8),
-            layers=int(meta["layers"]),
-            rotations=str(meta["rotations"]),
+            rounds=int(meta["rounds"]),
+            axes=str(meta["axes"]),
         )
         return hea.circuit(params)
     ref, rots = rotations_from_meta(meta, params, mapping)

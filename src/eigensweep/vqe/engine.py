@@ -394,8 +394,8 @@ def run_optimize(
         ans = HardwareEfficientAnsatz(
             ham,
             ref,
-            layers=a_cfg["layers"],
-            rotations=a_cfg["rotations"],
+            rounds=a_cfg["rounds"],
+            axes=a_cfg["axes"],
             init_scale=a_cfg["init_scale"],
             seed=seed,
         )

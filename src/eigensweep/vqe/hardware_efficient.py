@@ -1,21 +1,21 @@
 """Hardware-efficient ansatz (Kandala et al., Nature 549, 242 (2017)).
 
-Layout (``layers = d``): ``x`` gates prepare a computational-basis state ``|p>``, then a
+Layout (``rounds = d``): ``x`` gates prepare a computational-basis state ``|p>``, then a
 rotation layer, then ``d`` times a CNOT chain ``cx(0,1) cx(1,2) ... cx(n-2,n-1)`` followed by
 another rotation layer. At zero parameters every rotation is the identity and the state is
 ``C^d |p>`` with ``C`` the chain; ``C`` maps basis states linearly over GF(2),
 ``b_k -> b_0 + ... + b_k (mod 2)`` (the prefix-parity matrix ``L``), so the prepared bits are
 ``p = (L^-1)^d r`` with ``(L^-1 r)_k = r_k + r_{k-1}``: the ansatz at zero parameters is exactly
 the reference ``|r>`` (HF bits in the chosen qubit encoding), as a variational start should
-be. A rotation layer is ``ry(theta)`` then ``rz(theta)`` on every qubit (``rotations="ry_rz"``,
-``2 n (d + 1)`` parameters) or ``ry(theta)`` only (``rotations="ry"``, real amplitudes,
+be. A rotation layer is ``ry(theta)`` then ``rz(theta)`` on every qubit (``axes="yz"``,
+``2 n (d + 1)`` parameters) or ``ry(theta)`` only (``axes="y"``, real amplitudes,
 ``n (d + 1)`` parameters). Parameters are ordered layer by layer, qubit by qubit, ``ry`` before ``rz``.
 
 For simulation the ansatz is a :class:`~eigensweep.vqe.pauli_rotation.PauliRotationAnsatz`: ``ry``
 and ``rz`` are the rotations ``exp(-i t/2 Y)``, ``exp(-i t/2 Z)``, and each CNOT is written
 exactly, up to the global phase ``exp(i pi/4)``, as the three fixed rotations
 ``exp(-i pi/4 Z_c) exp(-i pi/4 X_t) exp(+i pi/4 Z_c X_t)``. :meth:`circuit` emits the
-native ``ry``/``rz``/``cx`` gates instead (``layers * (n - 1)`` CNOTs).
+native ``ry``/``rz``/``cx`` gates instead (``rounds * (n - 1)`` CNOTs).
 """
 
 from __future__ import annotations
@@ -25,13 +25,13 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..circuit import Circuit, circuit_costs
-from .methods import ROTATION_SETS
+from .methods import ROTATION_AXES
 from .pauli_rotation import PauliGate, PauliRotationAnsatz
 
 if TYPE_CHECKING:
     from ..qubit.pauli import PauliSum
 
-__all__ = ["ROTATION_SETS", "HardwareEfficientAnsatz", "prepared_bits"]
+__all__ = ["ROTATION_AXES", "HardwareEfficientAnsatz", "prepared_bits"]
 
 
 def _row(n: int, qubits: dict[int, str]) -> tuple[np.ndarray, np.ndarray]:
@@ -43,10 +43,10 @@ def _row(n: int, qubits: dict[int, str]) -> tuple[np.ndarray, np.ndarray]:
     return x, z
 
 
-def prepared_bits(reference: np.ndarray, layers: int) -> np.ndarray:
-    """Bits ``p`` that ``layers`` CNOT chains carry to ``reference`` (module docstring)."""
+def prepared_bits(reference: np.ndarray, rounds: int) -> np.ndarray:
+    """Bits ``p`` that ``rounds`` CNOT chains carry to ``reference`` (module docstring)."""
     bits = np.asarray(reference, dtype=np.uint8).reshape(-1).copy()
-    for _ in range(int(layers)):
+    for _ in range(int(rounds)):
         bits[1:] ^= bits[:-1].copy()  # inverse of the chain: b_k + b_{k-1}
     return bits
 
@@ -61,20 +61,20 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
         self,
         hamiltonian: PauliSum | None,
         reference: np.ndarray,
-        layers: int = 2,
-        rotations: str = "ry_rz",
+        rounds: int = 2,
+        axes: str = "yz",
         *,
         init_scale: float = 0.1,
         seed: int = 0,
     ) -> None:
-        if rotations not in ROTATION_SETS:
-            raise ValueError(f"rotations must be one of {ROTATION_SETS}")
-        if layers < 0:
-            raise ValueError("layers must be >= 0")
+        if axes not in ROTATION_AXES:
+            raise ValueError(f"axes must be one of {ROTATION_AXES}")
+        if rounds < 0:
+            raise ValueError("rounds must be >= 0")
         target = np.asarray(reference, dtype=np.uint8).reshape(-1)
-        ref = prepared_bits(target, layers)
+        ref = prepared_bits(target, rounds)
         n = ref.size
-        letters = ["Y", "Z"] if rotations == "ry_rz" else ["Y"]
+        letters = [a.upper() for a in axes]
         gates: list[PauliGate] = []
         native: list[tuple[str, tuple[int, ...], int]] = []
         n_params = 0
@@ -89,7 +89,7 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
                     n_params += 1
 
         rotation_layer()
-        for _ in range(int(layers)):
+        for _ in range(int(rounds)):
             for c in range(n - 1):
                 t = c + 1
                 for qubits, offset in (
@@ -101,8 +101,8 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
                     gates.append(PauliGate(x, z, -1, 0.0, offset))
                 native.append(("cx", (c, t), -1))
             rotation_layer()
-        self.layers = int(layers)
-        self.rotations = rotations
+        self.rounds = int(rounds)
+        self.axes = axes
         self.target_reference = target
         self._native = native
         super().__init__(hamiltonian, ref, gates, n_params, init_scale=init_scale, seed=seed)
@@ -130,8 +130,8 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
         ``prepared_bits`` the basis state the ``x`` gates prepare."""
         out = super().meta()
         out.update(
-            layers=self.layers,
-            rotations=self.rotations,
+            rounds=self.rounds,
+            axes=self.axes,
             reference_bits=[int(b) for b in self.target_reference],
             prepared_bits=[int(b) for b in self.reference],
         )

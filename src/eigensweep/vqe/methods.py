@@ -6,7 +6,7 @@ engine its views of it:
 
 * :data:`ANSATZ_DEFAULTS`, :data:`OPTIMIZER_DEFAULTS`, :data:`ESTIMATOR_DEFAULTS`: name ->
   options with defaults (``name`` not included), :data:`MAPPINGS`, :data:`POOLS`,
-  :data:`ROTATION_SETS`, all read from the schema;
+  :data:`ROTATION_AXES`, all read from the schema;
 * :func:`validate_method` / :func:`validate_options` / :func:`validate_estimator`: fill the
   defaults of one entry and check it against the schema;
 * :func:`check_combination`: the (ansatz, taper, mapping, optimizer, estimator) rules.
@@ -38,7 +38,7 @@ __all__ = [
     "MAPPINGS",
     "OPTIMIZER_DEFAULTS",
     "POOLS",
-    "ROTATION_SETS",
+    "ROTATION_AXES",
     "check_combination",
     "check_mapping",
     "validate_estimator",
@@ -74,8 +74,8 @@ MAPPINGS: tuple[str, ...] = tuple(
 POOLS: tuple[str, ...] = _enum("ansatz", "adapt", "pool")
 """ADAPT-VQE operator pools (:mod:`eigensweep.vqe.adapt`)."""
 
-ROTATION_SETS: tuple[str, ...] = _enum("ansatz", "hardware_efficient", "rotations")
-"""Rotation layers of the hardware-efficient ansatz (:mod:`eigensweep.vqe.hardware_efficient`)."""
+ROTATION_AXES: tuple[str, ...] = _enum("ansatz", "hardware_efficient", "axes")
+"""Rotation axes of the hardware-efficient ansatz (:mod:`eigensweep.vqe.hardware_efficient`)."""
 
 
 def validate_method(kind: str, cfg: dict[str, Any]) -> dict[str, Any]:

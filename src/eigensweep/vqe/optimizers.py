@@ -18,9 +18,9 @@ Methods (``method=``):
     332 (1992), with the standard gains ``a_k = a/(k + 1 + A)^alpha``,
     ``c_k = c/(k + 1)^gamma`` (``alpha = 0.602``, ``gamma = 0.101``, ``A = 0.1 maxiter``;
     Spall, IEEE Trans. Aerosp. Electron. Syst. 34, 817 (1998)). If ``a`` is not given it is
-    calibrated so that the first step moves each parameter by about ``target_step`` on
-    average, from ``calibration_samples`` gradient estimates at ``x0``. The returned point is
-    the mean of the last ``average_last`` iterates (iterate averaging; 1 = last iterate).
+    calibrated so that the first step moves each parameter by about ``first_step`` on
+    average, from ``gain_estimates`` gradient estimates at ``x0``. The returned point is
+    the mean of the last ``iterate_average`` iterates (iterate averaging; 1 = last iterate).
     SPSA has no convergence test: ``converged`` means the gain schedule ran to the end.
 ``rbf_surrogate``
     Stochastic radial-basis-function surrogate search (Gutmann, J. Global Optim. 19, 201
@@ -31,7 +31,7 @@ Methods (``method=``):
     ``sigma``, per-coordinate perturbation probability ``min(1, 20/d)``) of the best point by
     ``w * surrogate + (1 - w) * (1 - distance)`` (both scaled to [0, 1], weights cycling
     through ``weights``), evaluates the best-scored candidate, doubles ``sigma`` after
-    ``success_tolerance`` consecutive improvements and halves it after ``fail_tolerance``
+    ``widen_after`` consecutive improvements and halves it after ``narrow_after``
     consecutive failures (an improvement is a value below the best so far; with
     ``smoothing > 0`` "best" is the lowest *fitted* value at the evaluated points, which is
     less biased by noise than the lowest raw value). Stops (``converged``) when
@@ -272,11 +272,11 @@ def _spsa(rec: _Recorder, x0: np.ndarray, opts: dict, seed: int) -> OptimizerRes
 
     a = opts["a"]
     if a is None:
-        mags = [np.mean(np.abs(grad_estimate(x, c))) for _ in range(opts["calibration_samples"])]
+        mags = [np.mean(np.abs(grad_estimate(x, c))) for _ in range(opts["gain_estimates"])]
         mag = float(np.mean(mags))
-        a = opts["target_step"] * (big_a + 1.0) ** alpha / mag if mag > 0 else opts["target_step"]
+        a = opts["first_step"] * (big_a + 1.0) ** alpha / mag if mag > 0 else opts["first_step"]
     history: list[np.ndarray] = []
-    keep = opts["average_last"]
+    keep = opts["iterate_average"]
     for k in range(maxiter):
         ak = a / (k + 1.0 + big_a) ** alpha
         ck = c / (k + 1.0) ** gamma
@@ -344,8 +344,8 @@ def _rbf_surrogate(rec: _Recorder, x0: np.ndarray, opts: dict, seed: int) -> Opt
     n_init = opts["n_initial"] if opts["n_initial"] is not None else 2 * (d + 1)
     n_init = max(min(n_init, budget), 1)
     n_cand = opts["n_candidates"] if opts["n_candidates"] is not None else min(100 * d, 2000)
-    fail_tol = opts["fail_tolerance"] if opts["fail_tolerance"] is not None else max(5, d)
-    succ_tol = opts["success_tolerance"]
+    fail_tol = opts["narrow_after"] if opts["narrow_after"] is not None else max(5, d)
+    succ_tol = opts["widen_after"]
     weights = opts["weights"]
     smoothing = opts["smoothing"]
     sigma_max = 2.0 * radius
