@@ -18,6 +18,13 @@ from .errors import EigensweepError
 from .stage_table import STAGE_NAMES
 
 DEFAULT_CONFIG = "config/config.yaml"
+EXIT_CODES = """exit status:
+  0    success
+  1    the sweep stopped with errors (see the lines above and logs/<stage>/<key>.log)
+  2    bad input: a one-line message names the file or key and what to do
+  130  interrupted (Ctrl-C); finished stages are kept, rerun to resume
+  141  the output pipe was closed (e.g. eigensweep plan | head)
+"""
 
 
 def _default_config() -> Path:
@@ -78,9 +85,28 @@ def cmd_plan(args) -> int:
             f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}"
         )
     _print_costs(plan, results)
+    _print_waiting(plan)
     if args.verbose:
         print("\n".join(lines))
     return 0
+
+
+def _print_waiting(plan) -> None:
+    """Device jobs exported for an external device that still wait for returned counts."""
+    from .stage_table import job_folder
+
+    waiting = [ex for ex in plan.exports if not ex.get("key_reconcile")]
+    if not waiting:
+        return
+    print(
+        f"\n{len(waiting)} device job(s) await returned counts "
+        "(eigensweep counts-template <key> writes an answer skeleton):"
+    )
+    for ex in waiting:
+        print(
+            f"  {ex['molecule']} {ex['point']} {ex['mapping']} tapered={ex['tapered']} "
+            f"{ex['ansatz']} {ex['optimizer']}: {job_folder(ex['key_export'])}/"
+        )
 
 
 def _print_costs(plan, results: Path) -> None:
@@ -193,6 +219,7 @@ def _run_locked(args, path: Path, plan, locked: bool) -> int:
         print(
             f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/"
         )
+        _print_waiting(plan)
     return 0
 
 
@@ -251,6 +278,7 @@ def cmd_show(args) -> int:
 
 def cmd_report(args) -> int:
     path, cfg, plan = _load_plan(args.config)
+    print(f"eigensweep: report of the sweep of {path}", flush=True)
     args.profile, args.cores, args.dry_run, args.snakemake_args = (
         "local",
         1,
@@ -309,25 +337,33 @@ def cmd_verify(args) -> int:
     return 0
 
 
-def cmd_import_counts(args) -> int:
-    from .device import import_results
+def _job_folder(job: str) -> Path:
+    """The exported job folder named by ``job``: a folder, its ``.h5`` or an export key;
+    its export stage file is verified."""
+    from .stage_table import job_folder
     from .store import read_stage
 
-    folder = Path(args.job)
+    folder = Path(job)
     if folder.suffix == ".h5":
         folder = folder.with_suffix("")
     if not (folder / "manifest.json").is_file():
-        candidate = Path("results") / "export" / args.job
-        if (candidate / "manifest.json").is_file():
-            folder = candidate
-        else:
+        candidate = job_folder(job)
+        if not (candidate / "manifest.json").is_file():
             raise EigensweepError(
-                f"{args.job}: no exported job there (manifest.json missing); give results/export/<key> "
-                "or the export key from results/device_summary.csv"
+                f"{job[:60]}: no exported job there (manifest.json missing); give results/export/<key> "
+                "or the export key from results/device_summary.csv or 'eigensweep plan'"
             )
-    key = folder.name
-    read_stage(folder.with_suffix(".h5"), stage="export", key=key)
-    dest = Path("results") / "returned" / f"{key}.json"
+        folder = candidate
+    read_stage(folder.with_suffix(".h5"), stage="export", key=folder.name)
+    return folder
+
+
+def cmd_import_counts(args) -> int:
+    from .device import import_results
+    from .stage_table import returned_path
+
+    folder = _job_folder(args.job)
+    dest = returned_path(folder.name)
     import_results(args.file, folder, dest)
     print(
         f"eigensweep: imported {args.file} -> {dest}; the next 'eigensweep run' reconciles this point "
@@ -336,14 +372,46 @@ def cmd_import_counts(args) -> int:
     return 0
 
 
+def cmd_counts_template(args) -> int:
+    from .device import normalise_results
+    from .device.manifest import load_manifest
+    from .store import atomic_write_text
+
+    folder = _job_folder(args.job)
+    manifest = load_manifest(folder)
+    out = Path(args.output or f"{folder.name}-counts.json")
+    if out.exists():
+        raise EigensweepError(f"{out}: already exists; choose another --output or move it away")
+    empty = {rec["circuit_id"]: {} for rec in manifest["circuits"]}
+    template = normalise_results(empty, manifest, device="")
+    atomic_write_text(out, json.dumps(template, indent=1) + "\n")
+    print(
+        f"eigensweep: wrote {out} for job {folder} ({len(empty)} circuits, ids and SHA-256 filled "
+        "in); fill each 'counts' with the measured bitstrings (qubit 0 first, docs/counts-format.md) "
+        f"and 'device', then: eigensweep import-counts {out} --job {folder.name}"
+    )
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser(
-        prog="eigensweep", description="Cached variational-eigensolver sweeps for molecules."
+        prog="eigensweep",
+        description="Cached variational-eigensolver sweeps for molecules.",
+        epilog=EXIT_CODES,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
+    # --debug is accepted after the subcommand too (SUPPRESS keeps the top-level value)
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument(
+        "--debug", action="store_true", default=argparse.SUPPRESS, help="show tracebacks"
+    )
     sub = ap.add_subparsers(dest="command", required=True)
 
-    p = sub.add_parser("run", help="run the sweep (Snakemake), computing only what is not cached")
+    def add(name: str, **kw) -> argparse.ArgumentParser:
+        return sub.add_parser(name, parents=[common], **kw)
+
+    p = add("run", help="run the sweep (Snakemake), computing only what is not cached")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("--cores", type=int, help="cores to use (default: all)")
     p.add_argument("--profile", help="Snakemake profile: local (default), slurm, or a folder")
@@ -351,19 +419,19 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
     p.set_defaults(func=cmd_run)
 
-    p = sub.add_parser("plan", help="list the stage jobs of a sweep: cached or pending")
+    p = add("plan", help="list the stage jobs of a sweep: cached or pending")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
     p.set_defaults(func=cmd_plan)
 
-    p = sub.add_parser("report", help="write the Snakemake HTML report of a finished sweep")
+    p = add("report", help="write the Snakemake HTML report of a finished sweep")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument(
         "--output", default="results/report.html", help="report file (default results/report.html)"
     )
     p.set_defaults(func=cmd_report)
 
-    p = sub.add_parser(
+    p = add(
         "archive",
         help="pack exactly this sweep (plan's stage files, regenerated tables and plots, "
         "workflow, environment) into a runnable tar.gz",
@@ -379,7 +447,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--license", help="licence of the archived data, e.g. CC-BY-4.0")
     p.set_defaults(func=cmd_archive)
 
-    p = sub.add_parser(
+    p = add(
         "verify",
         help="check an archive: hashes, plan, re-derived tables; re-run stage jobs from it",
     )
@@ -394,7 +462,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--all", action="store_true", help="re-run every stage job (slow)")
     p.set_defaults(func=cmd_verify)
 
-    p = sub.add_parser(
+    p = add(
         "import-counts", help="check returned device counts against an exported job and import them"
     )
     p.add_argument(
@@ -403,7 +471,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--job", required=True, help="export key or folder results/export/<key>")
     p.set_defaults(func=cmd_import_counts)
 
-    p = sub.add_parser("show", help="provenance and contents of a stage file")
+    p = add(
+        "counts-template",
+        help="write an answer skeleton for an exported device job (ids and hashes filled in)",
+    )
+    p.add_argument("job", help="export key or folder results/export/<key>")
+    p.add_argument("--output", help="file to write (default <export key>-counts.json)")
+    p.set_defaults(func=cmd_counts_template)
+
+    p = add("show", help="provenance and contents of a stage file")
     p.add_argument("file")
     p.set_defaults(func=cmd_show)
     return ap
@@ -425,6 +501,12 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("eigensweep: interrupted; finished stages are kept, rerun to resume", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader went away (eigensweep plan | head): stop quietly; send what is still
+        # buffered to /dev/null so the interpreter's final flush does not fail again
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141
 
 
 if __name__ == "__main__":  # pragma: no cover
