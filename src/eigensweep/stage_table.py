@@ -79,7 +79,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "taper",
-        1,
+        2,
         "run_taper",
         {"hamiltonian": "hamiltonian", "integrals": "integrals"},
         ("stage",),

@@ -169,15 +169,27 @@ def run_hamiltonian(
 
 
 def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
-    """Z2 tapering (or the identity stage that records 'no tapering')."""
-    from .qubit import PauliSum, no_taper, qwc_groups, shots_for_precision, taper
+    """Z2 tapering (or the identity stage that records 'no tapering').
+
+    Reads the Hamiltonian, reference bits and number / S_z operators the hamiltonian stage
+    stored; writes the (tapered) problem, the tapered number and S_z operators, and the Z2
+    generators with their sector (``z2/``, also when tapering is off) for later stages.
+    """
+    from .qubit import PauliSum, no_taper, qwc_groups, shots_for_precision, taper, z2_symmetries
     from .qubit.statevector import basis_state
 
     sd = read_stage(inputs["hamiltonian"], stage="hamiltonian")
     ham = PauliSum.from_store(sd.arrays, "hamiltonian/")
     ref = sd.arrays["reference_bits"]
     with Timer() as t:
-        res = taper(ham, ref) if node.params["taper"] else no_taper(ham, ref)
+        if node.params["taper"]:
+            res = taper(ham, ref)
+            z2, z2_sector = res.generators, res.sector
+        else:
+            res = no_taper(ham, ref)
+            z2, _, z2_sector = z2_symmetries(ham, ref)
+        number = res.taper_operator(PauliSum.from_store(sd.arrays, "number/"))
+        spin_z = res.taper_operator(PauliSum.from_store(sd.arrays, "spin_z/"))
         # measurement cost of the problem the optimizer and the device will see
         tham = res.hamiltonian
         groups = qwc_groups(tham)
@@ -190,7 +202,13 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
             node.key,
             taper=res if node.params["taper"] else None,
         )
-    arrays = res.to_store("taper/")
+    arrays = {
+        **res.to_store("taper/"),
+        **number.to_store("number/"),
+        **spin_z.to_store("spin_z/"),
+        **z2.to_store("z2/generators/"),
+        "z2/sector": np.asarray(z2_sector, dtype=np.int8),
+    }
     meta = {
         "mapping": sd.meta["mapping"],
         "nelec": sd.meta["nelec"],
@@ -200,6 +218,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         "n_qubits": res.hamiltonian.n_qubits,
         "n_terms": res.hamiltonian.n_terms,
         "sector": [int(v) for v in res.sector],
+        "n_z2_symmetries": int(z2.n_terms),
         "one_norm": float(tham.one_norm_nonidentity),
         "n_qwc_groups": len(groups),
         "shots_one_norm_bound": int(shots["shots_one_norm_bound"]),
@@ -209,8 +228,16 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         ),
     }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
-    units = {"taper/hamiltonian_coeffs": "hartree"}
+    units = {"taper/hamiltonian_coeffs": "hartree", "spin_z/coeffs": "hbar"}
     _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
+
+
+def load_z2_symmetries(sd):
+    """The Z2 generators (on the untapered qubits) and sector a taper stage file stores."""
+    from .qubit import PauliSum
+
+    gens = PauliSum.from_store(sd.arrays, "z2/generators/")
+    return gens, np.asarray(sd.arrays["z2/sector"], dtype=np.int8)
 
 
 def run_optimize(
@@ -356,15 +383,9 @@ def run_reconcile(
             counts = {cid: r["counts"] for cid, r in returned["results"].items()}
         else:
             counts = load_results(inputs["counts"], manifest)
-        if tap.generators.n_terms == 0:
-            # untapered job: verify with the Z2 symmetries tapering would have removed
-            from .qubit import taper
-
-            sym = taper(tap.hamiltonian, tap.reference_bits)
-            generators, sector = sym.generators, sym.sector
-        else:
-            # tapered job: its symmetries were removed with the qubits; nothing left to verify
-            generators, sector = None, None
+        # the Z2 symmetries the taper stage stored: they verify an untapered job's counts; a
+        # tapered job's were removed with their qubits (reconcile notes that and skips them)
+        generators, sector = load_z2_symmetries(tap_sd)
         res = reconcile(
             manifest,
             counts,

@@ -35,7 +35,7 @@ from .statevector import (
     expectation,
     simulate,
 )
-from .taper import TaperResult, find_z2_symmetries, no_taper, taper
+from .taper import TaperResult, find_z2_symmetries, no_taper, taper, z2_symmetries
 
 __all__ = [
     "MAPPINGS",
@@ -64,4 +64,5 @@ __all__ = [
     "simulate",
     "sz_operator",
     "taper",
+    "z2_symmetries",
 ]

@@ -38,7 +38,7 @@ from .pauli import PauliSum, pauli_product, symplectic_inner
 
 _I_POWERS = np.array([1.0, 1j, -1.0, -1j])  # i^k, exact
 
-__all__ = ["TaperResult", "find_z2_symmetries", "taper", "no_taper"]
+__all__ = ["TaperResult", "find_z2_symmetries", "no_taper", "taper", "z2_symmetries"]
 
 
 def find_z2_symmetries(ham: PauliSum) -> PauliSum:
@@ -233,19 +233,23 @@ def _check_reference(ham: PauliSum, bits: np.ndarray) -> np.ndarray:
     return b.astype(np.uint8)
 
 
-def taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
-    """Taper off one qubit per Z-only Z2 symmetry (arXiv:1701.08213).
+def z2_symmetries(
+    ham: PauliSum, reference_bits: np.ndarray
+) -> tuple[PauliSum, np.ndarray, np.ndarray]:
+    """The Z-only Z2 symmetry generators of ``ham``, their pivot qubits and their sector.
+
+    These are what :func:`taper` removes; the taper stage stores them also when tapering is
+    off, so that symmetry verification of device counts reads them instead of recomputing.
 
     Args:
         ham: qubit Hamiltonian.
-        reference_bits: 0/1 computational-basis state (e.g. Hartree–Fock under the same mapping)
-            whose symmetry eigenvalues fix the sector.
+        reference_bits: 0/1 computational-basis state fixing the sector.
 
     Returns:
-        :class:`TaperResult`. Symmetries with ``X``/``Y`` letters are not tapered (warning).
-
-    Example:
-        H2/STO-3G, Jordan–Wigner: 3 generators, 4 qubits -> 1.
+        ``(generators, pivots, sector)``: coefficient-1 Z strings in reduced row-echelon form
+        (:func:`find_z2_symmetries`), the pivot (highest) qubit of each, and the int8
+        eigenvalue ``(-1)^{b . z_i}`` of each on the reference. Symmetries with ``X``/``Y``
+        letters are left out (warning).
     """
     bits = _check_reference(ham, reference_bits)
     gens = find_z2_symmetries(ham)
@@ -262,6 +266,25 @@ def taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
     # RREF from the highest qubit: the pivot of generator i is its highest Z and is unique to it
     parity = (gens.z.astype(np.int64) @ bits.astype(np.int64)) & 1
     sector = (1 - 2 * parity).astype(np.int8)
+    return gens, pivots, sector
+
+
+def taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
+    """Taper off one qubit per Z-only Z2 symmetry (arXiv:1701.08213).
+
+    Args:
+        ham: qubit Hamiltonian.
+        reference_bits: 0/1 computational-basis state (e.g. Hartree–Fock under the same mapping)
+            whose symmetry eigenvalues fix the sector.
+
+    Returns:
+        :class:`TaperResult`. Symmetries with ``X``/``Y`` letters are not tapered (warning).
+
+    Example:
+        H2/STO-3G, Jordan–Wigner: 3 generators, 4 qubits -> 1.
+    """
+    bits = _check_reference(ham, reference_bits)
+    gens, pivots, sector = z2_symmetries(ham, bits)
     tapered = _rotate_and_project(ham, gens, pivots, sector)
     kept = np.setdiff1d(np.arange(ham.n_qubits), pivots)
     return TaperResult(
