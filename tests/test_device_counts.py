@@ -242,3 +242,23 @@ def test_huge_counts_are_refused(job_folder, tmp_path, count):
     with pytest.raises(ResultsFileError, match="2\\*\\*53") as err:
         load_results(src, folder)
     assert "\n" not in str(err.value) and len(str(err.value)) < 300
+
+
+def test_qubit0_right_imports_reversed_bitstrings(job_folder, tmp_path):
+    # reference: docs/counts-format.md (character k = qubit k); many tools print a register
+    # highest bit first (common practice), i.e. the same counts with every bitstring reversed
+    folder, good = job_folder
+    flipped = copy.deepcopy(good)
+    for rec in flipped["results"].values():
+        rec["counts"] = {b[::-1]: c for b, c in rec["counts"].items()}
+    src = tmp_path / "flipped.json"
+    src.write_text(json.dumps(flipped))
+    assert load_results(src, folder, qubit0="right") == validate_results(
+        good, load_manifest(folder)
+    )
+    assert load_results(src, folder) != load_results(src, folder, qubit0="right")
+    ours = import_results(write_results(good, tmp_path / "good.json"), folder, tmp_path / "a.json")
+    theirs = import_results(src, folder, tmp_path / "b.json", qubit0="right")
+    assert ours.read_text() == theirs.read_text()
+    with pytest.raises(ResultsFileError, match="qubit0"):
+        load_results(src, folder, qubit0="middle")

@@ -364,7 +364,7 @@ def cmd_import_counts(args) -> int:
 
     folder = _job_folder(args.job)
     dest = returned_path(folder.name)
-    import_results(args.file, folder, dest)
+    import_results(args.file, folder, dest, qubit0=args.qubit0)
     print(
         f"eigensweep: imported {args.file} -> {dest}; the next 'eigensweep run' reconciles this point "
         "(config device.kind must be external)"
@@ -469,6 +469,14 @@ def build_parser() -> argparse.ArgumentParser:
         "file", help="returned results in eigensweep's JSON format (docs/counts-format.md)"
     )
     p.add_argument("--job", required=True, help="export key or folder results/export/<key>")
+    p.add_argument(
+        "--qubit0",
+        choices=("left", "right"),
+        default="left",
+        help="which end of each returned bitstring is qubit 0: left (eigensweep's order, the "
+        "default) or right (tools that print a register highest bit first); right is "
+        "reversed on import",
+    )
     p.set_defaults(func=cmd_import_counts)
 
     p = add(

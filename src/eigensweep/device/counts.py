@@ -31,6 +31,7 @@ __all__ = [
     "RESULTS_FORMAT_VERSION",
     "RESULTS_SCHEMA",
     "DEFAULT_MAX_BYTES",
+    "QUBIT0_ENDS",
     "load_results",
     "validate_results",
     "normalise_results",
@@ -256,8 +257,14 @@ def _read(path: Path, max_bytes: int):
         raise _Bad("is nested too deeply to be a results file; check the file") from None
 
 
+#: Which end of a returned bitstring holds qubit 0: ``left`` is eigensweep's own order
+#: (character k = qubit k); ``right`` is the order of tools that print a classical register
+#: highest bit first. Files read with ``right`` are reversed on import.
+QUBIT0_ENDS = ("left", "right")
+
+
 def load_results(
-    path: str | Path, manifest, *, max_bytes: int = DEFAULT_MAX_BYTES
+    path: str | Path, manifest, *, max_bytes: int = DEFAULT_MAX_BYTES, qubit0: str = "left"
 ) -> dict[str, dict[str, int]]:
     """Load and validate a results file; return ``{circuit_id: {bitstring: count}}``.
 
@@ -265,14 +272,35 @@ def load_results(
     Refused with one-line :class:`ResultsFileError`: unreadable / not JSON / too large, wrong
     format name or version, job_id mismatch, unknown or missing circuit id, sha256 mismatch,
     bitstring of wrong length or with characters other than 0/1, negative, non-integer or
-    boolean counts, duplicate keys, and circuits with zero shots.
+    boolean counts, duplicate keys, and circuits with zero shots. ``qubit0="right"`` reads
+    a file whose bitstrings have qubit 0 as their last character (:data:`QUBIT0_ENDS`).
     """
-    return _load(Path(path), _manifest_dict(manifest), max_bytes)[1]
+    return _load(Path(path), _manifest_dict(manifest), max_bytes, qubit0)[1]
 
 
-def _load(path: Path, manifest: dict, max_bytes: int) -> tuple[dict, dict[str, dict[str, int]]]:
+def _reversed_bitstrings(data):
+    """``data`` with every bitstring of every circuit's counts reversed (structure kept)."""
+    results = data.get("results") if isinstance(data, dict) else None
+    if not isinstance(results, dict):
+        return data
+    out = dict(data, results=dict(results))
+    for cid, rec in results.items():
+        if isinstance(rec, dict) and isinstance(rec.get("counts"), dict):
+            out["results"][cid] = dict(rec, counts={b[::-1]: c for b, c in rec["counts"].items()})
+    return out
+
+
+def _load(
+    path: Path, manifest: dict, max_bytes: int, qubit0: str = "left"
+) -> tuple[dict, dict[str, dict[str, int]]]:
+    if qubit0 not in QUBIT0_ENDS:
+        raise ResultsFileError(
+            f"qubit0: unknown value {qubit0!r}; allowed: {', '.join(QUBIT0_ENDS)}"
+        )
     try:
         data = _read(path, max_bytes)
+        if qubit0 == "right":
+            data = _reversed_bitstrings(data)
         return data, _validate(data, manifest)
     except _Bad as err:
         raise ResultsFileError(f"{path}: {err}") from None
@@ -299,9 +327,17 @@ def normalise_results(counts: Mapping[str, Mapping[str, int]], manifest, device:
 
 
 def import_results(
-    src: str | Path, job_folder: str | Path, dest: str | Path, *, max_bytes=DEFAULT_MAX_BYTES
+    src: str | Path,
+    job_folder: str | Path,
+    dest: str | Path,
+    *,
+    max_bytes=DEFAULT_MAX_BYTES,
+    qubit0: str = "left",
 ) -> Path:
     """Validate ``src`` against ``job_folder/manifest.json`` and write a normalised copy to ``dest``.
+
+    ``qubit0="right"`` imports a file whose bitstrings end with qubit 0; the copy is written in
+    eigensweep's own order (qubit 0 first).
 
     The write is atomic. An existing ``dest`` with identical content is left as is; a
     different existing file is never overwritten. Nothing is written on any error.
@@ -311,7 +347,7 @@ def import_results(
         manifest = load_manifest(job_folder)
     except StageFileError as err:
         raise ResultsFileError(f"{src}: cannot check it, {err}") from None
-    data, counts = _load(src, manifest, max_bytes)
+    data, counts = _load(src, manifest, max_bytes, qubit0)
     device = data.get("device", "")
     text = json.dumps(normalise_results(counts, manifest, device), indent=1) + "\n"
     if dest.exists():
