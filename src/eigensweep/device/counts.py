@@ -22,7 +22,7 @@ from pathlib import Path
 
 import jsonschema
 
-from eigensweep.device.manifest import DeviceJob, atomic_write_text, load_manifest
+from eigensweep.device.manifest import as_manifest, atomic_write_text, load_manifest
 from eigensweep.errors import ResultsFileError, StageFileError
 from eigensweep.inputs import read_bounded
 
@@ -111,14 +111,6 @@ def _is_int(v) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
 
 
-def _manifest_dict(manifest) -> dict:
-    if isinstance(manifest, DeviceJob):
-        return manifest.to_manifest()
-    if isinstance(manifest, Mapping):
-        return dict(manifest)
-    return load_manifest(manifest)
-
-
 def _schema_problem(err: jsonschema.ValidationError) -> str:
     where = "/".join(str(p) for p in err.absolute_path) or "top level"
     v = err.validator
@@ -139,7 +131,7 @@ def validate_results(data, manifest, name: str = "results") -> dict[str, dict[st
     Raises :class:`ResultsFileError` with one line ``"<name>: <problem>; <what to do>"``.
     """
     try:
-        return _validate(data, _manifest_dict(manifest))
+        return _validate(data, as_manifest(manifest))
     except _Bad as err:
         raise ResultsFileError(f"{name}: {err}") from None
 
@@ -275,7 +267,7 @@ def load_results(
     boolean counts, duplicate keys, and circuits with zero shots. ``qubit0="right"`` reads
     a file whose bitstrings have qubit 0 as their last character (:data:`QUBIT0_ENDS`).
     """
-    return _load(Path(path), _manifest_dict(manifest), max_bytes, qubit0)[1]
+    return _load(Path(path), as_manifest(manifest), max_bytes, qubit0)[1]
 
 
 def _reversed_bitstrings(data):
@@ -308,7 +300,7 @@ def _load(
 
 def normalise_results(counts: Mapping[str, Mapping[str, int]], manifest, device: str) -> dict:
     """Canonical results object: manifest order of circuits, sorted bitstrings, zeros dropped."""
-    man = _manifest_dict(manifest)
+    man = as_manifest(manifest)
     return {
         "format": RESULTS_FORMAT,
         "format_version": RESULTS_FORMAT_VERSION,

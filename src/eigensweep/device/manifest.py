@@ -48,6 +48,7 @@ __all__ = [
     "pauli_labels",
     "default_groups",
     "allocate_shots",
+    "as_manifest",
     "atomic_write_text",
 ]
 
@@ -517,6 +518,15 @@ def write_job(job: DeviceJob, folder: str | Path) -> Path:
     atomic_write_text(folder / "job-summary.md", job.summary)
     text = json.dumps(job.to_manifest(), indent=1, allow_nan=False) + "\n"
     return atomic_write_text(folder / "manifest.json", text)
+
+
+def as_manifest(job) -> dict:
+    """The manifest dict of a :class:`DeviceJob`, a manifest dict, or a job folder / file."""
+    if isinstance(job, DeviceJob):
+        return job.to_manifest()
+    if isinstance(job, Mapping):
+        return dict(job)
+    return load_manifest(job)
 
 
 _MANIFEST_KEYS = ("job_id", "n_qubits", "bit_order", "hamiltonian", "circuits", "scale_factors")

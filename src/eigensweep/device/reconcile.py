@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 from eigensweep.device import mitigation as mit
-from eigensweep.device.manifest import DeviceJob, load_manifest, pauli_labels
+from eigensweep.device.manifest import as_manifest, pauli_labels
 
 __all__ = [
     "EnergyEstimate",
@@ -217,14 +217,6 @@ def _resample(counts: np.ndarray, n_boot: int, rng: np.random.Generator) -> np.n
     return out
 
 
-def _as_manifest(job) -> dict:
-    if isinstance(job, DeviceJob):
-        return job.to_manifest()
-    if isinstance(job, Mapping):
-        return dict(job)
-    return load_manifest(job)
-
-
 def _check_hamiltonian(manifest: dict, ham) -> float:
     """Check the manifest was built for ``ham``; return its identity coefficient."""
     n = int(manifest["n_qubits"])
@@ -314,7 +306,7 @@ def reconcile(
     them, ``n_electrons`` gives the number-parity symmetry ``Z...Z = (-1)^N`` for the
     Jordan-Wigner mapping (``mapping`` None means the project's default, Jordan-Wigner).
     """
-    manifest = _as_manifest(job)
+    manifest = as_manifest(job)
     if "results" in counts and "format" in counts:
         counts = {cid: r["counts"] for cid, r in counts["results"].items()}
     n = int(manifest["n_qubits"])
