@@ -63,7 +63,7 @@ def _spec(name, version, action, parents, outputs, description) -> StageSpec:
 STAGES: tuple[StageSpec, ...] = (
     _spec(
         "integrals",
-        1,
+        2,
         "run_integrals",
         {"guess": "integrals"},
         ("stage",),
@@ -87,7 +87,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "optimize",
-        2,
+        3,
         "run_optimize",
         {"taper": "taper", "integrals": "integrals", "warm": "optimize"},
         ("stage",),

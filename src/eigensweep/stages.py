@@ -80,46 +80,17 @@ def run_integrals(
         output,
         arrays=arrays,
         meta=meta,
-        units={"h1e": "hartree", "eri": "hartree", "mo_energy": "hartree"},
+        units={"h1e": "hartree", "eri": "hartree", "mo_energy": "hartree", "exact_vectors": "1"},
         wall_s=t.seconds,
     )
 
 
-#: Largest qubit count for which stages diagonalise the qubit Hamiltonian in its sector.
-SECTOR_CHECK_MAX_QUBITS = 20
-
-
 def sector_check(ham, ints, mapping: str, key: str, taper=None) -> dict:
-    """Lowest qubit-Hamiltonian eigenvalue in the (N, S_z = S) sector vs the integrals' exact energy.
+    """The integrals' exact state checked in a mapped (and tapered) qubit problem
+    (:func:`eigensweep.vqe.reference.check_qubit_problem`)."""
+    from .vqe.reference import ExactReference, check_qubit_problem
 
-    The qubit sector holds every total spin S' >= S, so its lowest eigenvalue can only be at or
-    below the exact energy of the requested spin state. Above it means the mapping (or
-    tapering) lost the state: that is an error. Below it means a state of another total spin
-    lies lower with the same N and S_z; that is recorded as a note, not an error.
-    """
-    from .qubit import sector_ground_energy
-
-    exact = ints.references.get("casci")
-    if ham.n_qubits > SECTOR_CHECK_MAX_QUBITS or exact is None or not math.isfinite(float(exact)):
-        return {
-            "energy_sector_qubit": None,
-            "sector_check": "skipped (too large or no exact reference)",
-        }
-    n_el = int(sum(ints.nelec))
-    sz = 0.5 * (int(ints.nelec[0]) - int(ints.nelec[1]))
-    e = float(sector_ground_energy(ham, n_electrons=n_el, sz=sz, mapping=mapping, taper=taper))
-    if e > float(exact) + 1e-6:
-        raise StageFileError(
-            f"{key}: the {mapping} qubit Hamiltonian's lowest energy in the N={n_el}, S_z={sz:g} sector "
-            f"({e:.10f} Eh) lies above the exact energy {float(exact):.10f} Eh; the mapping lost the "
-            "state, please report this"
-        )
-    note = (
-        "agrees with the exact energy"
-        if e > float(exact) - 1e-6
-        else ("a state of another total spin lies lower in this N, S_z sector")
-    )
-    return {"energy_sector_qubit": e, "sector_check": note}
+    return check_qubit_problem(ham, ExactReference.from_integrals(ints), mapping, key, taper)
 
 
 def run_hamiltonian(
@@ -245,6 +216,7 @@ def run_optimize(
 ) -> None:
     """Variational optimization of one ansatz x optimizer x estimator on one qubit problem."""
     from .vqe import run_optimize as optimize_kernel
+    from .vqe.reference import ExactReference
 
     p = node.params
     ints = load_integrals(inputs["integrals"])
@@ -275,6 +247,7 @@ def run_optimize(
             initial_params=init,
             seed=p["seed"],
             progress=report,
+            exact=ExactReference.from_integrals(ints),
         )
     if not math.isfinite(res.energy):
         raise StageFileError(

@@ -42,10 +42,11 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from pyscf import ao2mo, cc, fci, gto, lib, mcscf, mp, scf, symm
+from pyscf import ao2mo, cc, gto, lib, mcscf, mp, scf, symm
 from pyscf.scf import hf_symm
 from pyscf.scf import stability as scf_stability
 
+from eigensweep.chem.exact import SectorSolution, n_determinants, solve_sector
 from eigensweep.chem.geometry import (
     ELEMENTS,
     MIN_DISTANCE_ANGSTROM,
@@ -72,20 +73,18 @@ REFERENCE_KEYS: tuple[str, ...] = ("hf", "mp2", "ccsd", "ccsd_t", "casci", "fci"
 #: SCF thresholds: energy change (hartree) and orbital gradient norm.
 SCF_CONV_TOL = 1e-10
 SCF_CONV_TOL_GRAD = 1e-7
-#: FCI/CASCI Davidson energy threshold (hartree); small spaces are diagonalised densely.
-CI_CONV_TOL = 1e-11
-#: Accepted deviation of <S^2> from S(S+1) for an exact eigenstate.
-SPIN_TOL = 1e-4
 #: Internal-stability re-optimisation cycles.
 STABILITY_CYCLES = 3
 #: Up to this many basis functions PySCF runs single-threaded inside compute_integrals ...
 SMALL_NAO = 40
 #: ... except for CI spaces larger than this many determinants, which use all threads.
 LARGE_CI = 20_000
+#: Largest number of CI coefficients (vectors x determinants) stored with the integrals.
+MAX_STORED_EXACT = 4_000_000
 
 _STORE_FORMAT = "eigensweep.integrals"
-_STORE_VERSION = 1
-_ARRAY_KEYS = ("h1e", "eri", "mo_energy", "mo_occ", "mo_coeff")
+_STORE_VERSION = 2
+_ARRAY_KEYS = ("h1e", "eri", "mo_energy", "mo_occ", "mo_coeff", "exact_vectors")
 _META_KEYS = (
     "norb",
     "nelec",
@@ -144,6 +143,10 @@ class IntegralsResult:
         reference_notes: why a rung is ``nan`` or how it was approximated; also
             ``"symmetry"`` when point-group detection failed.
         spin_square: <S^2> of the CASCI state (``nan`` when CASCI was skipped).
+        exact_vectors: ``(k, n_determinants)`` orthonormal flat CI vectors (PySCF string order)
+            spanning the degenerate CASCI ground space of ``references["casci"]`` (the one exact
+            reference, :func:`eigensweep.chem.exact.solve_sector`); ``(0, 0)`` when CASCI was
+            skipped or failed, or the vectors exceed :data:`MAX_STORED_EXACT`.
     """
 
     norb: int
@@ -162,6 +165,12 @@ class IntegralsResult:
     references: dict[str, float]
     reference_notes: dict[str, str] = field(default_factory=dict)
     spin_square: float = float("nan")
+    exact_vectors: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+
+    @property
+    def has_exact_vectors(self) -> bool:
+        """Whether the exact ground space is stored (CASCI computed and small enough)."""
+        return self.exact_vectors.size > 0
 
     def to_store(self) -> tuple[dict[str, np.ndarray], dict]:
         """Split into numpy arrays and JSON-serialisable metadata (plain Python types only).
@@ -245,6 +254,7 @@ class IntegralsResult:
             references={str(k): num(v) for k, v in meta["references"].items()},
             reference_notes={str(k): str(v) for k, v in meta["reference_notes"].items()},
             spin_square=num(meta["spin_square"]),
+            exact_vectors=np.atleast_2d(np.asarray(arrays["exact_vectors"], dtype=np.float64)),
         )
 
 
@@ -771,92 +781,6 @@ def _aufbau_order(mf: scf.hf.SCF, notes: dict) -> None:
 
 
 # --------------------------------------------------------------------------------------------
-# exact diagonalisation in a sector
-# --------------------------------------------------------------------------------------------
-
-
-def n_determinants(norb: int, nelec: tuple[int, int]) -> int:
-    """Number of determinants with ``nelec = (n_alpha, n_beta)`` in ``norb`` spatial orbitals."""
-    return math.comb(norb, nelec[0]) * math.comb(norb, nelec[1])
-
-
-def solve_sector(
-    h1e: np.ndarray,
-    eri: np.ndarray,
-    norb: int,
-    nelec: tuple[int, int],
-    *,
-    ecore: float = 0.0,
-    spin: float | None = None,
-) -> tuple[float, float, np.ndarray]:
-    """Lowest eigenstate of the Hamiltonian with fixed particle numbers and total spin.
-
-    Exact diagonalisation (determinant-based direct CI, Knowles & Handy 1984, as implemented in
-    PySCF ``fci.direct_spin1``; dense diagonalisation for small spaces) with ``n_alpha`` and
-    ``n_beta`` fixed, i.e. Ms = (n_alpha-n_beta)/2.
-    The Ms sector also holds states of every S >= |Ms|, so the total spin is enforced: the
-    lowest 1, then 4, then 12 roots are searched for the lowest one with <S^2> = S(S+1); if none
-    has it, a spin penalty (PySCF ``fix_spin_``) steers the solver and the energy is
-    re-evaluated without the penalty.
-
-    Args:
-        h1e: (norb, norb) one-electron integrals.
-        eri: two-electron integrals (pq|rs), full or packed.
-        norb: spatial orbitals.
-        nelec: (n_alpha, n_beta).
-        ecore: constant added to the energy.
-        spin: target S; default |Ms| = |n_alpha - n_beta| / 2 (the high-spin component).
-
-    Returns:
-        ``(energy, <S^2>, ci_vector)`` with ``energy`` including ``ecore``.
-    """
-    nelec = (int(nelec[0]), int(nelec[1]))
-    s = abs(nelec[0] - nelec[1]) / 2 if spin is None else float(spin)
-    if s < abs(nelec[0] - nelec[1]) / 2 or (2 * s) % 1 or (2 * s - nelec[0] + nelec[1]) % 2:
-        raise ConfigError(
-            f"solve_sector: spin: S={s:g} does not exist in the (n_alpha, n_beta)={nelec} "
-            "sector; S must be >= |n_alpha-n_beta|/2 in integer steps"
-        )
-    target = s * (s + 1)
-    ndet = n_determinants(norb, nelec)
-    h1e = np.asarray(h1e, dtype=np.float64)
-    eri = np.asarray(eri, dtype=np.float64)
-
-    def make_solver() -> fci.direct_spin1.FCISolver:
-        solver = fci.direct_spin1.FCI()
-        solver.verbose = 0
-        solver.conv_tol = CI_CONV_TOL
-        solver.max_cycle = 400
-        solver.max_space = 24
-        return solver
-
-    solver = make_solver()
-    tried = 0
-    for nroots in (1, 4, 12):
-        nroots = min(nroots, ndet)
-        if nroots <= tried:
-            break
-        tried = nroots
-        energies, vectors = solver.kernel(h1e, eri, norb, nelec, nroots=nroots)
-        if nroots == 1:
-            energies, vectors = [energies], [vectors]
-        for e, c in zip(energies, vectors, strict=True):
-            ss = solver.spin_square(c, norb, nelec)[0]
-            if abs(ss - target) < SPIN_TOL:
-                return float(e) + float(ecore), float(ss), np.asarray(c)
-    solver = fci.addons.fix_spin_(make_solver(), shift=0.5, ss=target)
-    _, c = solver.kernel(h1e, eri, norb, nelec)
-    ss = fci.spin_op.spin_square0(c, norb, nelec)[0]
-    if abs(ss - target) >= SPIN_TOL:
-        raise ChemistryError(
-            f"no eigenstate with S={s:g} found in the (n_alpha, n_beta)={nelec} sector "
-            f"(<S^2>={ss:.4f}); check the multiplicity"
-        )
-    e = fci.direct_spin1.energy(h1e, eri, c, norb, nelec)
-    return float(e) + float(ecore), float(ss), np.asarray(c)
-
-
-# --------------------------------------------------------------------------------------------
 # correlated references
 # --------------------------------------------------------------------------------------------
 
@@ -1001,7 +925,7 @@ def _full_space_fci(
     eri = ao2mo.restore(1, ao2mo.full(mf.mol, mo), nmo)
     try:
         with lib.with_omp_threads(threads if ndet > LARGE_CI else None):
-            refs["fci"] = solve_sector(h1e, eri, nmo, nelec, ecore=mf.energy_nuc())[0]
+            refs["fci"] = solve_sector(h1e, eri, nmo, nelec, ecore=mf.energy_nuc()).energy
     except Exception as err:
         notes["fci"] = f"failed: {_reason(err)}"
 
@@ -1129,6 +1053,7 @@ def _compute(
     _correlated(mf, ncore, ncas, refs, notes)
 
     spin_square = float("nan")
+    exact_vectors = np.zeros((0, 0))
     ndet = n_determinants(ncas, nelecas)
     if ndet > fci_max_determinants:
         notes["casci"] = (
@@ -1137,8 +1062,14 @@ def _compute(
     else:
         try:
             with lib.with_omp_threads(threads if ndet > LARGE_CI else None):
-                e_cas, spin_square, _ = solve_sector(h1e, eri, ncas, nelecas, ecore=e_core)
-            refs["casci"] = float(e_cas)
+                sol: SectorSolution = solve_sector(h1e, eri, ncas, nelecas, ecore=e_core)
+            refs["casci"], spin_square = sol.energy, sol.spin_square
+            if sol.vectors.size <= MAX_STORED_EXACT:
+                exact_vectors = sol.vectors
+            else:
+                _add_note(notes, "casci", "ground-state vectors too large to store")
+            if sol.degeneracy > 1:
+                _add_note(notes, "casci", f"{sol.degeneracy}-fold degenerate ground state")
         except Exception as err:
             notes["casci"] = f"failed: {_reason(err)}"
 
@@ -1173,4 +1104,5 @@ def _compute(
         references=refs,
         reference_notes=notes,
         spin_square=float(spin_square),
+        exact_vectors=exact_vectors,
     )

@@ -132,6 +132,50 @@ class TaperResult:
             )
         return _rotate_and_project(op, self.generators, self.qubits_removed, self.sector)
 
+    def taper_state(self, psi: np.ndarray) -> np.ndarray:
+        """The tapered image of a statevector on :attr:`n_qubits_before` qubits in the sector.
+
+        Applies the same Clifford ``U = prod_i (tau_i + X_{q_i}) / sqrt(2)`` as
+        :meth:`taper_operator` (the factors commute) and projects each removed qubit ``q_i``
+        onto the ``X`` eigenstate of eigenvalue ``sector[i]``; for a state inside the sector
+        the result has the same norm. Qubit 0 is the most significant bit.
+        """
+        psi = np.asarray(psi, dtype=np.complex128).reshape(-1)
+        n = self.n_qubits_before
+        if psi.size != 1 << n:
+            raise ConfigError(f"state has {psi.size} amplitudes, the tapering needs {1 << n}")
+        idx = np.arange(psi.size, dtype=np.int64)
+        for i in range(self.generators.n_terms):
+            psi = self._clifford_factor(psi, idx, i)
+        t = psi.reshape((2,) * n) if n else psi
+        for q, s in sorted(zip(self.qubits_removed, self.sector, strict=True), reverse=True):
+            t = (np.take(t, 0, axis=int(q)) + float(s) * np.take(t, 1, axis=int(q))) / np.sqrt(2)
+        return np.ascontiguousarray(t).reshape(-1)
+
+    def untaper_state(self, phi: np.ndarray) -> np.ndarray:
+        """Inverse of :meth:`taper_state`: the full statevector of a tapered state."""
+        phi = np.asarray(phi, dtype=np.complex128).reshape(-1)
+        if phi.size != 1 << self.n_qubits:
+            raise ConfigError(f"state has {phi.size} amplitudes, the tapering {1 << self.n_qubits}")
+        t = phi.reshape((2,) * self.n_qubits) if self.n_qubits else phi
+        for q, s in sorted(zip(self.qubits_removed, self.sector, strict=True)):
+            t = np.stack([t, float(s) * t], axis=int(q)) / np.sqrt(2)
+        psi = np.ascontiguousarray(t).reshape(-1)
+        idx = np.arange(psi.size, dtype=np.int64)
+        for i in range(self.generators.n_terms):
+            psi = self._clifford_factor(psi, idx, i)
+        return psi
+
+    def _clifford_factor(self, psi: np.ndarray, idx: np.ndarray, i: int) -> np.ndarray:
+        """``(tau_i + X_{q_i}) / sqrt(2)`` on a statevector (``tau_i`` is a Z string)."""
+        n = self.n_qubits_before
+        parity = np.zeros_like(idx)
+        for q in np.flatnonzero(self.generators.z[i]):
+            parity ^= (idx >> (n - 1 - int(q))) & 1
+        sign = 1.0 - 2.0 * parity
+        flip = idx ^ (1 << (n - 1 - int(self.qubits_removed[i])))
+        return (sign * psi + psi[flip]) / np.sqrt(2)
+
     def to_store(self, prefix: str = "taper_") -> dict[str, np.ndarray]:
         """Arrays for a stage file (flat names, ``prefix`` prepended)."""
         if not isinstance(prefix, str):

@@ -48,7 +48,7 @@ from ..errors import ConfigError
 from ..qubit.mapping import encode_state
 from ..qubit.mapping import reference_bits as mapped_reference_bits
 from .circuits import circuit_from_meta
-from .detspace import DetSpace, fci_ground_state, to_qubit_state
+from .detspace import DetSpace, to_qubit_state
 from .fermionic import FermionicAnsatz
 from .kupccgsd import KUpCCGSD
 from .methods import (
@@ -61,6 +61,7 @@ from .methods import (
     validate_method,
 )
 from .optimizers import minimize
+from .reference import ExactReference, state_moments
 from .uccsd import UCCSD
 
 if TYPE_CHECKING:
@@ -72,7 +73,9 @@ __all__ = [
     "ANSATZ_DEFAULTS",
     "ESTIMATOR_DEFAULTS",
     "OPTIMIZER_DEFAULTS",
+    "ExactReference",
     "OptimizeResult",
+    "SPIN_MISMATCH_TOL",
     "check_combination",
     "run_optimize",
     "validate_method",
@@ -83,13 +86,17 @@ __all__ = [
 class OptimizeResult:
     """Outcome of :func:`run_optimize` (energies in hartree).
 
-    ``trace_*`` arrays have one entry per objective evaluation. ``overlap_exact`` is
-    ``|<psi|ground>|^2`` with the exact ground state of the ``nelec`` sector (PySCF FCI, written
-    in the mapping's encoding for untapered statevectors; for a tapered problem or a
-    user-given operator: the weight in the operator's lowest eigenspace when its eigenvalue
-    equals the determinant-space FCI energy to 1e-6 Eh, up to 16 qubits), or nan when it cannot
-    be formed. ``n_qubits``, ``cnot_count`` and ``depth`` are those of the circuit that is run
-    (tapered qubits for a tapered problem), compiled at the optimized parameters exactly as the
+    ``trace_*`` arrays have one entry per objective evaluation. ``energy_exact`` is the exact
+    reference of the integrals (lowest energy with the requested N and total spin S,
+    :func:`eigensweep.chem.exact.solve_sector`), ``overlap_exact`` the state's weight in its
+    (possibly degenerate) ground space, carried to the ansatz's frame (determinant space,
+    the mapping's encoding, or tapered): :mod:`eigensweep.vqe.reference`; nan when the
+    reference is unknown or the problem is a user-given operator. ``n_electrons`` and
+    ``spin_square`` are ``<N>`` and ``<S^2>`` of the optimized state; ``spin_mismatch`` is true
+    when ``<S^2>`` differs from ``S(S+1)`` of the reference by more than
+    :data:`SPIN_MISMATCH_TOL` or ``<N>`` from the electron count by as much.
+    ``n_qubits``, ``cnot_count`` and ``depth`` are those of the circuit that is run (tapered
+    qubits for a tapered problem), compiled at the optimized parameters exactly as the
     export stage writes it (:func:`~eigensweep.vqe.circuits.circuit_from_meta`; rotations left at
     zero angle are left out).
     """
@@ -113,6 +120,10 @@ class OptimizeResult:
     overlap_exact: float
     energy_exact: float
     ansatz_meta: dict
+    n_electrons: float = math.nan
+    spin_square: float = math.nan
+    spin_square_target: float = math.nan
+    spin_mismatch: bool = False
 
     _ARRAYS = ("params", "trace_energy", "trace_grad_norm", "trace_shots")
 
@@ -136,44 +147,12 @@ class OptimizeResult:
         for f in fields(cls):
             if f.name in cls._ARRAYS:
                 kw[f.name] = np.asarray(arrays[f.name])
-            else:
+            elif f.name in meta:
                 v = meta[f.name]
-                if f.name in (
-                    "energy",
-                    "energy_stderr",
-                    "energy_exact_at_params",
-                    "wall_s",
-                    "overlap_exact",
-                    "energy_exact",
-                ):
+                if f.type in ("float", float):
                     v = math.nan if v is None else float(v)
                 kw[f.name] = v
         return cls(**kw)
-
-
-def _qubit_ground_overlap(
-    psi: np.ndarray, ham: PauliSum, e_fci: float, max_qubits: int = 16
-) -> float:
-    """Weight of ``psi`` in the lowest eigenspace of a (possibly tapered or non-JW) qubit
-    operator, if that eigenvalue is the sector FCI energy (1e-6 Eh); nan otherwise or above
-    ``max_qubits`` qubits."""
-    if ham.n_qubits > max_qubits:
-        return math.nan
-    mat = ham.to_sparse()
-    dim = mat.shape[0]
-    if dim <= 256:
-        vals, vecs = np.linalg.eigh(mat.toarray())
-        vals, vecs = vals[:4], vecs[:, :4]
-    else:
-        from scipy.sparse.linalg import eigsh
-
-        vals, vecs = eigsh(mat, k=4, which="SA", tol=1e-12)
-        order = np.argsort(vals)
-        vals, vecs = vals[order], vecs[:, order]
-    if abs(vals[0] - e_fci) > 1e-6:
-        return math.nan
-    ground = vecs[:, np.abs(vals - vals[0]) < 1e-8]
-    return float(np.sum(np.abs(ground.conj().T @ psi) ** 2))
 
 
 def _mapped_hamiltonian(
@@ -232,27 +211,26 @@ def _check_mapping_frame(
     tapering: TaperResult,
     space: DetSpace,
     mapping: str,
-    c_fci: np.ndarray,
-    e_fci: float,
+    exact: ExactReference,
 ) -> None:
     """ConfigError unless ``tapering`` was built under ``mapping``.
 
     Tapered fermionic ansatz: at a fixed test point it must give the determinant-space energy
     of the same excitations (under a wrong mapping they become other strings; a tapered
     qubit-space ansatz does not depend on the mapping). Untapered (up to
-    :data:`_FRAME_CHECK_MAX_QUBITS` qubits): the FCI vector written in ``mapping``'s encoding
-    must have the FCI energy under ``tapering.hamiltonian`` (the operator that shots sample,
+    :data:`_FRAME_CHECK_MAX_QUBITS` qubits): the exact vector written in ``mapping``'s encoding
+    must have the exact energy under ``tapering.hamiltonian`` (the operator that shots sample,
     hardware-efficient circuits run on and overlaps are taken in).
     """
     if tapering.generators.n_terms > 0:
         det = FermionicAnsatz(space, ans.excitations, ans.n_params_untapered)
         theta = 0.1 * np.sin(1.0 + np.arange(ans.n_params))
         e_tap, e_det = ans.energy(theta), det.energy(ans.untapered_params(theta))
-    elif tapering.n_qubits_before <= _FRAME_CHECK_MAX_QUBITS:
+    elif tapering.n_qubits_before <= _FRAME_CHECK_MAX_QUBITS and exact.known:
         from ..qubit.statevector import expectation
 
-        psi = encode_state(to_qubit_state(c_fci, space.norb, space.nelec), mapping)
-        e_tap, e_det = expectation(psi, tapering.hamiltonian), e_fci
+        psi = encode_state(to_qubit_state(exact.vectors[0], space.norb, space.nelec), mapping)
+        e_tap, e_det = expectation(psi, tapering.hamiltonian), exact.energy
     else:
         return
     if abs(e_tap - e_det) > 1e-7:
@@ -261,6 +239,354 @@ def _check_mapping_frame(
             f"state gives {e_tap:.8f} Eh there and {e_det:.8f} Eh exactly); pass the mapping of "
             "the hamiltonian stage"
         )
+
+
+#: ``spin_mismatch`` when ``|<S^2> - S(S+1)|`` (or ``|<N> - N|``) exceeds this.
+SPIN_MISMATCH_TOL = 1e-3
+
+
+@dataclass
+class _Methods:
+    """Validated method configs of one optimize job."""
+
+    ansatz: dict
+    optimizer: dict
+    estimator: dict
+    mapping: str
+    tapered: bool
+
+    @property
+    def sampled(self) -> bool:
+        return self.estimator["name"] != "exact"
+
+
+@dataclass
+class _Problem:
+    """Active-space integrals of one job and their determinant space."""
+
+    h1e: np.ndarray
+    eri: np.ndarray
+    e_core: float
+    space: DetSpace
+
+    def mapped_hamiltonian(self, mapping: str) -> PauliSum:
+        return _mapped_hamiltonian(self.h1e, self.eri, self.e_core, self.space.norb, mapping)
+
+
+@dataclass
+class _Built:
+    """The ansatz of one job and how its states are represented."""
+
+    ansatz: Any
+    adapt: Any = None  # AdaptResult when the ansatz was grown by ADAPT
+    jw_statevector: bool = False  # qubit-space state in the untapered (mapped) encoding
+
+    @property
+    def det_space(self) -> bool:
+        return isinstance(self.ansatz, FermionicAnsatz)
+
+
+@dataclass
+class _Run:
+    """What the optimizer loop returns."""
+
+    params: np.ndarray
+    trace: list[dict]
+    n_iterations: int
+    converged: bool
+    message: str
+
+
+def _resolve_methods(
+    ansatz: dict, optimizer: dict, estimator: dict, mapping: str, tapering: TaperResult | None
+) -> _Methods:
+    a_cfg = validate_method("ansatz", ansatz)
+    o_cfg = validate_method("optimizer", optimizer)
+    e_cfg = validate_method("estimator", estimator)
+    mapping = check_mapping(mapping, "mapping")
+    tapered = tapering is not None and tapering.generators.n_terms > 0
+    check_combination(a_cfg, tapered, mapping, optimizer=o_cfg, estimator=e_cfg)
+    return _Methods(a_cfg, o_cfg, e_cfg, mapping, tapered)
+
+
+def _build_adapt(
+    m: _Methods, prob: _Problem, tapering: TaperResult | None, seed: int, progress
+) -> _Built:
+    from .adapt import run_adapt
+
+    space = prob.space
+    a_cfg, norb, nelec = m.ansatz, space.norb, space.nelec
+    qubit_pool = a_cfg["pool"] == "qubit"
+    res = run_adapt(
+        space,
+        pool=a_cfg["pool"],
+        gradient_tolerance=a_cfg["gradient_tolerance"],
+        max_operators=a_cfg["max_operators"],
+        optimizer=m.optimizer,
+        seed=seed,
+        progress=progress,
+        hamiltonian=prob.mapped_hamiltonian(m.mapping) if qubit_pool else None,
+        reference=mapped_reference_bits(nelec, norb, m.mapping) if qubit_pool else None,
+        tapering=tapering if m.tapered else None,
+        mapping=m.mapping,
+    )
+    return _Built(res.ansatz, adapt=res, jw_statevector=qubit_pool)
+
+
+def _build_fermionic(m: _Methods, space: DetSpace, tapering: TaperResult | None, seed: int):
+    a_cfg = m.ansatz
+    if a_cfg["name"] == "uccsd":
+        ans: Any = UCCSD(space, spin_adapted=a_cfg["spin_adapted"])
+    else:
+        ans = KUpCCGSD(
+            space,
+            k=a_cfg["k"],
+            spin_adapted=a_cfg["spin_adapted"],
+            init_scale=a_cfg["init_scale"],
+            seed=seed,
+        )
+    if m.tapered:
+        from .tapered import TaperedFermionicAnsatz
+
+        ans = TaperedFermionicAnsatz.from_ansatz(ans, m.mapping, tapering)
+    return _Built(ans)
+
+
+def _build_hardware_efficient(
+    m: _Methods,
+    prob: _Problem,
+    tapering: TaperResult | None,
+    qubit_hamiltonian: PauliSum | None,
+    reference_bits: np.ndarray | None,
+    seed: int,
+) -> _Built:
+    from .hardware_efficient import HardwareEfficientAnsatz
+
+    norb, nelec = prob.space.norb, prob.space.nelec
+    jw_statevector = False
+    if tapering is not None:
+        ham = tapering.hamiltonian
+        ref = np.asarray(tapering.reference_bits, dtype=np.uint8).reshape(-1)
+        jw_statevector = not m.tapered
+    else:
+        ham = qubit_hamiltonian
+        if ham is None:
+            ham = prob.mapped_hamiltonian(m.mapping)
+        if reference_bits is None:
+            if ham.n_qubits != 2 * norb:
+                raise ConfigError(
+                    "reference_bits: required for a qubit Hamiltonian on "
+                    f"{ham.n_qubits} != 2*norb qubits"
+                )
+            ref = mapped_reference_bits(nelec, norb, m.mapping)
+            jw_statevector = True
+        else:
+            ref = np.asarray(reference_bits, dtype=np.uint8).reshape(-1)
+            if ref.size != ham.n_qubits:
+                raise ConfigError(
+                    f"reference_bits: has {ref.size} bits, the Hamiltonian {ham.n_qubits} qubits"
+                )
+    a_cfg = m.ansatz
+    ans = HardwareEfficientAnsatz(
+        ham,
+        ref,
+        rounds=a_cfg["rounds"],
+        axes=a_cfg["axes"],
+        init_scale=a_cfg["init_scale"],
+        seed=seed,
+    )
+    return _Built(ans, jw_statevector=jw_statevector)
+
+
+def _fermionic_circuit(m: _Methods, built: _Built) -> bool:
+    """Whether the circuit is built from mapped excitations (not native qubit gates)."""
+    name = m.ansatz["name"]
+    return name in ("uccsd", "kupccgsd") or (name == "adapt" and not built.jw_statevector)
+
+
+def _qubit_state_fn(built: _Built, space: DetSpace, mapping: str) -> Callable:
+    """theta -> the statevector that shots and noise sample."""
+    ans = built.ansatz
+    if built.det_space:
+        return lambda theta: encode_state(
+            to_qubit_state(ans.state(theta), space.norb, space.nelec), mapping
+        )
+    return ans.state
+
+
+def _make_sampler(
+    m: _Methods,
+    built: _Built,
+    prob: _Problem,
+    tapering: TaperResult | None,
+    qubit_hamiltonian: PauliSum | None,
+    seed: int,
+    n_cnot: int,
+):
+    """The shot/noise estimator on the Hamiltonian the state lives in (None for exact)."""
+    if not m.sampled:
+        return None
+    from .estimators import make_estimator
+
+    norb = prob.space.norb
+    if not built.det_space:
+        qham = built.ansatz.hamiltonian
+    elif tapering is not None:
+        qham = tapering.hamiltonian
+    elif qubit_hamiltonian is not None and qubit_hamiltonian.n_qubits == 2 * norb:
+        qham = qubit_hamiltonian
+    else:
+        qham = prob.mapped_hamiltonian(m.mapping)
+    return make_estimator(m.estimator, qham, seed=seed, n_cnot=n_cnot)
+
+
+class _Objective:
+    """Counts evaluations and reports progress for the three kinds of objective."""
+
+    def __init__(self, ans: Any, est: Any, qubit_state: Callable, progress) -> None:
+        self.ans, self.est, self.qubit_state, self.progress = ans, est, qubit_state, progress
+        self.count = 0
+        self.last_shots = 0
+
+    def _report(self, e: float) -> None:
+        if self.progress is not None:
+            self.progress(self.count, e)
+        self.count += 1
+
+    def sampled(self, theta: np.ndarray) -> float:
+        estimate = self.est.estimate(self.qubit_state(theta))
+        self.last_shots = estimate.shots
+        self._report(estimate.value)
+        return estimate.value
+
+    def with_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
+        e, g = self.ans.energy_and_gradient(theta)
+        self._report(e)
+        return e, g
+
+    def value(self, theta: np.ndarray) -> float:
+        e = self.ans.energy(theta)
+        self._report(e)
+        return e
+
+
+def _start_point(ans: Any, initial_params: np.ndarray | None) -> np.ndarray:
+    x0 = ans.initial_params() if initial_params is None else initial_params
+    x0 = np.asarray(x0, dtype=float).reshape(-1)
+    if x0.size != ans.n_params:
+        raise ConfigError(
+            f"initial_params: has {x0.size} values, the ansatz {ans.n_params} parameters"
+        )
+    return x0
+
+
+def _minimize_once(obj: _Objective, start: np.ndarray, method: str, options: dict, seed: int):
+    if obj.est is not None:
+        return minimize(
+            obj.sampled,
+            start,
+            method=method,
+            options=options,
+            seed=seed,
+            shots=lambda: obj.last_shots,
+        )
+    if method in GRADIENT_METHODS:
+        return minimize(
+            obj.with_gradient, start, method=method, options=options, seed=seed, grad=True
+        )
+    return minimize(obj.value, start, method=method, options=options, seed=seed)
+
+
+def _optimize_with_restarts(o_cfg: dict, obj: _Objective, x0: np.ndarray, seed: int) -> _Run:
+    """Optimizer from ``x0`` plus ``restarts`` seeded random starts ``x0 + scale * N(0, 1)``
+    (seed ``seed + r``); the best run wins (lowest exact energy, or lowest fresh-shot
+    estimate with shots)."""
+    method = o_cfg["name"]
+    options = {k: v for k, v in o_cfg.items() if k not in ("name", "restarts", "restart_scale")}
+    restarts = int(o_cfg.get("restarts", 0))
+    scale = float(o_cfg.get("restart_scale", 0.1))
+    best = None
+    trace: list[dict] = []
+    for r in range(restarts + 1):
+        start = x0
+        if r:
+            start = x0 + scale * np.random.default_rng(seed + r).standard_normal(x0.size)
+        res = _minimize_once(obj, start, method, options, seed + r)
+        x_end = np.asarray(res.x, dtype=float)
+        if obj.est is not None and restarts:
+            score = obj.est.estimate(obj.qubit_state(x_end)).value
+        else:
+            score = float(obj.ans.energy(x_end))
+        trace += list(res.trace)
+        if best is None or score < best[0]:
+            best = (score, res, start)
+    _, res, start = best
+    params = np.asarray(res.x, dtype=float)
+    message = res.message + (f"; best of {restarts + 1} starts" if restarts else "")
+    converged = bool(res.converged)
+    if params.size and np.array_equal(params, np.asarray(start)) and method not in GRADIENT_METHODS:
+        # a derivative-free run that returns its start has not optimized anything
+        converged = False
+        message += "; the parameters never moved from their start"
+    return _Run(params, trace, int(res.n_iterations), converged, message)
+
+
+def _adapt_run(built: _Built, initial_params: np.ndarray | None) -> _Run:
+    res = built.adapt
+    message = res.message
+    if initial_params is not None:
+        message += "; initial_params ignored (ADAPT grows its ansatz from HF)"
+    return _Run(res.params, res.trace, res.n_iterations, res.converged, message)
+
+
+def _final_energy(
+    m: _Methods, built: _Built, est: Any, qubit_state: Callable, params: np.ndarray
+) -> tuple[float, float, float]:
+    """``(energy, stderr, exact energy at params)``; with shots a fresh estimate."""
+    e_exact_params = float(built.ansatz.energy(params))
+    if est is None:
+        return e_exact_params, 0.0, e_exact_params
+    final_shots = m.estimator["final_shots"] or m.estimator["shots"]
+    final: Estimate = est.estimate(qubit_state(params), shots=final_shots)
+    return final.value, final.stderr, e_exact_params
+
+
+def _state_report(
+    m: _Methods,
+    built: _Built,
+    space: DetSpace,
+    exact: ExactReference,
+    tapering: TaperResult | None,
+    params: np.ndarray,
+) -> dict:
+    """Overlap with the exact ground space and ``<N>``, ``<S^2>`` of the optimized state."""
+    ans, norb, nelec = built.ansatz, space.norb, space.nelec
+    psi = ans.state(params)
+    target_s = abs(nelec[0] - nelec[1]) / 2
+    out = {"spin_square_target": target_s * (target_s + 1)}
+    if built.det_space:
+        out["overlap_exact"] = exact.overlap(psi)
+        n_mean, s2 = state_moments(psi, norb, nelec)
+    else:
+        enc = "jordan_wigner" if m.ansatz["name"] == "adapt" else m.mapping
+        if built.jw_statevector and ans.n_qubits == 2 * norb:
+            frame_taper = None
+        elif m.tapered and ans.n_qubits == tapering.n_qubits:
+            frame_taper = tapering
+        else:  # a user-given operator: no known frame, so no <N>, <S^2>
+            return {**out, "overlap_exact": exact.operator_overlap(psi, ans.hamiltonian)}
+        frame = exact.qubit_vectors(enc, frame_taper) if exact.known else None
+        out["overlap_exact"] = exact.overlap(psi, frame) if exact.known else math.nan
+        n_mean, s2 = state_moments(psi, norb, nelec, mapping=enc, tapering=frame_taper)
+    out["n_electrons"], out["spin_square"] = n_mean, s2
+    out["spin_mismatch"] = bool(
+        math.isfinite(s2)
+        and (
+            abs(s2 - out["spin_square_target"]) > SPIN_MISMATCH_TOL
+            or abs(n_mean - sum(nelec)) > SPIN_MISMATCH_TOL
+        )
+    )
+    return out
 
 
 def run_optimize(
@@ -280,6 +606,7 @@ def run_optimize(
     initial_params: np.ndarray | None = None,
     seed: int = 0,
     progress: Callable[[int, float], None] | None = None,
+    exact: ExactReference | None = None,
 ) -> OptimizeResult:
     """Minimise the ansatz energy for the active-space integrals (module docstring).
 
@@ -299,272 +626,74 @@ def run_optimize(
             a tapered fermionic ansatz only the kept parameters).
         seed: seed for optimizer, estimator (if it has no own seed) and random inits.
         progress: called as ``progress(evaluation_index, energy)`` after each evaluation.
+        exact: the exact reference stored by the integrals stage; None computes it with
+            :func:`eigensweep.chem.exact.solve_sector` (the same solver).
     """
     t_start = time.perf_counter()
-    a_cfg = validate_method("ansatz", ansatz)
-    o_cfg = validate_method("optimizer", optimizer)
-    e_cfg = validate_method("estimator", estimator)
-    mapping = check_mapping(mapping, "mapping")
-    tapered = tapering is not None and tapering.generators.n_terms > 0
-    check_combination(a_cfg, tapered, mapping, optimizer=o_cfg, estimator=e_cfg)
+    m = _resolve_methods(ansatz, optimizer, estimator, mapping, tapering)
     norb = int(norb)
     nelec = (int(nelec[0]), int(nelec[1]))
     seed = int(seed)
-    name = a_cfg["name"]
-    method = o_cfg["name"]
-    opt_options = {k: v for k, v in o_cfg.items() if k not in ("name", "restarts", "restart_scale")}
-    restarts = int(o_cfg.get("restarts", 0))
-    restart_scale = float(o_cfg.get("restart_scale", 0.1))
-    sampled = e_cfg["name"] != "exact"
     h1e = np.asarray(h1e, dtype=float)
     eri = np.asarray(eri, dtype=float)
     if h1e.shape != (norb, norb):
         raise ConfigError(f"h1e: shape {h1e.shape} does not match norb={norb}")
-
     space = DetSpace(norb, nelec, h1e, eri, e_core)
+    prob = _Problem(h1e, eri, float(e_core), space)
     if tapering is not None:
-        _check_tapering(tapering, qubit_hamiltonian, space, mapping)
-    e_fci, c_fci = fci_ground_state(h1e, eri, e_core, norb, nelec)
+        _check_tapering(tapering, qubit_hamiltonian, space, m.mapping)
+    if exact is None:
+        exact = ExactReference.solve(h1e, eri, e_core, norb, nelec)
 
-    # ------------------------------------------------------------- build the ansatz
-    trace: list[dict] = []
-    adapt_res = None
-    jw_statevector = False  # qubit-space ansatz on the untapered JW (or mapped) encoding
+    name = m.ansatz["name"]
     if name == "adapt":
-        from .adapt import run_adapt
-
-        qubit_pool = a_cfg["pool"] == "qubit"
-        jw_statevector = qubit_pool
-        adapt_res = run_adapt(
-            space,
-            pool=a_cfg["pool"],
-            gradient_tolerance=a_cfg["gradient_tolerance"],
-            max_operators=a_cfg["max_operators"],
-            optimizer=o_cfg,
-            seed=seed,
-            progress=progress,
-            hamiltonian=_mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
-            if qubit_pool
-            else None,
-            reference=mapped_reference_bits(nelec, norb, mapping) if qubit_pool else None,
-            tapering=tapering if tapered else None,
-            mapping=mapping,
-        )
-        ans: Any = adapt_res.ansatz
+        built = _build_adapt(m, prob, tapering, seed, progress)
     elif name in ("uccsd", "kupccgsd"):
-        if name == "uccsd":
-            ans = UCCSD(space, spin_adapted=a_cfg["spin_adapted"])
-        else:
-            ans = KUpCCGSD(
-                space,
-                k=a_cfg["k"],
-                spin_adapted=a_cfg["spin_adapted"],
-                init_scale=a_cfg["init_scale"],
-                seed=seed,
-            )
-        if tapered:
-            from .tapered import TaperedFermionicAnsatz
-
-            ans = TaperedFermionicAnsatz.from_ansatz(ans, mapping, tapering)
+        built = _build_fermionic(m, space, tapering, seed)
     else:
-        from .hardware_efficient import HardwareEfficientAnsatz
-
-        if tapering is not None:
-            ham = tapering.hamiltonian
-            ref = np.asarray(tapering.reference_bits, dtype=np.uint8).reshape(-1)
-            jw_statevector = not tapered
-        else:
-            ham = qubit_hamiltonian
-            if ham is None:
-                ham = _mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
-            if reference_bits is None:
-                if ham.n_qubits != 2 * norb:
-                    raise ConfigError(
-                        "reference_bits: required for a qubit Hamiltonian on "
-                        f"{ham.n_qubits} != 2*norb qubits"
-                    )
-                ref = mapped_reference_bits(nelec, norb, mapping)
-                jw_statevector = True
-            else:
-                ref = np.asarray(reference_bits, dtype=np.uint8).reshape(-1)
-                if ref.size != ham.n_qubits:
-                    raise ConfigError(
-                        f"reference_bits: has {ref.size} bits, the Hamiltonian {ham.n_qubits} qubits"
-                    )
-        ans = HardwareEfficientAnsatz(
-            ham,
-            ref,
-            rounds=a_cfg["rounds"],
-            axes=a_cfg["axes"],
-            init_scale=a_cfg["init_scale"],
-            seed=seed,
+        built = _build_hardware_efficient(
+            m, prob, tapering, qubit_hamiltonian, reference_bits, seed
         )
-    det_space = isinstance(ans, FermionicAnsatz)
-    # circuits built from mapped excitations (det-space or tapered), not native qubit gates
-    fermionic_circuit = name in ("uccsd", "kupccgsd") or (name == "adapt" and not jw_statevector)
-    if tapering is not None and (fermionic_circuit or not tapered):
-        _check_mapping_frame(ans, tapering, space, mapping, c_fci, e_fci)
-    costs = ans.circuit_costs(mapping) if det_space else ans.circuit_costs()
+    ans = built.ansatz
+    fermionic_circuit = _fermionic_circuit(m, built)
+    if tapering is not None and (fermionic_circuit or not m.tapered):
+        _check_mapping_frame(ans, tapering, space, m.mapping, exact)
+    costs = ans.circuit_costs(m.mapping) if built.det_space else ans.circuit_costs()
 
-    # ------------------------------------------------------------- estimator
-    if det_space:
-
-        def qubit_state(theta: np.ndarray) -> np.ndarray:
-            return encode_state(to_qubit_state(ans.state(theta), norb, nelec), mapping)
-
+    qubit_state = _qubit_state_fn(built, space, m.mapping)
+    est = _make_sampler(m, built, prob, tapering, qubit_hamiltonian, seed, costs["cnot_count"])
+    if built.adapt is not None:
+        run = _adapt_run(built, initial_params)
     else:
-
-        def qubit_state(theta: np.ndarray) -> np.ndarray:
-            return ans.state(theta)
-
-    est = None
-    if sampled:
-        from .estimators import make_estimator
-
-        if not det_space:
-            qham = ans.hamiltonian
-        elif tapering is not None:
-            qham = tapering.hamiltonian
-        elif qubit_hamiltonian is not None and qubit_hamiltonian.n_qubits == 2 * norb:
-            qham = qubit_hamiltonian
-        else:
-            qham = _mapped_hamiltonian(h1e, eri, e_core, norb, mapping)
-        est = make_estimator(e_cfg, qham, seed=seed, n_cnot=costs["cnot_count"])
-
-    # ------------------------------------------------------------- optimize
-    if adapt_res is not None:
-        params = adapt_res.params
-        trace = adapt_res.trace
-        n_iter = adapt_res.n_iterations
-        converged = adapt_res.converged
-        message = adapt_res.message
-        if initial_params is not None:
-            message += "; initial_params ignored (ADAPT grows its ansatz from HF)"
-    else:
-        x0 = ans.initial_params() if initial_params is None else initial_params
-        x0 = np.asarray(x0, dtype=float).reshape(-1)
-        if x0.size != ans.n_params:
-            raise ConfigError(
-                f"initial_params: has {x0.size} values, the ansatz {ans.n_params} parameters"
-            )
-        # random restarts: extra starts x0 + restart_scale * N(0, 1), seeded by seed + r; the
-        # best run wins (lowest exact energy, or lowest fresh-shot estimate with shots)
-        counter = [0]
-        last_shots = [0]
-
-        def objective(theta: np.ndarray) -> float:
-            estimate = est.estimate(qubit_state(theta))
-            last_shots[0] = estimate.shots
-            if progress is not None:
-                progress(counter[0], estimate.value)
-            counter[0] += 1
-            return estimate.value
-
-        def objective_grad(theta: np.ndarray) -> tuple[float, np.ndarray]:
-            e, g = ans.energy_and_gradient(theta)
-            if progress is not None:
-                progress(counter[0], e)
-            counter[0] += 1
-            return e, g
-
-        def objective_value(theta: np.ndarray) -> float:
-            e = ans.energy(theta)
-            if progress is not None:
-                progress(counter[0], e)
-            counter[0] += 1
-            return e
-
-        def run_once(start: np.ndarray, run_seed: int):
-            if est is not None:
-                return minimize(
-                    objective,
-                    start,
-                    method=method,
-                    options=opt_options,
-                    seed=run_seed,
-                    shots=lambda: last_shots[0],
-                )
-            if method in GRADIENT_METHODS:
-                return minimize(
-                    objective_grad,
-                    start,
-                    method=method,
-                    options=opt_options,
-                    seed=run_seed,
-                    grad=True,
-                )
-            return minimize(
-                objective_value, start, method=method, options=opt_options, seed=run_seed
-            )
-
-        best = None
-        all_trace: list[dict] = []
-        for r in range(restarts + 1):
-            start = x0
-            if r:
-                start = x0 + restart_scale * np.random.default_rng(seed + r).standard_normal(
-                    x0.size
-                )
-            res = run_once(start, seed + r)
-            x_end = np.asarray(res.x, dtype=float)
-            if est is not None and restarts:
-                score = est.estimate(qubit_state(x_end)).value
-            else:
-                score = float(ans.energy(x_end))
-            all_trace += list(res.trace)
-            if best is None or score < best[0]:
-                best = (score, res)
-        res = best[1]
-        params = np.asarray(res.x, dtype=float)
-        trace = all_trace
-        n_iter = res.n_iterations
-        converged = res.converged
-        message = res.message + (f"; best of {restarts + 1} starts" if restarts else "")
-
-    # ------------------------------------------------------------- final evaluation
-    e_exact_params = float(ans.energy(params))
-    if est is not None:
-        final_shots = e_cfg["final_shots"] or e_cfg["shots"]
-        final: Estimate = est.estimate(qubit_state(params), shots=final_shots)
-        energy, stderr = final.value, final.stderr
-    else:
-        energy, stderr = e_exact_params, 0.0
-
-    if det_space:
-        overlap = float(np.dot(ans.state(params), c_fci) ** 2)
-    elif jw_statevector and ans.n_qubits == 2 * norb:
-        # untapered statevector in the mapping's encoding: the FCI vector maps exactly
-        enc = "jordan_wigner" if name == "adapt" else mapping
-        gs = encode_state(to_qubit_state(c_fci, norb, nelec), enc)
-        overlap = float(abs(np.vdot(gs, ans.state(params))) ** 2)
-    else:
-        # tapered or user-given operator: its lowest eigenspace, if that is the FCI energy
-        overlap = _qubit_ground_overlap(ans.state(params), ans.hamiltonian, e_fci)
+        obj = _Objective(ans, est, qubit_state, progress)
+        run = _optimize_with_restarts(m.optimizer, obj, _start_point(ans, initial_params), seed)
+    energy, stderr, e_exact_params = _final_energy(m, built, est, qubit_state, run.params)
+    report = _state_report(m, built, space, exact, tapering, run.params)
 
     meta = ans.meta()
-    meta["mapping_for_costs"] = mapping if fermionic_circuit else "native"
+    meta["mapping_for_costs"] = m.mapping if fermionic_circuit else "native"
     # reported costs: the circuit at the optimum exactly as the export stage compiles it
-    final_circuit = circuit_from_meta(meta, params, mapping)
-    if adapt_res is not None:
-        meta["adapt_history"] = adapt_res.history
+    final_circuit = circuit_from_meta(meta, run.params, m.mapping)
+    if built.adapt is not None:
+        meta["adapt_history"] = built.adapt.history
     return OptimizeResult(
         energy=float(energy),
         energy_stderr=float(stderr),
         energy_exact_at_params=e_exact_params,
-        params=params,
+        params=run.params,
         n_params=int(ans.n_params),
         n_qubits=int(ans.n_qubits),
         cnot_count=int(final_circuit.cnot_count),
         depth=int(final_circuit.depth),
-        trace_energy=np.array([t["energy"] for t in trace], dtype=float),
-        trace_grad_norm=np.array([t["grad_norm"] for t in trace], dtype=float),
-        trace_shots=np.array([t["shots"] for t in trace], dtype=np.int64),
-        n_evaluations=len(trace),
-        n_iterations=int(n_iter),
-        converged=bool(converged),
-        message=str(message),
+        trace_energy=np.array([t["energy"] for t in run.trace], dtype=float),
+        trace_grad_norm=np.array([t["grad_norm"] for t in run.trace], dtype=float),
+        trace_shots=np.array([t["shots"] for t in run.trace], dtype=np.int64),
+        n_evaluations=len(run.trace),
+        n_iterations=int(run.n_iterations),
+        converged=bool(run.converged),
+        message=str(run.message),
         wall_s=time.perf_counter() - t_start,
-        overlap_exact=overlap,
-        energy_exact=float(e_fci),
+        energy_exact=float(exact.energy),
         ansatz_meta=meta,
+        **report,
     )

@@ -1,0 +1,177 @@
+"""Exact references in the optimize problem's frame, overlaps and spin/number moments.
+
+Outside references: PySCF CASCI/FCI with its spin penalty and ``fci.spin_square``; NumPy dense
+diagonalisation of the tapered Hamiltonian; OpenFermion's ``s_squared_operator`` and
+``number_operator`` mapped by its own ``jordan_wigner``/``bravyi_kitaev``.
+"""
+
+from __future__ import annotations
+
+from functools import cache
+
+import numpy as np
+import pytest
+from pyscf import fci
+
+from eigensweep.chem import compute_integrals
+from eigensweep.errors import StageFileError
+from eigensweep.qubit import map_hamiltonian, reference_bits, taper
+from eigensweep.vqe import run_optimize
+from eigensweep.vqe.detspace import DetSpace
+from eigensweep.vqe.reference import ExactReference, check_qubit_problem, state_moments
+from eigensweep.vqe.uccsd import UCCSD
+
+LIH = "Li 0 0 0; H 0 0 1.6"
+CH2 = "C 0 0 0.1; H 0 0.99 -0.42; H 0 -0.99 -0.42"
+O2 = "O 0 0 0; O 0 0 1.2075"
+EXACT = {"name": "exact"}
+
+
+@cache
+def integrals(atoms: str, multiplicity: int = 1, active: tuple | None = None):
+    act = None if active is None else {"electrons": active[0], "orbitals": active[1]}
+    return compute_integrals(atoms=atoms, basis="sto-3g", multiplicity=multiplicity, active=act)
+
+
+@cache
+def tapering(atoms: str, mapping: str, multiplicity: int = 1, active: tuple | None = None):
+    ints = integrals(atoms, multiplicity, active)
+    ham = map_hamiltonian(ints.h1e, ints.eri, ints.e_core, mapping)
+    return ham, taper(ham, reference_bits(ints.nelec, ints.norb, mapping))
+
+
+def optimize(ints, tap=None, **kw):
+    return run_optimize(
+        h1e=ints.h1e,
+        eri=ints.eri,
+        e_core=ints.e_core,
+        norb=ints.norb,
+        nelec=ints.nelec,
+        ansatz=kw.pop("ansatz", {"name": "uccsd"}),
+        optimizer=kw.pop("optimizer", {"name": "lbfgs"}),
+        estimator=EXACT,
+        tapering=tap,
+        exact=ExactReference.from_integrals(ints),
+        seed=7,
+        **kw,
+    )
+
+
+def pyscf_spin_roots(ints, ss: float, nroots: int):
+    solver = fci.addons.fix_spin_(fci.direct_spin1.FCI(), shift=0.5, ss=ss)
+    solver.conv_tol = 1e-12
+    e, c = solver.kernel(
+        ints.h1e, ints.eri, ints.norb, ints.nelec, ecore=ints.e_core, nroots=nroots
+    )
+    return np.asarray(e), np.array([np.asarray(v).reshape(-1) for v in c])
+
+
+@pytest.mark.parametrize("mapping", ["jordan_wigner", "bravyi_kitaev", "parity"])
+def test_tapered_exact_state_is_the_tapered_ground_state(mapping):
+    ints = integrals(LIH)
+    _, tap = tapering(LIH, mapping)
+    ref = ExactReference.from_integrals(ints)
+    psi = ref.qubit_vectors(mapping, tap)[0]
+    # reference: NumPy dense diagonalisation of the tapered Hamiltonian (its ground state is
+    # the singlet for LiH at 1.6 Angstrom, PySCF CASCI energy)
+    vals, vecs = np.linalg.eigh(tap.hamiltonian.to_sparse().toarray())
+    assert vals[0] == pytest.approx(ints.references["casci"], abs=1e-9)
+    assert abs(np.vdot(vecs[:, 0], psi)) ** 2 == pytest.approx(1.0, abs=1e-9)
+    # round trip back to the full encoded state (closed form: the tapering is unitary)
+    full = ref.qubit_vectors(mapping)[0]
+    assert np.allclose(tap.untaper_state(psi), full, atol=1e-12)
+
+
+def test_check_qubit_problem_accepts_the_mapping_and_rejects_another():
+    ints = integrals(LIH)
+    ref = ExactReference.from_integrals(ints)
+    ham_bk, tap_bk = tapering(LIH, "bravyi_kitaev")
+    out = check_qubit_problem(tap_bk.hamiltonian, ref, "bravyi_kitaev", "k", tap_bk)
+    # reference: PySCF CASCI energy of the integrals
+    assert out["energy_sector_qubit"] == pytest.approx(ints.references["casci"], abs=1e-9)
+    with pytest.raises(StageFileError, match="not an eigenstate"):
+        check_qubit_problem(ham_bk, ref, "jordan_wigner", "k")
+
+
+def test_ch2_triplet_tapered_overlap_is_reproducible_and_at_most_one():
+    ints = integrals(CH2, 3, (6, 6))
+    _, tap = tapering(CH2, "jordan_wigner", 3, (6, 6))
+    assert tap.n_qubits >= 8  # above 8 qubits the old overlap came from a random-start solver
+    runs = [optimize(ints, tap).overlap_exact for _ in range(3)]
+    assert runs[0] == runs[1] == runs[2] and runs[0] <= 1.0 + 1e-12
+    # reference: the untapered UCCSD state at the same parameters against PySCF's triplet CASCI
+    full = optimize(ints)
+    e_ref, c_ref = fci.direct_spin1.FCI().kernel(
+        ints.h1e, ints.eri, ints.norb, ints.nelec, ecore=ints.e_core
+    )
+    state = UCCSD(DetSpace(ints.norb, ints.nelec, ints.h1e, ints.eri, ints.e_core)).state(
+        full.params
+    )
+    assert full.energy_exact == pytest.approx(e_ref, abs=1e-9)
+    assert full.overlap_exact == pytest.approx(float(state @ np.ravel(c_ref)) ** 2, abs=1e-9)
+    assert runs[0] == pytest.approx(full.overlap_exact, abs=1e-6)
+    # reference: PySCF spin_square of the optimized state; a triplet
+    assert full.spin_square == pytest.approx(
+        fci.spin_square(state, ints.norb, ints.nelec)[0], abs=1e-9
+    )
+    assert not full.spin_mismatch
+
+
+def test_o2_singlet_reference_is_the_singlet_space():
+    ints = integrals(O2, 1, (8, 6))
+    res = optimize(ints)
+    # reference: PySCF FCI with spin penalty, two degenerate 1Delta_g roots
+    e_ref, c_ref = pyscf_spin_roots(ints, 0.0, 2)
+    assert res.energy_exact == pytest.approx(e_ref[0], abs=1e-9)
+    state = UCCSD(DetSpace(ints.norb, ints.nelec, ints.h1e, ints.eri, ints.e_core)).state(
+        res.params
+    )
+    assert res.overlap_exact == pytest.approx(float(np.sum((c_ref @ state) ** 2)), abs=1e-6)
+    assert res.overlap_exact > 0.5  # the singlet, not the triplet (8e-13 before)
+
+
+def openfermion_moments(psi: np.ndarray, norb: int, mapping: str, tap=None):
+    import openfermion as of
+
+    from eigensweep.qubit.mapping import _from_qubit_operator  # PauliSum from OpenFermion
+
+    n_q = 2 * norb
+    transform = {"jordan_wigner": of.jordan_wigner, "bravyi_kitaev": of.bravyi_kitaev}[mapping]
+    out = []
+    for op in (of.number_operator(n_q), of.s_squared_operator(norb)):
+        qop = transform(op) if mapping == "jordan_wigner" else transform(op, n_q)
+        if tap is None:
+            mat = of.get_sparse_operator(qop, n_q)
+        else:
+            mat = tap.taper_operator(_from_qubit_operator(qop, n_q)).to_sparse()
+        out.append(float(np.vdot(psi, mat @ psi).real))
+    return out
+
+
+@pytest.mark.parametrize("mapping", ["jordan_wigner", "bravyi_kitaev"])
+def test_moments_of_arbitrary_qubit_states_match_openfermion(mapping):
+    ints = integrals(LIH)
+    rng = np.random.default_rng(3)
+    psi = rng.standard_normal(1 << 12) + 1j * rng.standard_normal(1 << 12)
+    psi /= np.linalg.norm(psi)
+    n, s2 = state_moments(psi, ints.norb, ints.nelec, mapping=mapping)
+    # reference: OpenFermion number and S^2 operators under its own mapping
+    assert [n, s2] == pytest.approx(openfermion_moments(psi, ints.norb, mapping), abs=1e-9)
+    _, tap = tapering(LIH, mapping)
+    phi = rng.standard_normal(1 << tap.n_qubits) + 1j * rng.standard_normal(1 << tap.n_qubits)
+    phi /= np.linalg.norm(phi)
+    n, s2 = state_moments(phi, ints.norb, ints.nelec, mapping=mapping, tapering=tap)
+    assert [n, s2] == pytest.approx(openfermion_moments(phi, ints.norb, mapping, tap), abs=1e-9)
+
+
+def test_a_wrong_spin_state_is_flagged():
+    ints = integrals("H 0 0 0; H 0 0 0.74")
+    space = DetSpace(ints.norb, ints.nelec, ints.h1e, ints.eri, ints.e_core)
+    ans = UCCSD(space)
+    theta = np.zeros(ans.n_params)
+    theta[1:3] = (0.6, -0.6)  # alpha and beta singles with opposite angles: a triplet admixture
+    res = optimize(ints, initial_params=theta, optimizer={"name": "cobyla", "maxiter": 5})
+    state = ans.state(res.params)
+    # reference: PySCF spin_square of the returned state
+    assert res.spin_square == pytest.approx(fci.spin_square(state, 2, (1, 1))[0], abs=1e-9)
+    assert res.spin_square > 0.1 and res.spin_mismatch
