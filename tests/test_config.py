@@ -283,14 +283,14 @@ def test_min_distance_matches_scipy_pdist_and_scales():
     from eigensweep.chem.geometry import min_distance
 
     rng = np.random.default_rng(1)
-    xyz = rng.uniform(-5, 5, size=(60, 3))
-    parsed = [("H", tuple(p)) for p in xyz]
-    d, i, j = min_distance(parsed)
-    # reference: SciPy's brute-force pair distances
-    full = squareform(pdist(xyz))
-    np.fill_diagonal(full, np.inf)
-    assert d == pytest.approx(full.min(), abs=1e-12)
-    assert full[i - 1, j - 1] == pytest.approx(full.min(), abs=1e-12) and i < j
+    for n_atoms in (2, 60, 200):  # all pairs up to 64 atoms, a k-d tree above
+        xyz = rng.uniform(-5, 5, size=(n_atoms, 3))
+        d, i, j = min_distance([("H", tuple(p)) for p in xyz])
+        # reference: SciPy's brute-force pair distances
+        full = squareform(pdist(xyz))
+        np.fill_diagonal(full, np.inf)
+        assert d == pytest.approx(full.min(), abs=1e-12)
+        assert full[i - 1, j - 1] == pytest.approx(full.min(), abs=1e-12) and i < j
     big = [("H", tuple(p)) for p in rng.uniform(-300, 300, size=(150_000, 3))]
     assert min_distance(big)[0] > 0  # the pure-Python pair loop took hours here
 
@@ -322,3 +322,50 @@ def test_old_option_names_are_refused_naming_the_replacement(kind, entry, new):
     }
     with pytest.raises(ConfigError, match="renamed"):
         validate_config(cfg)
+
+
+# ---------------------------------------------------------------------------- size gate
+BIG = 'molecules:\n  - name: lih\n    atoms: "Li 0 0 0; H 0 0 1.6"\n    basis: cc-pvtz\n'
+
+
+def test_size_estimate_counts_qubits_like_pyscf():
+    # reference: PySCF's number of basis functions (spherical cc-pVTZ), computed here
+    from pyscf import gto
+
+    from eigensweep.plan import build_plan
+    from eigensweep.resources import optimize_size
+
+    nao = gto.M(atom="Li 0 0 0; H 0 0 1.6", basis="cc-pvtz", verbose=0).nao
+    plan = build_plan(validate_config(parse_yaml(BIG, "big.yaml")))
+    size = optimize_size(plan.nodes[plan.rows[0]["key"]], plan)
+    assert size["n_qubits"] == 2 * nao
+    assert size["simulator"] == "determinant space"
+
+
+@pytest.mark.parametrize("command", ["plan", "run"])
+def test_problems_above_the_limits_are_refused_unless_forced(
+    tmp_path, monkeypatch, capsys, command
+):
+    from eigensweep.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    _write(tmp_path, BIG, "big.yaml")
+    assert main([command, "--config", "big.yaml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "88 qubits, above limits.qubits (64)" in err and "--force" in err and "\n" not in err
+    assert not (tmp_path / "results").exists() and not (tmp_path / ".snakemake").exists()
+    # raised limits let it through to the next check (plan only: nothing is computed)
+    _write(tmp_path, BIG + "limits: {qubits: 100}\n", "big.yaml")
+    if command == "plan":
+        assert main(["plan", "--config", "big.yaml"]) == 0
+        assert "determinant space" in capsys.readouterr().out
+
+
+def test_stage_job_limit(tmp_path, monkeypatch, capsys):
+    from eigensweep.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    _write(tmp_path, GOOD + "limits: {stage_jobs: 3}\n", "c.yaml")
+    assert main(["plan", "--config", "c.yaml"]) == 2
+    assert "4 stage jobs, above limits.stage_jobs (3)" in capsys.readouterr().err
+    assert main(["plan", "--config", "c.yaml", "--force"]) == 0

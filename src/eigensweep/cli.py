@@ -38,7 +38,8 @@ def _default_config() -> Path:
     return local
 
 
-def _load_plan(config: str | None):
+def _load_plan(config: str | None, force: bool | None = None):
+    """Config, plan and pre-flight; ``force`` not None applies the size gate first."""
     from .config import load_config
     from .plan import build_plan
     from .preflight import check_plan_chemistry
@@ -46,8 +47,51 @@ def _load_plan(config: str | None):
     path = Path(config) if config else _default_config()
     cfg = load_config(path)
     plan = build_plan(cfg, base_dir=Path.cwd())
+    if force is not None:
+        _gate(plan, cfg, path, force)
     check_plan_chemistry(plan)
     return path, cfg, plan
+
+
+def _gate(plan, cfg: dict, path: Path, force: bool) -> None:
+    """The size and cost gate: refuse problems above the config's ``limits`` unless forced."""
+    from .resources import check_limits
+
+    problems = check_limits(plan, cfg["limits"])
+    if not problems:
+        return
+    if not force:
+        more = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
+        raise EigensweepError(
+            f"{path}: {problems[0]}{more}; pass --force to go ahead anyway, or raise "
+            "limits.* in the config"
+        )
+    for line in problems:
+        print(f"eigensweep: warning (--force): {line}", file=sys.stderr)
+
+
+def _print_sizes(plan) -> None:
+    """Qubits, determinants, simulator, memory and time per problem, estimated before work."""
+    from .resources import optimize_size
+
+    print("\nsize per problem (estimated from the plan, before any chemistry):")
+    print(
+        f"{'molecule':<10} {'point':<14} {'taper':<6} {'simulator':<18} {'qubits':>6} "
+        f"{'determinants':>13} {'memory MB':>10} {'minutes':>8}"
+    )
+    seen = set()
+    for row in plan.rows:
+        size = optimize_size(plan.nodes[row["key"]], plan)
+        tag = (row["key_integrals"], row["tapered"], size["simulator"])
+        if tag in seen:
+            continue
+        seen.add(tag)
+        qubits = size["statevector_qubits"] or size["n_qubits"]
+        print(
+            f"{row['molecule']:<10} {row['point']:<14} {str(row['tapered']):<6} "
+            f"{size['simulator']:<18} {qubits:>6} {size['determinants']:>13.4g} "
+            f"{size['mem_mb']:>10.4g} {size['runtime_min']:>8.3g}"
+        )
 
 
 def _status(node, results: Path) -> str:
@@ -64,7 +108,7 @@ def _status(node, results: Path) -> str:
 
 
 def cmd_plan(args) -> int:
-    path, cfg, plan = _load_plan(args.config)
+    path, cfg, plan = _load_plan(args.config, force=args.force)
     results = Path("results")
     counts: dict[str, dict[str, int]] = {}
     lines = []
@@ -84,6 +128,7 @@ def cmd_plan(args) -> int:
         print(
             f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}"
         )
+    _print_sizes(plan)
     _print_costs(plan, results)
     _print_waiting(plan)
     if args.verbose:
@@ -168,7 +213,7 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
 
 
 def cmd_run(args) -> int:
-    path, cfg, plan = _load_plan(args.config)
+    path, cfg, plan = _load_plan(args.config, force=args.force)
     lock = None if args.dry_run else _folder_lock()
     try:
         return _run_locked(args, path, plan, lock is not None)
@@ -416,12 +461,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--cores", type=int, help="cores to use (default: all)")
     p.add_argument("--profile", help="Snakemake profile: local (default), slurm, or a folder")
     p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
+    p.add_argument("--force", action="store_true", help="run problems above the config's limits")
     p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
     p.set_defaults(func=cmd_run)
 
     p = add("plan", help="list the stage jobs of a sweep: cached or pending")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
+    p.add_argument("--force", action="store_true", help="accept problems above the limits")
     p.set_defaults(func=cmd_plan)
 
     p = add("report", help="write the Snakemake HTML report of a finished sweep")

@@ -329,7 +329,7 @@ def _defaults(kind: str, name: str) -> dict[str, Any]:
 
 def method_defaults(kind: str, name: str) -> dict[str, Any]:
     """Every option of one method with its default, ``name`` included (a fresh copy)."""
-    return copy.deepcopy(_defaults(kind, name))
+    return {k: copy.copy(v) for k, v in _defaults(kind, name).items()}
 
 
 def complete_method(kind: str, entry: Any) -> dict[str, Any]:

@@ -8,17 +8,30 @@ point that cannot run. Messages name the molecule and point.
 
 from __future__ import annotations
 
+import json
+
 from .plan import Plan, molecule_kwargs
 
 
 def check_plan_chemistry(plan: Plan) -> None:
-    """Raise :class:`~eigensweep.errors.ConfigError` for the first impossible geometry point."""
+    """Raise :class:`~eigensweep.errors.ConfigError` for the first impossible geometry point.
+
+    What PySCF is needed for (basis, electron count, active space) depends on the composition
+    only, so it is checked once per composition; every point's geometry is checked (a scan of
+    15,000 points takes seconds, not minutes).
+    """
     from .chem import check_molecule
+    from .chem.geometry import check_geometry
 
     where: dict[str, str] = {}
     for row in plan.rows:
         where.setdefault(row["key_integrals"], f"molecule {row['molecule']} point {row['point']}")
+    checked: set[str] = set()
     for node in plan.by_stage("integrals"):
-        check_molecule(
-            **molecule_kwargs(node.params), where=where.get(node.key, f"integrals {node.key}")
-        )
+        kw = molecule_kwargs(node.params)
+        at = where.get(node.key, f"integrals {node.key}")
+        symbols = [sym for sym, _ in check_geometry(kw["atoms"], kw["unit"], at)]
+        composition = json.dumps({**kw, "atoms": symbols}, sort_keys=True, default=str)
+        if composition not in checked:
+            check_molecule(**kw, where=at)
+            checked.add(composition)

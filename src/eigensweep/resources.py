@@ -82,9 +82,90 @@ def stage_resources(node: Node, plan: Plan) -> dict[str, int]:
             "runtime": 10 + n_qubits,
         }
     if node.stage == "optimize":
-        mem = 1000 + min(120000, dets * 8 * 40 // 2**20)
-        return {"mem_mb": mem, "runtime": 15 + dets // 20_000}
+        size = optimize_size(node, plan)
+        return {
+            "mem_mb": 1000 + min(120000, size["mem_mb"]),
+            "runtime": min(MAX_RUNTIME_MIN, size["runtime_min"]),
+        }
     return {"mem_mb": 2000, "runtime": 30}
+
+
+#: Longest runtime (minutes) ever requested from a scheduler (7 days); a larger estimate means
+#: the problem is out of reach, which the size gate (:func:`check_limits`) reports.
+MAX_RUNTIME_MIN = 7 * 24 * 60
+
+_FERMIONIC = ("uccsd", "kupccgsd")
+
+
+def optimize_size(node: Node, plan: Plan) -> dict:
+    """What one optimize job needs, estimated from the plan alone (no chemistry run).
+
+    Returns ``n_qubits`` (2 x active orbitals, before tapering), ``determinants``
+    (C(norb, n_alpha) C(norb, n_beta), the exact reference and determinant-space emulation),
+    ``simulator`` (``"determinant space"`` for fermionic ansätze, untapered, exact estimator;
+    else ``"statevector"``, with ``statevector_qubits``: the mapped qubits, two fewer when
+    tapered, as the two spin-parity symmetries always taper), ``mem_mb`` (8-byte CI vectors x
+    40, plus 16-byte amplitudes x 8 for a statevector) and ``runtime_min`` (a rough scale).
+    """
+    norb, na, nb = estimate_size(_integrals_params(node, plan) or {})
+    dets = math.comb(norb, na) * math.comb(norb, nb)
+    n_qubits = 2 * norb
+    ansatz, estimator = node.params["ansatz"], node.params["estimator"]
+    taper_node = plan.nodes.get(node.parents.get("taper", ""))
+    tapered = bool(taper_node and taper_node.params.get("taper"))
+    fermionic = ansatz["name"] in _FERMIONIC or (
+        ansatz["name"] == "adapt" and ansatz.get("pool") != "qubit"
+    )
+    det_only = fermionic and not tapered and estimator["name"] == "exact"
+    sv_qubits = 0 if det_only else max(1, n_qubits - (2 if tapered else 0))
+    mem = dets * 8 * 40 + (2**sv_qubits * 16 * 8 if sv_qubits else 0)
+    runtime = 15 + dets // 20_000 + (2**sv_qubits // 2**18 if sv_qubits else 0)
+    return {
+        "n_qubits": n_qubits,
+        "determinants": dets,
+        "simulator": "determinant space" if det_only else "statevector",
+        "statevector_qubits": sv_qubits,
+        "mem_mb": mem // 2**20,
+        "runtime_min": runtime,
+    }
+
+
+def check_limits(plan: Plan, limits: dict) -> list[str]:
+    """Problems of the plan above the config's ``limits`` (one line each, first per problem).
+
+    ``limits`` is the validated ``limits`` section: ``qubits``, ``statevector_qubits``,
+    ``determinants``, ``memory_mb``, ``stage_jobs``.
+    """
+    out: list[str] = []
+    if len(plan.nodes) > limits["stage_jobs"]:
+        out.append(
+            f"the sweep has {len(plan.nodes)} stage jobs, above limits.stage_jobs "
+            f"({limits['stage_jobs']}); split it or scan fewer points"
+        )
+    seen: set[tuple] = set()
+    for row in plan.rows:
+        size = optimize_size(plan.nodes[row["key"]], plan)
+        what = f"molecule {row['molecule']} point {row['point']}"
+        checks = (
+            ("qubits", size["n_qubits"], f"{size['n_qubits']} qubits"),
+            ("determinants", size["determinants"], f"{size['determinants']:.3g} determinants"),
+            (
+                "statevector_qubits",
+                size["statevector_qubits"],
+                f"a {size['statevector_qubits']}-qubit statevector ({row['ansatz']}, "
+                f"{row['estimator']}{', tapered' if row['tapered'] else ''})",
+            ),
+            ("memory_mb", size["mem_mb"], f"about {size['mem_mb']:.3g} MB for one optimize job"),
+        )
+        for limit, value, text in checks:
+            tag = (row["key_integrals"], limit, text)
+            if value > limits[limit] and tag not in seen:
+                seen.add(tag)
+                out.append(
+                    f"{what}: {text}, above limits.{limit} ({limits[limit]}); choose a smaller "
+                    "active space (molecules[].active) or basis"
+                )
+    return out
 
 
 def _integrals_params(node: Node, plan: Plan) -> dict | None:

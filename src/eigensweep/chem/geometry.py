@@ -23,6 +23,7 @@ __all__ = [
     "MIN_DISTANCE_ANGSTROM",
     "atomic_number",
     "canonical_atoms",
+    "check_geometry",
     "min_distance",
     "noble_gas_core_orbitals",
     "normalise_unit",
@@ -193,7 +194,8 @@ def min_distance(
 ) -> tuple[float, int, int]:
     """Smallest internuclear distance of a parsed geometry, in Angstrom.
 
-    Nearest neighbours from a k-d tree (SciPy), so 10^5 atoms take well under a second.
+    All pairs at once for up to 64 atoms, else nearest neighbours from a k-d tree (SciPy), so
+    10^5 atoms take about a second.
 
     Args:
         parsed: output of :func:`parse_atoms`.
@@ -204,16 +206,42 @@ def min_distance(
         atom.
     """
     import numpy as np
-    from scipy.spatial import cKDTree
 
     if len(parsed) < 2:
         return (math.inf, 0, 0)
     scale = BOHR_IN_ANGSTROM if normalise_unit(unit) == "bohr" else 1.0
     coords = scale * np.array([xyz for _, xyz in parsed], dtype=float)
+    if len(parsed) <= 64:  # all pairs at once; the tree pays off for large molecules
+        d2 = ((coords[:, None, :] - coords[None, :, :]) ** 2).sum(axis=-1)
+        d2[np.diag_indices_from(d2)] = np.inf
+        i, j = np.unravel_index(int(np.argmin(d2)), d2.shape)
+        return (float(np.sqrt(d2[i, j])), int(min(i, j)) + 1, int(max(i, j)) + 1)
+    from scipy.spatial import cKDTree
+
     dist, idx = cKDTree(coords).query(coords, k=2)
     i = int(np.argmin(dist[:, 1]))
     j = int(idx[i, 1])
     return (float(dist[i, 1]), min(i, j) + 1, max(i, j) + 1)
+
+
+def check_geometry(
+    atoms: str, unit: str = "angstrom", where: str = "molecule"
+) -> list[tuple[str, tuple[float, float, float]]]:
+    """Parse ``atoms`` (:func:`parse_atoms`) and refuse nuclei closer than 0.1 Angstrom.
+
+    Returns:
+        The parsed geometry.
+    """
+    parsed = parse_atoms(atoms, unit, where)
+    dist, i, j = min_distance(parsed, unit)
+    if dist < MIN_DISTANCE_ANGSTROM:
+        raise ConfigError(
+            _one_line(
+                f"{where}: atoms: atoms {i} and {j} are {dist:.3g} Angstrom apart "
+                f"(< {MIN_DISTANCE_ANGSTROM}); check the coordinates and unit ({unit})"
+            )
+        )
+    return parsed
 
 
 def noble_gas_core_orbitals(z: int) -> int:

@@ -49,12 +49,10 @@ from pyscf.scf import stability as scf_stability
 from eigensweep.chem.exact import SectorSolution, n_determinants, solve_sector
 from eigensweep.chem.geometry import (
     ELEMENTS,
-    MIN_DISTANCE_ANGSTROM,
     atomic_number,
-    min_distance,
+    check_geometry,
     noble_gas_core_orbitals,
     normalise_unit,
-    parse_atoms,
 )
 from eigensweep.errors import ChemistryError, ConfigError, StageFileError
 
@@ -406,7 +404,7 @@ def _plan(
     where: str,
 ) -> _Plan:
     unit = normalise_unit(unit, where)
-    parsed = parse_atoms(atoms, unit, where)
+    parsed = check_geometry(atoms, unit, where)
     if not _is_int(charge):
         raise ConfigError(_one_line(f"{where}: charge: {charge!r} is not an integer; fix it"))
     if not _is_int(multiplicity) or multiplicity < 1:
@@ -414,14 +412,6 @@ def _plan(
             _one_line(
                 f"{where}: multiplicity: {multiplicity!r} is not valid; give 2S+1 >= 1 "
                 "(1 singlet, 2 doublet, 3 triplet, ...)"
-            )
-        )
-    dist, i, j = min_distance(parsed, unit)
-    if dist < MIN_DISTANCE_ANGSTROM:
-        raise ConfigError(
-            _one_line(
-                f"{where}: atoms: atoms {i} and {j} are {dist:.3g} Angstrom apart "
-                f"(< {MIN_DISTANCE_ANGSTROM}); check the coordinates and unit ({unit})"
             )
         )
     if not isinstance(basis, str) or not basis.strip():
