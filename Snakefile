@@ -10,6 +10,7 @@ min_version("8.20")
 # The sweep file: `--config sweep=FILE` (what `eigensweep run` passes), else config/config.yaml;
 # workflow/rules/common.smk reads it with eigensweep's loader (see config/README.md).
 
+
 report: "workflow/report/workflow.rst"
 
 
