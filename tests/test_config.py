@@ -369,3 +369,18 @@ def test_stage_job_limit(tmp_path, monkeypatch, capsys):
     assert main(["plan", "--config", "c.yaml"]) == 2
     assert "4 stage jobs, above limits.stage_jobs (3)" in capsys.readouterr().err
     assert main(["plan", "--config", "c.yaml", "--force"]) == 0
+
+
+def test_huge_molecules_are_refused_in_one_line(tmp_path, monkeypatch, capsys):
+    # 2,000 hydrogen atoms: C(2000, 1000)^2 determinants (about 10^1200) must not overflow
+    from eigensweep.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    lines = [f"H 0 0 {1.0 * i}" for i in range(2000)]
+    (tmp_path / "chain.xyz").write_text(f"{len(lines)}\nchain\n" + "\n".join(lines) + "\n")
+    _write(tmp_path, "molecules:\n  - name: chain\n    xyz: chain.xyz\n", "c.yaml")
+    assert main(["plan", "--config", "c.yaml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "4000 qubits, above limits.qubits" in err and "\n" not in err
+    assert main(["plan", "--config", "c.yaml", "--force"]) == 0
+    assert "inf" in capsys.readouterr().out

@@ -72,7 +72,7 @@ def _gate(plan, cfg: dict, path: Path, force: bool) -> None:
 
 def _print_sizes(plan) -> None:
     """Qubits, determinants, simulator, memory and time per problem, estimated before work."""
-    from .resources import optimize_size
+    from .resources import approx, optimize_size
 
     print("\nsize per problem (estimated from the plan, before any chemistry):")
     print(
@@ -89,8 +89,8 @@ def _print_sizes(plan) -> None:
         qubits = size["statevector_qubits"] or size["n_qubits"]
         print(
             f"{row['molecule']:<10} {row['point']:<14} {str(row['tapered']):<6} "
-            f"{size['simulator']:<18} {qubits:>6} {size['determinants']:>13.4g} "
-            f"{size['mem_mb']:>10.4g} {size['runtime_min']:>8.3g}"
+            f"{size['simulator']:<18} {qubits:>6} {approx(size['determinants']):>13} "
+            f"{approx(size['mem_mb']):>10} {approx(size['runtime_min']):>8}"
         )
 
 

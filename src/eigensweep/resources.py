@@ -69,23 +69,23 @@ def stage_resources(node: Node, plan: Plan) -> dict[str, int]:
     """Memory (MB) and runtime (minutes) to request for one stage job."""
     int_params = _integrals_params(node, plan)
     norb, na, nb = estimate_size(int_params) if int_params else (4, 1, 1)
-    dets = math.comb(norb, na) * math.comb(norb, nb)
+    dets = _determinants(norb, na, nb)
     n_qubits = 2 * norb
     if node.stage == "integrals":
         return {
-            "mem_mb": 1000 + min(64000, 8 * dets * 8 // 2**20 * 6),
-            "runtime": 10 + dets // 200_000,
+            "mem_mb": 1000 + int(min(64000, 8 * dets * 8 // 2**20 * 6)),
+            "runtime": int(min(MAX_RUNTIME_MIN, 10 + dets // 200_000)),
         }
     if node.stage in ("hamiltonian", "taper"):
         return {
-            "mem_mb": 1000 + min(64000, (2**n_qubits) * 16 * 4 // 2**20),
-            "runtime": 10 + n_qubits,
+            "mem_mb": 1000 + int(min(64000, 2.0 ** min(n_qubits, 1000) * 16 * 4 // 2**20)),
+            "runtime": int(min(MAX_RUNTIME_MIN, 10 + n_qubits)),
         }
     if node.stage == "optimize":
         size = optimize_size(node, plan)
         return {
-            "mem_mb": 1000 + min(120000, size["mem_mb"]),
-            "runtime": min(MAX_RUNTIME_MIN, size["runtime_min"]),
+            "mem_mb": 1000 + int(min(120000, size["mem_mb"])),
+            "runtime": int(min(MAX_RUNTIME_MIN, size["runtime_min"])),
         }
     return {"mem_mb": 2000, "runtime": 30}
 
@@ -108,7 +108,7 @@ def optimize_size(node: Node, plan: Plan) -> dict:
     40, plus 16-byte amplitudes x 8 for a statevector) and ``runtime_min`` (a rough scale).
     """
     norb, na, nb = estimate_size(_integrals_params(node, plan) or {})
-    dets = math.comb(norb, na) * math.comb(norb, nb)
+    dets = _determinants(norb, na, nb)
     n_qubits = 2 * norb
     ansatz, estimator = node.params["ansatz"], node.params["estimator"]
     taper_node = plan.nodes.get(node.parents.get("taper", ""))
@@ -118,16 +118,39 @@ def optimize_size(node: Node, plan: Plan) -> dict:
     )
     det_only = fermionic and not tapered and estimator["name"] == "exact"
     sv_qubits = 0 if det_only else max(1, n_qubits - (2 if tapered else 0))
-    mem = dets * 8 * 40 + (2**sv_qubits * 16 * 8 if sv_qubits else 0)
-    runtime = 15 + dets // 20_000 + (2**sv_qubits // 2**18 if sv_qubits else 0)
+    amplitudes = 2.0 ** min(sv_qubits, 1000) if sv_qubits else 0.0
+    mem = float(dets) * 8 * 40 + amplitudes * 16 * 8
+    runtime = 15 + float(dets) / 20_000 + amplitudes / 2**18
     return {
         "n_qubits": n_qubits,
         "determinants": dets,
         "simulator": "determinant space" if det_only else "statevector",
         "statevector_qubits": sv_qubits,
-        "mem_mb": mem // 2**20,
-        "runtime_min": runtime,
+        "mem_mb": _int_if_small(mem / 2**20),
+        "runtime_min": _int_if_small(runtime),
     }
+
+
+def _determinants(norb: int, na: int, nb: int) -> int | float:
+    """C(norb, na) C(norb, nb): exact below 10^15, else a float (inf beyond 1e308)."""
+    log10 = sum(
+        (math.lgamma(norb + 1) - math.lgamma(k + 1) - math.lgamma(norb - k + 1)) / math.log(10)
+        for k in (na, nb)
+    )
+    if log10 < 15:
+        return math.comb(norb, na) * math.comb(norb, nb)
+    return math.inf if log10 > 308 else 10.0**log10
+
+
+def _int_if_small(x: float) -> int | float:
+    return int(x) if x < 1e15 else x
+
+
+def approx(n: int | float) -> str:
+    """A count for messages: exact below a million, else ``d.dde+NN`` (``inf`` if unbounded)."""
+    if n < 1e6:
+        return str(int(n))
+    return "inf" if math.isinf(n) else f"{n:.2e}"
 
 
 def check_limits(plan: Plan, limits: dict) -> list[str]:
@@ -148,14 +171,18 @@ def check_limits(plan: Plan, limits: dict) -> list[str]:
         what = f"molecule {row['molecule']} point {row['point']}"
         checks = (
             ("qubits", size["n_qubits"], f"{size['n_qubits']} qubits"),
-            ("determinants", size["determinants"], f"{size['determinants']:.3g} determinants"),
+            ("determinants", size["determinants"], f"{approx(size['determinants'])} determinants"),
             (
                 "statevector_qubits",
                 size["statevector_qubits"],
                 f"a {size['statevector_qubits']}-qubit statevector ({row['ansatz']}, "
                 f"{row['estimator']}{', tapered' if row['tapered'] else ''})",
             ),
-            ("memory_mb", size["mem_mb"], f"about {size['mem_mb']:.3g} MB for one optimize job"),
+            (
+                "memory_mb",
+                size["mem_mb"],
+                f"about {approx(size['mem_mb'])} MB for one optimize job",
+            ),
         )
         for limit, value, text in checks:
             tag = (row["key_integrals"], limit, text)
