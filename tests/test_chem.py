@@ -62,7 +62,7 @@ CASES = {
             charge=1,
             multiplicity=2,
             frozen_core="auto",
-            active={"electrons": 1, "orbitals": 3},
+            active={"electrons": 1, "orbitals": 4},  # 3 would split the 2p pi pair
         ),
         1,
         1,
@@ -217,13 +217,16 @@ def test_correlated_closed_shell_match_pyscf():
     assert res.references["mp2"] == pytest.approx(pt.e_tot, abs=1e-7)
     assert res.references["ccsd"] == pytest.approx(mycc.e_tot, abs=1e-7)
     assert res.references["ccsd_t"] == pytest.approx(mycc.e_tot + mycc.ccsd_t(), abs=1e-7)
-    assert res.reference_notes["ccsd"] == "frozen orbitals: 3 core, 0 virtual (same space as casci)"
+    assert res.reference_notes["ccsd"] == (
+        "RHF-based; frozen orbitals: 3 core, 0 virtual (same space as casci)"
+    )
     full = compute_integrals(atoms=H2O, basis="sto-3g")
     mf = scf.RHF(gto.M(atom=H2O, basis="sto-3g", verbose=0)).run(conv_tol=1e-12)
     mycc = cc.CCSD(mf).run(verbose=0, conv_tol=1e-10)
     assert full.references["mp2"] == pytest.approx(mp.MP2(mf).run(verbose=0).e_tot, abs=1e-7)
     assert full.references["ccsd_t"] == pytest.approx(mycc.e_tot + mycc.ccsd_t(), abs=1e-7)
-    assert full.reference_notes == {}
+    # each correlated rung names its reference determinant (RHF here), nothing else to say
+    assert full.reference_notes == {k: "RHF-based" for k in ("mp2", "ccsd", "ccsd_t")}
 
 
 def _rmp2_spin_orbital(mf: scf.rohf.ROHF) -> float:
@@ -319,7 +322,7 @@ def _fock_space_hamiltonian(res: IntegralsResult) -> tuple[sp.csr_matrix, np.nda
 
 
 def test_sector_energy_not_fock_space_minimum_small_cation():
-    res = ours("lih_cation_active")  # LiH+ doublet, 1 active electron in 3 orbitals
+    res = ours("lih_cation_active")  # LiH+ doublet, 1 active electron in 4 orbitals
     ham, number, two_sz = _fock_space_hamiltonian(res)
     dense = ham.toarray()
     # H conserves N and Sz, so its spectrum is the union of the (N, 2Sz) blocks

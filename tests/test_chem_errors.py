@@ -11,7 +11,7 @@ import pytest
 from pyscf import lib
 
 from eigensweep.chem import check_molecule, compute_integrals, read_xyz
-from eigensweep.chem import integrals as integrals_module
+from eigensweep.chem import scf as scf_module
 from eigensweep.errors import ChemistryError, ConfigError
 
 WHERE = "molecules[1] (h2) point r=0.74"
@@ -127,7 +127,7 @@ def test_scf_non_convergence_is_chemistry_error(monkeypatch):
         mf.converged = False
         mf.e_tot = 0.0
 
-    monkeypatch.setattr(integrals_module, "_kernel", never_converges)
+    monkeypatch.setattr(scf_module, "_kernel", never_converges)
     with pytest.raises(ChemistryError) as info:
         compute_integrals(atoms=H2, basis="sto-3g", label=WHERE)
     message = str(info.value)

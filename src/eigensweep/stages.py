@@ -57,10 +57,10 @@ def run_integrals(
     from .chem import compute_integrals
 
     p = node.params
-    guess = None
+    guess, neighbour_orbsym = None, None
     if "guess" in inputs:
         prev = load_integrals(inputs["guess"])
-        guess = (prev.mo_coeff, prev.mo_occ)
+        guess, neighbour_orbsym = (prev.mo_coeff, prev.mo_occ), prev.orbsym
     with Timer() as t:
         res = compute_integrals(
             **molecule_kwargs(p),
@@ -69,6 +69,7 @@ def run_integrals(
             stability=p["stability"],
             guess=guess,
             label=f"integrals {node.key} ({p['atoms']})",
+            neighbour_orbsym=neighbour_orbsym,
         )
     arrays, meta = res.to_store()
     _say(
