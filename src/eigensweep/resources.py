@@ -4,7 +4,8 @@ The planner does not run PySCF, so sizes are estimated from the molecule: spatia
 the basis and elements (minimal and split-valence counts per element; larger bases are scaled),
 electrons from the elements and charge, or directly from the active space when one is given.
 The determinant count C(norb, n_alpha) * C(norb, n_beta) drives the optimize stage's memory
-(several CI vectors of 8-byte floats, plus PySCF's intermediates) and its runtime.
+(:func:`eigensweep.vqe.detsize.detspace_memory_mb`: CI vectors of 8-byte floats for the
+emulation and the exact reference) and its runtime.
 Estimates are deliberately generous; Snakemake doubles them on each retry (``attempt``).
 """
 
@@ -14,6 +15,7 @@ import math
 import re
 
 from .plan import Node, Plan
+from .vqe.detsize import detspace_memory_mb_of
 
 _Z = {
     "H": 1,
@@ -104,8 +106,9 @@ def optimize_size(node: Node, plan: Plan) -> dict:
     (C(norb, n_alpha) C(norb, n_beta), the exact reference and determinant-space emulation),
     ``simulator`` (``"determinant space"`` for fermionic ansätze, untapered, exact estimator;
     else ``"statevector"``, with ``statevector_qubits``: the mapped qubits, two fewer when
-    tapered, as the two spin-parity symmetries always taper), ``mem_mb`` (8-byte CI vectors x
-    40, plus 16-byte amplitudes x 8 for a statevector) and ``runtime_min`` (a rough scale).
+    tapered, as the two spin-parity symmetries always taper), ``mem_mb``
+    (:func:`eigensweep.vqe.detsize.detspace_memory_mb_of`, plus 16-byte amplitudes x 8 for a
+    statevector) and ``runtime_min`` (a rough scale).
     """
     norb, na, nb = estimate_size(_integrals_params(node, plan) or {})
     dets = _determinants(norb, na, nb)
@@ -119,7 +122,8 @@ def optimize_size(node: Node, plan: Plan) -> dict:
     det_only = fermionic and not tapered and estimator["name"] == "exact"
     sv_qubits = 0 if det_only else max(1, n_qubits - (2 if tapered else 0))
     amplitudes = 2.0 ** min(sv_qubits, 1000) if sv_qubits else 0.0
-    mem = float(dets) * 8 * 40 + amplitudes * 16 * 8
+    # CI vectors: eigensweep.vqe.detsize (emulation and the exact reference, as the stage runs)
+    mem = detspace_memory_mb_of(dets) * 2**20 + amplitudes * 16 * 8
     runtime = 15 + float(dets) / 20_000 + amplitudes / 2**18
     return {
         "n_qubits": n_qubits,

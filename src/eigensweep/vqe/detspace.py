@@ -17,8 +17,24 @@ determinants ``(src, dst)`` with ``G|src> = s|dst>``, ``G|dst> = -s|src>``. On e
 
     exp(phi G) = 1 + sin(phi) G + (1 - cos(phi)) G^2,
 
-i.e. a plane rotation of every pair. A gate is stored as three flat arrays (``src``, ``dst``,
-``sign``) and applied in O(#connected determinants) with numpy fancy indexing.
+i.e. a plane rotation of every pair.
+
+Factored gates
+--------------
+Written as ``T = sign * T_alpha T_beta`` (alpha operators moved left of beta ones), ``T``
+acts on the CI matrix ``C[ia, ib]`` through one map of alpha strings and one of beta strings
+(``T_alpha|src_a[i]> = sign_a[i] |dst_a[i]>``, likewise beta): the pairs of an alpha-beta
+double are the outer product of the two maps, ``(src_a[i], src_b[j]) <-> (dst_a[i],
+dst_b[j])``, and an alpha-only (beta-only) gate rotates whole rows (columns). A gate stores
+only references to its string maps, which are memoised per :class:`DetSpace` and shared by all
+gates with the same one-spin part (the 1,296 alpha-beta doubles of a (12e,12o) UCCSD use 36
+alpha and 36 beta maps), so gate memory grows with the number of strings, not with
+determinants x excitations (the previous engine stored every ``(src, dst, sign)`` pair:
+128 million pairs, 3.3 GB at (12e,12o)). :class:`GateSequence` packs the maps once into flat
+arrays and the compiled kernels of :mod:`eigensweep.vqe.detkernels` apply a whole sequence
+(forward) or the fused gradient-and-un-apply backward sweep in one call, with threads over
+rows (``OMP_NUM_THREADS``, one thread below ``SINGLE_THREAD_DIM`` determinants). Memory per
+problem: :mod:`eigensweep.vqe.detsize` (size gate and cluster requests).
 
 Sign conventions
 ----------------
@@ -43,13 +59,19 @@ un-applies each gate to both ``psi`` and ``lambda``; ``dE/dphi_k = 2 <lambda_k|G
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from math import comb
 
+import numba
 import numpy as np
 from pyscf import lib
 from pyscf.fci import cistring, direct_spin1
+
+from ..errors import ConfigError
+from . import detkernels
+from .detsize import detspace_memory_mb, n_determinants, physical_memory_mb
 
 # below this CI dimension ``contract_2e`` runs single-threaded: idle OpenMP workers spinning
 # next to the optimizer's BLAS threads cost far more than the parallel speed-up
@@ -58,21 +80,43 @@ SINGLE_THREAD_DIM = 40000
 FermionTerm = tuple[tuple[int, int], ...]
 
 
+SpinMap = tuple[np.ndarray, np.ndarray, np.ndarray]
+_EMPTY_MAP: SpinMap = (
+    np.zeros(0, dtype=np.int64),
+    np.zeros(0, dtype=np.int64),
+    np.zeros(0, dtype=np.float64),
+)
+
+
 @dataclass(frozen=True)
 class ExcitationGate:
-    """Index arrays of one excitation generator ``G = T - T^dagger`` on the flat CI vector.
+    """One excitation generator ``G = T - T^dagger`` in factored form on the CI matrix.
 
-    ``T|src[i]> = sign[i] |dst[i]>``; ``term`` is the OpenFermion-style operator tuple of ``T``.
+    ``T = sign * T_alpha T_beta`` with ``T_alpha|src_a[i]> = sign_a[i] |dst_a[i]>`` on the
+    alpha strings (``alpha = None``: no alpha operators) and likewise ``beta``;
+    ``T|A, B> = sign * sign_a * sign_b |A', B'>``. ``kind`` is 0 (both spins), 1 (alpha
+    only), 2 (beta only), 3 (no operator: the identity gate, never produced by
+    :meth:`DetSpace.gate`). ``term`` is the OpenFermion-style operator tuple of ``T``.
+    String maps are shared between all gates of a :class:`DetSpace` that use them.
     """
 
     term: FermionTerm
-    src: np.ndarray
-    dst: np.ndarray
-    sign: np.ndarray
+    alpha: SpinMap | None
+    beta: SpinMap | None
+    sign: float
+    n_pairs: int
 
     @property
-    def n_pairs(self) -> int:
-        return int(self.src.size)
+    def kind(self) -> int:
+        if self.alpha is not None and self.beta is not None:
+            return 0
+        if self.alpha is not None:
+            return 1
+        return 2 if self.beta is not None else 3
+
+    def maps(self) -> tuple[SpinMap, SpinMap]:
+        """(alpha map, beta map), empty arrays where a spin has no operator."""
+        return (self.alpha or _EMPTY_MAP, self.beta or _EMPTY_MAP)
 
 
 def _popcount(a: np.ndarray) -> np.ndarray:
@@ -102,6 +146,21 @@ def _apply_ops_to_strings(
     return valid, s, sign
 
 
+def check_fits(norb: int, nelec: tuple[int, int]) -> None:
+    """Size gate: refuse a space whose emulation cannot fit in this machine's memory.
+
+    Uses :func:`eigensweep.vqe.detsize.detspace_memory_mb` (without the exact reference).
+    """
+    need = detspace_memory_mb(norb, nelec, exact_reference=False)
+    have = physical_memory_mb()
+    if have is not None and need > have:
+        raise ConfigError(
+            f"active space: {n_determinants(norb, nelec):,} determinants ({2 * norb} qubits) "
+            f"need about {need / 1024:.1f} GB for determinant-space emulation, more than this "
+            f"machine's {have / 1024:.1f} GB; choose a smaller molecules[].active or a larger node"
+        )
+
+
 class DetSpace:
     """Determinant space of ``norb`` spatial orbitals with ``nelec = (n_alpha, n_beta)``.
 
@@ -122,6 +181,7 @@ class DetSpace:
         na_el, nb_el = self.nelec
         if not (0 <= na_el <= self.norb and 0 <= nb_el <= self.norb):
             raise ValueError(f"nelec {self.nelec} does not fit in {self.norb} orbitals")
+        check_fits(self.norb, self.nelec)
         self.strings_a = np.asarray(cistring.make_strings(range(self.norb), na_el), dtype=np.int64)
         self.strings_b = np.asarray(cistring.make_strings(range(self.norb), nb_el), dtype=np.int64)
         self.na = comb(self.norb, na_el)
@@ -134,6 +194,7 @@ class DetSpace:
         )
         self._h2e: np.ndarray | None = None
         self._gate_cache: dict[FermionTerm, ExcitationGate] = {}
+        self._map_cache: dict[tuple, SpinMap] = {}
         self._threads: int | None = 1 if self.dim < SINGLE_THREAD_DIM else None
         if h1e is not None:
             if eri is None:
@@ -191,8 +252,27 @@ class DetSpace:
         return vec
 
     # ------------------------------------------------------------------ gates
+    def spin_map(self, spin: int, ops: tuple[tuple[int, int], ...]) -> SpinMap:
+        """String map ``(src, dst, sign)`` of a product of one-spin operators (memoised).
+
+        ``ops`` are ``(spatial orbital, action)`` pairs, rightmost applied first, on the
+        strings of ``spin`` (0 alpha, 1 beta) in the ascending in-string convention.
+        """
+        key = (int(spin), tuple((int(o), int(a)) for o, a in ops))
+        if key not in self._map_cache:
+            strings = self.strings_a if spin == 0 else self.strings_b
+            valid, new, sgn = _apply_ops_to_strings(strings, key[1])
+            src = np.nonzero(valid)[0].astype(np.int64)
+            dst = (
+                np.asarray(cistring.strs2addr(self.norb, self.nelec[spin], new[src]), np.int64)
+                if src.size
+                else src.copy()
+            )
+            self._map_cache[key] = (src, dst, sgn[src].astype(np.float64))
+        return self._map_cache[key]
+
     def gate(self, term: FermionTerm) -> ExcitationGate:
-        """Index arrays for ``G = T - T^dagger`` with ``T`` the operator product ``term``.
+        """Factored form of ``G = T - T^dagger`` with ``T`` the operator product ``term``.
 
         ``term`` must conserve the alpha and beta electron numbers and must not be
         number-operator-like (a creation and an annihilation on the same spin orbital).
@@ -204,14 +284,15 @@ class DetSpace:
                 raise ValueError(f"bad operator {(o, a)} for {n_so} spin orbitals")
         cre = {o for o, a in term if a == 1}
         ann = {o for o, a in term if a == 0}
-        if cre & ann or len(cre) + len(ann) != len(term):
+        if cre & ann or len(cre) + len(ann) != len(term) or not term:
             raise ValueError(f"term {term} repeats a spin orbital; not an excitation generator")
         for spin in (0, 1):
             nc = sum(1 for o, a in term if o % 2 == spin and a == 1)
             nd = sum(1 for o, a in term if o % 2 == spin and a == 0)
             if nc != nd:
                 raise ValueError(f"term {term} does not conserve the spin-{spin} electron count")
-        # reorder to (alpha ops)(beta ops): sign of moving alpha operators left past beta ones
+        # reorder to (alpha ops)(beta ops): sign of moving alpha operators left past beta ones;
+        # the beta operators (an even number) then pass the alpha creators of |A, B> freely
         n_swaps = 0
         seen_beta = 0
         for o, _ in term:
@@ -219,67 +300,73 @@ class DetSpace:
                 seen_beta += 1
             else:
                 n_swaps += seen_beta
-        reorder_sign = -1 if n_swaps % 2 else 1
-        ops_a = [(o // 2, a) for o, a in term if o % 2 == 0]
-        ops_b = [(o // 2, a) for o, a in term if o % 2 == 1]
-        va, new_a, sa = _apply_ops_to_strings(self.strings_a, ops_a)
-        vb, new_b, sb = _apply_ops_to_strings(self.strings_b, ops_b)
-        src_a = np.nonzero(va)[0]
-        src_b = np.nonzero(vb)[0]
-        dst_a = (
-            np.asarray(cistring.strs2addr(self.norb, self.nelec[0], new_a[src_a]), dtype=np.int64)
-            if src_a.size
-            else src_a
-        )
-        dst_b = (
-            np.asarray(cistring.strs2addr(self.norb, self.nelec[1], new_b[src_b]), dtype=np.int64)
-            if src_b.size
-            else src_b
-        )
-        src = (src_a[:, None] * self.nb + src_b[None, :]).reshape(-1)
-        dst = (dst_a[:, None] * self.nb + dst_b[None, :]).reshape(-1)
-        sign = (reorder_sign * sa[src_a][:, None] * sb[src_b][None, :]).reshape(-1)
+        ops_a = tuple((o // 2, a) for o, a in term if o % 2 == 0)
+        ops_b = tuple((o // 2, a) for o, a in term if o % 2 == 1)
+        alpha = self.spin_map(0, ops_a) if ops_a else None
+        beta = self.spin_map(1, ops_b) if ops_b else None
+        n_a = alpha[0].size if alpha is not None else self.na
+        n_b = beta[0].size if beta is not None else self.nb
         return ExcitationGate(
             term=term,
-            src=src.astype(np.intp),
-            dst=dst.astype(np.intp),
-            sign=sign.astype(np.float64),
+            alpha=alpha,
+            beta=beta,
+            sign=-1.0 if n_swaps % 2 else 1.0,
+            n_pairs=int(n_a * n_b),
         )
 
     def cached_gate(self, term: FermionTerm) -> ExcitationGate:
-        """:meth:`gate` memoised per term on this space (ansätze built on it share arrays)."""
+        """:meth:`gate` memoised per term on this space (ansätze built on it share maps)."""
         key = tuple((int(o), int(a)) for o, a in term)
         if key not in self._gate_cache:
             self._gate_cache[key] = self.gate(key)
         return self._gate_cache[key]
 
-    @staticmethod
-    def apply_gate(gate: ExcitationGate, phi: float, vec: np.ndarray) -> None:
+    def map_bytes(self) -> int:
+        """Bytes held by the memoised string maps of this space (all gates built so far)."""
+        return sum(a.nbytes for m in self._map_cache.values() for a in m)
+
+    def _matrix(self, vec: np.ndarray) -> np.ndarray:
+        if vec.size != self.dim or not vec.flags.c_contiguous or vec.dtype != np.float64:
+            raise ValueError(f"expected a contiguous float64 CI vector of {self.dim} entries")
+        return vec.reshape(self.na, self.nb)
+
+    def apply_gate(self, gate: ExcitationGate, phi: float, vec: np.ndarray) -> None:
         """In place: ``vec <- exp(phi G) vec`` (plane rotation of each connected pair)."""
-        if gate.src.size == 0:
+        if gate.kind == 3 or gate.n_pairs == 0:
             return
-        c = np.cos(phi)
-        s = np.sin(phi)
-        a = vec[gate.src]
-        b = vec[gate.dst]
-        ss = s * gate.sign
-        vec[gate.src] = c * a - ss * b
-        vec[gate.dst] = c * b + ss * a
+        a_map, b_map = gate.maps()
+        with self.threads():
+            detkernels.rotate(
+                self._matrix(vec), gate.kind, a_map, b_map, np.cos(phi), np.sin(phi) * gate.sign
+            )
 
-    @staticmethod
-    def apply_generator(gate: ExcitationGate, vec: np.ndarray) -> np.ndarray:
-        """Return ``G vec`` (new array)."""
-        out = np.zeros_like(vec)
-        out[gate.dst] = gate.sign * vec[gate.src]
-        out[gate.src] = -gate.sign * vec[gate.dst]
-        return out
-
-    @staticmethod
-    def generator_expectation(gate: ExcitationGate, bra: np.ndarray, ket: np.ndarray) -> float:
-        """``<bra|G|ket>`` for real vectors."""
-        if gate.src.size == 0:
+    def generator_expectation(
+        self, gate: ExcitationGate, bra: np.ndarray, ket: np.ndarray
+    ) -> float:
+        """``<bra|G|ket>`` for real CI vectors."""
+        if gate.kind == 3 or gate.n_pairs == 0:
             return 0.0
-        return float(gate.sign @ (bra[gate.dst] * ket[gate.src] - bra[gate.src] * ket[gate.dst]))
+        a_map, b_map = gate.maps()
+        bra = np.ascontiguousarray(bra, dtype=np.float64)
+        ket = np.ascontiguousarray(ket, dtype=np.float64)
+        with self.threads():
+            val = detkernels.expect(self._matrix(bra), self._matrix(ket), gate.kind, a_map, b_map)
+        return gate.sign * val
+
+    @contextmanager
+    def threads(self) -> Iterator[None]:
+        """Thread count of the gate kernels: as PySCF's (``OMP_NUM_THREADS``), 1 if small."""
+        n = (
+            1
+            if self._threads == 1
+            else max(1, min(lib.num_threads(), numba.config.NUMBA_NUM_THREADS))
+        )
+        old = numba.get_num_threads()
+        numba.set_num_threads(n)
+        try:
+            yield
+        finally:
+            numba.set_num_threads(old)
 
 
 # ---------------------------------------------------------------------------- circuits
@@ -287,7 +374,9 @@ class DetSpace:
 class GateSequence:
     """A product of excitation gates ``U = U_K ... U_1`` (``gates[0]`` applied first).
 
-    Gate ``k`` has angle ``coeffs[k] * theta[params[k]]``.
+    Gate ``k`` has angle ``coeffs[k] * theta[params[k]]``. The string maps of all gates are
+    packed once into flat arrays (each distinct map once) for the compiled kernels of
+    :mod:`.detkernels`, which apply the whole sequence in one call.
     """
 
     space: DetSpace
@@ -295,6 +384,47 @@ class GateSequence:
     params: np.ndarray
     coeffs: np.ndarray
     n_params: int
+
+    def __post_init__(self) -> None:
+        self.params = np.asarray(self.params, dtype=np.intp).reshape(-1)
+        self.coeffs = np.asarray(self.coeffs, dtype=np.float64).reshape(-1)
+        index: dict[int, int] = {}
+        maps: list[SpinMap] = []
+
+        def map_id(m: SpinMap | None) -> int:
+            if m is None:
+                return -1
+            if id(m[0]) not in index:
+                index[id(m[0])] = len(maps)
+                maps.append(m)
+            return index[id(m[0])]
+
+        self._g_a = np.array([map_id(g.alpha) for g in self.gates], dtype=np.int64)
+        self._g_b = np.array([map_id(g.beta) for g in self.gates], dtype=np.int64)
+        self._g_sign = np.array([g.sign for g in self.gates], dtype=np.float64)
+        sizes = [m[0].size for m in maps]
+        self._m_off = np.concatenate([[0], np.cumsum(sizes, dtype=np.int64)]).astype(np.int64)
+        if maps:
+            self._m_src = np.concatenate([m[0] for m in maps]).astype(np.int64)
+            self._m_dst = np.concatenate([m[1] for m in maps]).astype(np.int64)
+            self._m_sign = np.concatenate([m[2] for m in maps]).astype(np.float64)
+        else:
+            self._m_src, self._m_dst, self._m_sign = _EMPTY_MAP
+
+    def _packed(self) -> tuple[np.ndarray, ...]:
+        return (self._g_a, self._g_b, self._g_sign)
+
+    def _maps(self) -> tuple[np.ndarray, ...]:
+        return (self._m_off, self._m_src, self._m_dst, self._m_sign)
+
+    @property
+    def n_pairs(self) -> int:
+        """Determinant pairs rotated by one application of the whole sequence."""
+        return int(sum(g.n_pairs for g in self.gates))
+
+    def nbytes(self) -> int:
+        """Bytes of the packed gate data (string maps and per-gate tables)."""
+        return int(sum(a.nbytes for a in (*self._packed(), *self._maps())))
 
     def angles(self, theta: np.ndarray) -> np.ndarray:
         theta = np.asarray(theta, dtype=np.float64).reshape(-1)
@@ -305,9 +435,13 @@ class GateSequence:
         return self.coeffs * theta[self.params]
 
     def state(self, theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
-        vec = np.array(reference, dtype=np.float64, copy=True)
-        for g, phi in zip(self.gates, self.angles(theta), strict=True):
-            DetSpace.apply_gate(g, phi, vec)
+        vec = np.array(reference, dtype=np.float64, copy=True).reshape(-1)
+        phis = self.angles(theta)
+        if self.gates:
+            with self.space.threads():
+                detkernels.apply_sequence(
+                    self.space._matrix(vec), *self._packed(), phis, *self._maps()
+                )
         return vec
 
     def energy(self, theta: np.ndarray, reference: np.ndarray) -> float:
@@ -321,24 +455,16 @@ class GateSequence:
         psi = self.state(theta, reference)
         lam = self.space.apply_h(psi)
         energy = float(psi @ lam) + self.space.e_core
-        dphi = np.zeros(len(self.gates))
-        # the gathered amplitudes serve both the gradient term and the un-application of the
-        # gate to psi and lambda
-        for k in range(len(self.gates) - 1, -1, -1):
-            g = self.gates[k]
-            if g.src.size == 0:
-                continue
-            src, dst, sign = g.src, g.dst, g.sign
-            ps, pd, ls, ld = psi[src], psi[dst], lam[src], lam[dst]
-            # <lam|G|psi> = sum sign * (lam[dst] psi[src] - lam[src] psi[dst])
-            dphi[k] = 2.0 * float(sign @ (ld * ps - ls * pd))
-            if k:
-                c = np.cos(phis[k])
-                ss = -np.sin(phis[k]) * sign
-                psi[src] = c * ps - ss * pd
-                psi[dst] = c * pd + ss * ps
-                lam[src] = c * ls - ss * ld
-                lam[dst] = c * ld + ss * ls
+        if not self.gates:
+            return energy, np.zeros(self.n_params)
+        with self.space.threads():
+            dphi = detkernels.adjoint_sweep(
+                self.space._matrix(psi),
+                self.space._matrix(lam),
+                *self._packed(),
+                phis,
+                *self._maps(),
+            )
         grad = np.bincount(self.params, weights=self.coeffs * dphi, minlength=self.n_params)
         return energy, grad
 
