@@ -16,7 +16,7 @@ from test_vqe_common import molecule  # noqa: E402
 
 from eigensweep.errors import ConfigError  # noqa: E402
 from eigensweep.vqe import UCCSD, DetSpace, Excitation, FermionicAnsatz, detsize, from_qubit_state  # noqa: E402
-from eigensweep.vqe.ansatz import sd_excitation_terms  # noqa: E402
+from eigensweep.vqe.fermionic import sd_excitation_terms  # noqa: E402
 
 
 def _space(name: str, nelec=None, threaded: bool = False) -> DetSpace:
