@@ -45,13 +45,19 @@ SUMMARY_COLUMNS = [
     "energy",
     "energy_stderr",
     *REFERENCE_COLUMNS,
+    "ladder_reference",
     "error_mha",
     "below_exact",
+    "below_exact_cause",
     "overlap_exact",
+    "n_electrons",
+    "spin_square",
+    "spin_mismatch",
     "cnot_count",
     "depth",
     "evaluations",
     "converged",
+    "stop_reason",
     "wall_s",
     "key",
 ]
@@ -89,19 +95,35 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
                 "energy": energy,
                 "energy_stderr": float(m.get("energy_stderr", 0.0)),
                 **{col: float(refs[name]) for col, name in REFERENCE_COLUMNS.items()},
+                "ladder_reference": cache[k_int].get("scf_method", ""),
                 "error_mha": err,
                 # variational check: more than 1e-6 Eh below the sector-exact energy is a red flag
                 "below_exact": bool(math.isfinite(err) and err < -1e-3),
-                "overlap_exact": float(m.get("overlap_exact", float("nan"))),
+                "below_exact_cause": _below_exact_cause(err, m),
+                "overlap_exact": _num(m.get("overlap_exact")),
+                "n_electrons": _num(m.get("n_electrons")),
+                "spin_square": _num(m.get("spin_square")),
+                "spin_mismatch": m.get("spin_mismatch", ""),
                 "cnot_count": m.get("cnot_count", ""),
                 "depth": m.get("depth", ""),
                 "evaluations": m["n_evaluations"],
                 "converged": m.get("converged", ""),
+                "stop_reason": m.get("stop_reason", ""),
                 "wall_s": float(opt.attrs.get("wall_s", float("nan"))),
             }
         )
         out.append(r)
     return out
+
+
+def _below_exact_cause(err: float, m: dict) -> str:
+    """Why an energy lies below the exact one: a state of another spin (the exact reference
+    fixes S) or nothing known, which is a bug."""
+    if not (math.isfinite(err) and err < -1e-3):
+        return ""
+    if m.get("spin_mismatch"):
+        return f"another spin: <S^2> = {_num(m.get('spin_square')):.4f}"
+    return "unexplained: please report"
 
 
 def _num(v) -> float:

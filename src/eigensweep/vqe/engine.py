@@ -95,6 +95,8 @@ class OptimizeResult:
     ``spin_square`` are ``<N>`` and ``<S^2>`` of the optimized state; ``spin_mismatch`` is true
     when ``<S^2>`` differs from ``S(S+1)`` of the reference by more than
     :data:`SPIN_MISMATCH_TOL` or ``<N>`` from the electron count by as much.
+    ``converged`` is true only when the optimizer's own criterion was met; ``stop_reason``
+    says why it stopped (:func:`_stop_reason`).
     ``n_qubits``, ``cnot_count`` and ``depth`` are those of the circuit that is run (tapered
     qubits for a tapered problem), compiled at the optimized parameters exactly as the
     export stage writes it (:func:`~eigensweep.vqe.circuits.circuit_from_meta`; rotations left at
@@ -124,6 +126,7 @@ class OptimizeResult:
     spin_square: float = math.nan
     spin_square_target: float = math.nan
     spin_mismatch: bool = False
+    stop_reason: str = ""
 
     _ARRAYS = ("params", "trace_energy", "trace_grad_norm", "trace_shots")
 
@@ -295,6 +298,24 @@ class _Run:
     n_iterations: int
     converged: bool
     message: str
+    stop_reason: str = ""
+
+
+#: Words of optimizer messages that mean an iteration or evaluation budget ran out.
+_BUDGET_WORDS = ("budget", "schedule", "limit", "maximum number", "max_iter", "maxiter")
+
+
+def _stop_reason(converged: bool, moved: bool, message: str) -> str:
+    """``converged`` (the optimizer's own criterion was met), ``never_moved`` (a
+    derivative-free run returned its start), ``max_iterations`` (its budget ran out) or
+    ``stopped`` (anything else; see the message)."""
+    if not moved:
+        return "never_moved"
+    if converged:
+        return "converged"
+    if any(w in message.lower() for w in _BUDGET_WORDS):
+        return "max_iterations"
+    return "stopped"
 
 
 def _resolve_methods(
@@ -524,11 +545,14 @@ def _optimize_with_restarts(o_cfg: dict, obj: _Objective, x0: np.ndarray, seed: 
     params = np.asarray(res.x, dtype=float)
     message = res.message + (f"; best of {restarts + 1} starts" if restarts else "")
     converged = bool(res.converged)
-    if params.size and np.array_equal(params, np.asarray(start)) and method not in GRADIENT_METHODS:
-        # a derivative-free run that returns its start has not optimized anything
+    moved = not (
+        params.size and np.array_equal(params, np.asarray(start)) and method not in GRADIENT_METHODS
+    )
+    if not moved:  # a derivative-free run that returns its start has not optimized anything
         converged = False
         message += "; the parameters never moved from their start"
-    return _Run(params, trace, int(res.n_iterations), converged, message)
+    reason = _stop_reason(converged, moved, message)
+    return _Run(params, trace, int(res.n_iterations), converged, message, reason)
 
 
 def _adapt_run(built: _Built, initial_params: np.ndarray | None) -> _Run:
@@ -536,7 +560,8 @@ def _adapt_run(built: _Built, initial_params: np.ndarray | None) -> _Run:
     message = res.message
     if initial_params is not None:
         message += "; initial_params ignored (ADAPT grows its ansatz from HF)"
-    return _Run(res.params, res.trace, res.n_iterations, res.converged, message)
+    reason = _stop_reason(bool(res.converged), True, message)
+    return _Run(res.params, res.trace, res.n_iterations, res.converged, message, reason)
 
 
 def _final_energy(
@@ -692,6 +717,7 @@ def run_optimize(
         n_iterations=int(run.n_iterations),
         converged=bool(run.converged),
         message=str(run.message),
+        stop_reason=run.stop_reason,
         wall_s=time.perf_counter() - t_start,
         energy_exact=float(exact.energy),
         ansatz_meta=meta,

@@ -21,7 +21,8 @@ Methods (``method=``):
     calibrated so that the first step moves each parameter by about ``first_step`` on
     average, from ``gain_estimates`` gradient estimates at ``x0``. The returned point is
     the mean of the last ``iterate_average`` iterates (iterate averaging; 1 = last iterate).
-    SPSA has no convergence test: ``converged`` means the gain schedule ran to the end.
+    SPSA has no convergence test: ``converged`` is always False (the gain schedule ran to its
+    end; the optimize result's ``stop_reason`` says ``max_iterations``).
 ``rbf_surrogate``
     Stochastic radial-basis-function surrogate search (Gutmann, J. Global Optim. 19, 201
     (2001); Regis & Shoemaker, INFORMS J. Comput. 19, 497 (2007)): a cubic RBF with linear
@@ -292,8 +293,8 @@ def _spsa(rec: _Recorder, x0: np.ndarray, opts: dict, seed: int) -> OptimizerRes
         0,
         0,
         maxiter,
-        True,
-        f"SPSA gain schedule completed ({maxiter} iterations, a={a:.4g})",
+        False,  # SPSA has no convergence test of its own
+        f"SPSA gain schedule completed ({maxiter} iterations, a={a:.4g}); no convergence test",
     )
 
 
