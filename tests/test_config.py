@@ -149,7 +149,7 @@ def test_stage_key_is_sha256_of_the_completed_entry():
     # reference: the key as defined in DESIGN.md, computed here with hashlib; the removed ansatz
     # options are not part of the completed entry, hence not of the key
     ansatz = complete_method("ansatz", {"name": "uccsd"})
-    assert ansatz == {"name": "uccsd", "spin_adapted": False}
+    assert ansatz == {"name": "uccsd", "spin_flip_tied": False}
     params = {"ansatz": ansatz, "optimizer": method_defaults("optimizer", "lbfgs"), "seed": 7}
     parents = {"taper": "0" * 16, "integrals": "1" * 16}
     blob = json.dumps(

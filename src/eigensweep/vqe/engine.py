@@ -357,12 +357,12 @@ def _build_adapt(
 def _build_fermionic(m: _Methods, space: DetSpace, tapering: TaperResult | None, seed: int):
     a_cfg = m.ansatz
     if a_cfg["name"] == "uccsd":
-        ans: Any = UCCSD(space, spin_adapted=a_cfg["spin_adapted"])
+        ans: Any = UCCSD(space, spin_adapted=a_cfg["spin_flip_tied"])
     else:
         ans = KUpCCGSD(
             space,
             k=a_cfg["k"],
-            spin_adapted=a_cfg["spin_adapted"],
+            spin_adapted=a_cfg["spin_flip_tied"],
             init_scale=a_cfg["init_scale"],
             seed=seed,
         )
