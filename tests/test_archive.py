@@ -248,3 +248,16 @@ def test_extracted_archive_reruns_with_snakemake_alone(two_sweeps, tmp_path):
     )
     assert proc.returncode == 0, proc.stderr[-3000:]
     assert (root / "results" / "summary.csv").read_bytes() == want
+
+
+def test_file_where_a_folder_belongs_is_one_line(tmp_path):
+    # issue 19: verify crashed on a member file standing where a folder is expected
+    path = tmp_path / "odd.tar.gz"
+    with tarfile.open(path, "w:gz") as tar:
+        for name in (f"{ARCHIVE_ROOT}/results", f"{ARCHIVE_ROOT}/results/summary.csv"):
+            info = tarfile.TarInfo(name)
+            info.size = 1
+            tar.addfile(info, io.BytesIO(b"x"))
+    with pytest.raises(EigensweepError, match="cannot be unpacked") as ei:
+        verify_archive(path, stage=None)
+    assert "\n" not in str(ei.value)

@@ -367,7 +367,13 @@ def safe_extract(archive: str | Path, dest: str | Path) -> Path:
                 raise EigensweepError(
                     f"{archive}: member {m.name[:60]!r} is larger than {MAX_MEMBER_BYTES} bytes; refusing"
                 )
-        tar.extractall(dest, members=members, filter="data")
+        try:
+            tar.extractall(dest, members=members, filter="data")
+        except (tarfile.TarError, OSError, EOFError) as exc:
+            raise EigensweepError(
+                f"{archive}: cannot be unpacked ({type(exc).__name__}: a file where a folder "
+                "belongs, or a damaged member); not an eigensweep archive"
+            ) from None
     root = dest / ARCHIVE_ROOT
     if not root.is_dir():
         raise EigensweepError(
