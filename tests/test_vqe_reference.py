@@ -175,3 +175,22 @@ def test_a_wrong_spin_state_is_flagged():
     # reference: PySCF spin_square of the returned state
     assert res.spin_square == pytest.approx(fci.spin_square(state, 2, (1, 1))[0], abs=1e-9)
     assert res.spin_square > 0.1 and res.spin_mismatch
+
+
+def test_restarted_uccsd_below_the_singlet_is_flagged_as_another_spin():
+    from eigensweep.collect import _below_exact_cause
+
+    ints = integrals(O2, 1, (8, 6))
+    res = optimize(ints, optimizer={"name": "lbfgs", "restarts": 3, "restart_scale": 0.3})
+    state = UCCSD(DetSpace(ints.norb, ints.nelec, ints.h1e, ints.eri, ints.e_core)).state(
+        res.params
+    )
+    # reference: PySCF FCI without spin constraint (the triplet) bounds the energy from below;
+    # the restarted run lies between it and the singlet, so it has left the singlet
+    e_any = fci.direct_spin1.FCI().kernel(ints.h1e, ints.eri, 6, (4, 4), ecore=ints.e_core)[0]
+    assert e_any - 1e-9 < res.energy < res.energy_exact - 1e-3
+    # reference: PySCF spin_square of the optimized state
+    assert res.spin_square == pytest.approx(fci.spin_square(state, 6, (4, 4))[0], abs=1e-9)
+    assert res.spin_mismatch and res.spin_square > 0.5
+    cause = _below_exact_cause((res.energy - res.energy_exact) * 1000, res.to_store()[1])
+    assert cause.startswith("another spin")

@@ -1,4 +1,10 @@
-"""Exact lowest eigenvalues of qubit Hamiltonians inside a particle-number / S_z sector.
+"""Lowest eigenvalues of qubit operators inside a particle-number / S_z sector (a diagnostic).
+
+This is *not* eigensweep's exact reference: that is the lowest state with the requested N and
+total spin S, computed once by the integrals stage (:func:`eigensweep.chem.exact.solve_sector`)
+and carried to qubit frames by :mod:`eigensweep.vqe.reference`. The functions here diagonalise
+a qubit operator (mapped or tapered) in an (N, S_z) sector, which holds every S >= |S_z|; tests
+and benchmarks use them to check mappings and tapering spectra against PySCF.
 
 The full qubit space of a molecular Hamiltonian holds every electron number, and its lowest
 eigenvalue need not be the neutral-molecule energy (an ion or a high-spin state can be lower; for
