@@ -461,6 +461,15 @@ def test_store_round_trip_exact(name):
         assert getattr(back, key) == getattr(res, key)
     assert back.n_frozen == res.n_frozen and back.reference_notes == res.reference_notes
     assert back.references == res.references and back.spin_square == res.spin_square
+    np.testing.assert_array_equal(back.exact_vectors, res.exact_vectors)
+    # the stored ground space holds PySCF's FCI ground state(s) of the same integrals and has
+    # their degeneracy (reference: PySCF FCI computed here; OH's 2Pi is a degenerate pair)
+    e_ref, c_ref = fci.direct_spin1.FCI().kernel(res.h1e, res.eri, res.norb, res.nelec, nroots=3)
+    degenerate = [c for e, c in zip(e_ref, c_ref, strict=True) if e - e_ref[0] < 1e-8]
+    assert res.exact_vectors.shape[0] == len(degenerate)
+    for c in degenerate:
+        weight = np.sum((res.exact_vectors @ np.ravel(c)) ** 2)
+        assert weight == pytest.approx(1.0, abs=1e-8)
 
 
 def test_store_round_trip_with_skipped_rungs():
