@@ -149,3 +149,18 @@ def test_closed_pipe_ends_without_traceback(tmp_path):
     )
     assert proc.stdout == "plan for s"
     assert "Traceback" not in proc.stderr and "BrokenPipe" not in proc.stderr
+
+
+def test_device_job_names_its_problem(exported):
+    # issue 18: a returned folder named by a hash could not be identified; the manifest and job
+    # summary now state geometry, basis, charge, multiplicity and methods (as configured above)
+    import json
+
+    work, key = exported
+    folder = work / "results" / "export" / key
+    problem = json.loads((folder / "manifest.json").read_text())["meta"]["problem"]
+    assert problem["atoms"] == "H 0 0 0; H 0 0 0.74" and problem["basis"] == "sto-3g"
+    assert problem["charge"] == 0 and problem["multiplicity"] == 1
+    assert problem["optimizer"]["name"] == "lbfgs" and problem["ansatz"]["name"] == "uccsd"
+    text = (folder / "job-summary.md").read_text()
+    assert "`H 0 0 0; H 0 0 0.74`" in text and "basis sto-3g" in text and "lbfgs" in text

@@ -279,6 +279,18 @@ def run_optimize(
     )
 
 
+def _export_problem(int_params: dict, opt_params: dict) -> dict:
+    """What a device job computes, from its parents' stored parameters: geometry, basis,
+    charge, multiplicity, active space and methods. Molecule names, scan points and config
+    files are labels outside the content key (one job serves every sweep that shares it);
+    ``results/device_summary.csv`` and ``eigensweep plan`` tie the job to them."""
+    keys = ("atoms", "unit", "basis", "charge", "multiplicity", "frozen_core", "active")
+    return {
+        **{k: int_params.get(k) for k in keys},
+        **{k: opt_params.get(k) for k in ("ansatz", "optimizer", "estimator")},
+    }
+
+
 def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
     """Device jobs for one optimized point: OpenQASM 3/2 circuits, manifest and job summary."""
     from .device import build_job, state_circuit, write_job
@@ -309,6 +321,7 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
                 "mapping": mapping,
                 "tapered": bool(tap_sd.meta["tapered"]),
                 "energy_simulated": e_circ,
+                "problem": _export_problem(read_stage(inputs["integrals"]).params, opt.params),
             },
             target_se=p["target_mha"] / 1000.0,
         )

@@ -451,6 +451,24 @@ def build_job(
     return job
 
 
+def _problem_lines(problem: Mapping | None) -> list[str]:
+    """Summary lines naming the molecule problem and methods a job belongs to (when given)."""
+    if not problem:
+        return []
+    methods = ", ".join(
+        f"{k} {json.dumps(problem[k], sort_keys=True)}"
+        for k in ("ansatz", "optimizer", "estimator")
+        if problem.get(k) is not None
+    )
+    return [
+        f"- geometry ({problem.get('unit')}): `{problem.get('atoms')}`",
+        f"- basis {problem.get('basis')}, charge {problem.get('charge')}, multiplicity "
+        f"{problem.get('multiplicity')}, frozen core {problem.get('frozen_core')}, active space "
+        f"{json.dumps(problem.get('active'))}",
+        f"- methods: {methods}",
+    ]
+
+
 def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> str:
     meas = [r for r in job.records if r.kind == "measure"]
     s1 = [r for r in meas if r.scale_factor == min(job.scale_factors)]
@@ -463,6 +481,7 @@ def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> st
         f"# Device job `{job.job_name}`",
         "",
         f"- job id: `{job.job_id}`",
+        *_problem_lines(job.meta.get("problem")),
         f"- qubits: {job.n_qubits}; bit order: {BIT_ORDER} (qubit 0 first)",
         f"- circuits: {len(job.records)} ({len(meas)} measurement, "
         f"{len(job.records) - len(meas)} readout calibration)",
