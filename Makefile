@@ -38,7 +38,8 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_optimize.py
 
 clean-results:
-	rm -rf results/integrals results/hamiltonian results/taper results/optimize results/plots results/summary.csv logs .snakemake
+	find results -mindepth 1 -maxdepth 1 ! -name README.md -exec rm -rf {} +
+	rm -rf logs .snakemake
 
 # Real one-node Slurm cluster on this machine (root; installs Debian's slurm-wlm and munge).
 test-cluster: $(STAMP)

@@ -32,12 +32,12 @@ BASE = {
 def _run(cfg_path: Path):
     """Run a sweep in-process in the current folder (stage actions in plan order, then collect)."""
     cfg = load_config(cfg_path)
-    plan = build_plan(cfg, base_dir=".")
+    plan = build_plan(cfg, base_dir=".", config_path=cfg_path)
     for node in plan.nodes.values():  # insertion order: parents first
         out = stage_path(node.stage, node.key)
         if not out.exists():
             STAGE_ACTIONS[node.stage](node, parent_files(node), str(out))
-    collect(plan.rows, "results", cfg["collect"]["accuracy_mha"], plan.exports)
+    collect(plan.rows, "results", cfg["collect"]["accuracy_mha"], plan.exports, study=plan.study)
     return cfg, plan
 
 
@@ -83,11 +83,12 @@ def test_archive_holds_only_the_named_sweep(two_sweeps):
     only_b = set(plan_b.nodes) - set(plan_a.nodes)
     assert only_b  # the two sweeps differ in their integrals and everything below
     assert not [n for n in names if any(k in n for k in only_b)]
-    # the archived summary names sweep A's point, although the folder's summary is B's
+    # the archived summary names sweep A's point only (the archived config/config.yaml without
+    # `study:` names the study "default")
     with tarfile.open(out) as tar:
-        text = tar.extractfile(f"{ARCHIVE_ROOT}/results/summary.csv").read().decode()
+        text = tar.extractfile(f"{ARCHIVE_ROOT}/results/default/summary.csv").read().decode()
     assert plan_a.rows[0]["key"] in text and plan_b.rows[0]["key"] not in text
-    assert plan_b.rows[0]["key"] in (work / "results" / "summary.csv").read_text()
+    assert plan_b.rows[0]["key"] in (work / "results" / "b" / "summary.csv").read_text()
 
 
 def test_archive_carries_workflow_config_and_environment(two_sweeps):
@@ -132,7 +133,7 @@ def test_verify_passes_and_reruns_a_stage(two_sweeps):
     _, out, _, _ = two_sweeps
     rep = verify_archive(out, stage="hamiltonian")
     assert rep.rerun_keys and rep.max_abs_diff <= 1e-8
-    assert "results/summary.csv" in rep.tables
+    assert "results/default/summary.csv" in rep.tables
 
 
 def _repack(root: Path, dest: Path, *, rehash: bool = True) -> Path:
@@ -152,8 +153,10 @@ def _repack(root: Path, dest: Path, *, rehash: bool = True) -> Path:
 def test_verify_fails_on_inserted_stale_table(two_sweeps, tmp_path):
     work, out, _, _ = two_sweeps
     root = safe_extract(out, tmp_path / "x")
-    # B's summary (the folder's last table) slipped into A's archive, manifest re-hashed
-    (root / "results" / "summary.csv").write_bytes((work / "results" / "summary.csv").read_bytes())
+    # B's summary slipped into A's archive, manifest re-hashed
+    (root / "results" / "default" / "summary.csv").write_bytes(
+        (work / "results" / "b" / "summary.csv").read_bytes()
+    )
     bad = _repack(root, tmp_path / "bad.tar.gz")
     with pytest.raises(EigensweepError, match="summary.csv differs.*stale"):
         verify_archive(bad, stage=None)
@@ -234,11 +237,12 @@ def test_extracted_archive_reruns_with_snakemake_alone(two_sweeps, tmp_path):
 
     _, out, _, _ = two_sweeps
     root = safe_extract(out, tmp_path)
-    want = (root / "results" / "summary.csv").read_bytes()
-    for name in ("summary.csv", "device_summary.csv"):
-        (root / "results" / name).unlink()
-    for png in (root / "results" / "plots").glob("*.png"):
-        png.unlink()
+    study = root / "results" / "default"
+    want = (study / "summary.csv").read_bytes()
+    for name in ("summary.csv", "device_summary.csv", "analysis.csv", "README.md"):
+        (study / name).unlink()
+    for plot in (study / "plots").glob("*.*"):
+        plot.unlink()
     proc = subprocess.run(
         [sys.executable, "-m", "snakemake", "--cores", "1"],
         cwd=root,
@@ -247,7 +251,7 @@ def test_extracted_archive_reruns_with_snakemake_alone(two_sweeps, tmp_path):
         timeout=900,
     )
     assert proc.returncode == 0, proc.stderr[-3000:]
-    assert (root / "results" / "summary.csv").read_bytes() == want
+    assert (study / "summary.csv").read_bytes() == want
 
 
 def test_file_where_a_folder_belongs_is_one_line(tmp_path):

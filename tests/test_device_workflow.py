@@ -80,7 +80,8 @@ def test_external_counts_are_checked_imported_and_reconciled(tmp_path):
     }
     assert len(list((tmp_path / "results" / "reconcile").glob("*.h5"))) == 1
     rows = {
-        r["estimate"]: r for r in csv.DictReader(open(tmp_path / "results" / "device_summary.csv"))
+        r["estimate"]: r
+        for r in csv.DictReader(open(tmp_path / "results" / "c" / "device_summary.csv"))
     }
     # reference: PySCF FCI computed at test time; readout-mitigated estimate of a 1-qubit job with
     # only readout noise must bracket the exact energy within its 95 % interval or a few mHa
@@ -88,5 +89,5 @@ def test_external_counts_are_checked_imported_and_reconciled(tmp_path):
         scf.RHF(gto.M(atom="H 0 0 0; H 0 0 0.74", basis="sto-3g", verbose=0)).run()
     ).kernel()[0]
     mit = rows["readout_mitigated"]
-    assert float(mit["ci_low"]) - 3e-3 <= e_fci <= float(mit["ci_high"]) + 3e-3
-    assert abs(float(rows["raw"]["energy"]) - e_fci) > abs(float(mit["energy"]) - e_fci)
+    assert float(mit["ci_low_eh"]) - 3e-3 <= e_fci <= float(mit["ci_high_eh"]) + 3e-3
+    assert abs(float(rows["raw"]["energy_eh"]) - e_fci) > abs(float(mit["energy_eh"]) - e_fci)

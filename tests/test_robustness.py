@@ -41,7 +41,7 @@ def cli(workdir: Path, *args: str, **kw) -> subprocess.CompletedProcess:
 
 
 def summary(workdir: Path) -> list[dict]:
-    rows = list(csv.DictReader(open(workdir / "results" / "summary.csv")))
+    rows = list(csv.DictReader(open(workdir / "results" / "c" / "summary.csv")))
     return [{k: v for k, v in r.items() if k not in TIMING} for r in rows]
 
 

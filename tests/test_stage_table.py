@@ -26,8 +26,9 @@ def test_key_is_sha256_of_canonical_identity():
         sort_keys=True,
         separators=(",", ":"),
     )
-    assert st.stage_key("hamiltonian", params, {"integrals": "a"}) == (
-        hashlib.sha256(blob.encode()).hexdigest()[:16]
+    assert (
+        st.stage_key("hamiltonian", params, {"integrals": "a"})
+        == (hashlib.sha256(blob.encode()).hexdigest()[:16])
     )
 
 

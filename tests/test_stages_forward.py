@@ -122,7 +122,7 @@ def test_reconcile_verifies_the_untapered_job_with_stored_symmetries(sweep):
 
 def test_summary_costs_equal_the_exported_jobs(sweep):
     work, plan = sweep
-    rows = {r["key"]: r for r in csv.DictReader((work / "results" / "summary.csv").open())}
+    rows = {r["key"]: r for r in csv.DictReader((work / "results" / "main" / "summary.csv").open())}
     exports = _files(work, plan, "export")
     assert len(exports) == 2
     for sd in exports:

@@ -39,8 +39,8 @@ def _cli(work: Path, *args: str) -> subprocess.CompletedProcess:
 
 
 def _energies(work: Path) -> dict[str, tuple[str, str]]:
-    rows = csv.DictReader(open(work / "results" / "summary.csv"))
-    return {r["point"]: (r["energy_hf"], r["energy"]) for r in rows}
+    rows = csv.DictReader(open(work / "results" / "c" / "summary.csv"))
+    return {r["point"]: (r["energy_hf_eh"], r["energy_eh"]) for r in rows}
 
 
 def test_forged_key_is_refused_and_recomputed(tmp_path):

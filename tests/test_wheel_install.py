@@ -83,7 +83,7 @@ def test_sweep_from_a_built_wheel(tmp_path):
         cwd=work,
         env=env,
     )
-    rows = list(csv.DictReader((work / "results" / "summary.csv").open()))
+    rows = list(csv.DictReader((work / "results" / "tiny" / "summary.csv").open()))
     assert len(rows) == 1
 
     # reference: PySCF FCI for H2/STO-3G at 0.74 Angstrom, computed here
@@ -91,4 +91,4 @@ def test_sweep_from_a_built_wheel(tmp_path):
 
     mol = gto.M(atom="H 0 0 0; H 0 0 0.74", basis="sto-3g", verbose=0)
     e_fci = fci.FCI(scf.RHF(mol).run()).kernel()[0]
-    assert abs(float(rows[0]["energy"]) - e_fci) < 1e-6
+    assert abs(float(rows[0]["energy_eh"]) - e_fci) < 1e-6

@@ -60,9 +60,9 @@ def test_first_run_writes_every_stage(sweep):
     work, _ = sweep
     for stage, n in (("integrals", 2), ("hamiltonian", 2), ("taper", 2), ("optimize", 2)):
         assert len(list((work / "results" / stage).glob("*.h5"))) == n, stage
-    rows = list(csv.DictReader(open(work / "results" / "summary.csv")))
+    rows = list(csv.DictReader(open(work / "results" / "sweep" / "summary.csv")))
     assert len(rows) == 2
-    assert (work / "results" / "plots" / "h2_energy.png").stat().st_size > 1000
+    assert (work / "results" / "sweep" / "plots" / "h2_energy.png").stat().st_size > 1000
 
 
 def test_energies_against_pyscf_fci(sweep):
@@ -70,14 +70,17 @@ def test_energies_against_pyscf_fci(sweep):
     from pyscf import fci, gto, scf
 
     work, _ = sweep
-    rows = {float(r["scan_r"]): r for r in csv.DictReader(open(work / "results" / "summary.csv"))}
+    rows = {
+        float(r["scan_r_angstrom"]): r
+        for r in csv.DictReader(open(work / "results" / "sweep" / "summary.csv"))
+    }
     for r, row in rows.items():
         mol = gto.M(atom=f"H 0 0 0; H 0 0 {r}", basis="sto-3g", verbose=0)
         mf = scf.RHF(mol).run()
         e_fci = fci.FCI(mf).kernel()[0]
-        assert abs(float(row["energy_hf"]) - mf.e_tot) < 1e-8
-        assert abs(float(row["energy_exact"]) - e_fci) < 1e-8
-        e = float(row["energy"])
+        assert abs(float(row["energy_hf_eh"]) - mf.e_tot) < 1e-8
+        assert abs(float(row["energy_exact_eh"]) - e_fci) < 1e-8
+        e = float(row["energy_eh"])
         assert e >= e_fci - 1e-9, "VQE energy below FCI breaks the variational principle"
         assert e - e_fci < 1.6e-3
 

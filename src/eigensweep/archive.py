@@ -20,6 +20,8 @@ the extraction folder.
 
 from __future__ import annotations
 
+import copy
+
 import hashlib
 import json
 import platform
@@ -60,7 +62,8 @@ WORKFLOW_GLOBS = (
     "envs/*.yaml",
 )
 #: Files the archive regenerates from its stage files (tables and plots).
-GENERATED_TABLES = ("results/summary.csv", "results/device_summary.csv")
+#: (inside the study's folder ``results/<study>/``)
+GENERATED_TABLES = ("summary.csv", "device_summary.csv", "analysis.csv", "README.md")
 _ORCID = re.compile(r"\A\d{4}-\d{4}-\d{4}-\d{3}[\dX]\Z")
 _MANIFEST_LINE = re.compile(r"\A([0-9a-f]{64})  (\S(?:.*\S)?)\Z")
 
@@ -278,6 +281,7 @@ def make_archive(
             ``output`` exists.
     """
     from .collect import collect
+    from .study import study_name
 
     results, output = Path(results), Path(output)
     if output.exists():
@@ -288,18 +292,28 @@ def make_archive(
         **_plan_members(plan, results),
     }
     revision = source_revision()
+    # the config is archived as config/config.yaml: its tables go where that file names them
+    plan = copy.copy(plan)
+    plan.study = study_name(cfg, "config/config.yaml")
     output.parent.mkdir(parents=True, exist_ok=True)
     with tempfile.TemporaryDirectory(prefix=".archive-", dir=output.parent) as tmp:
         folder = Path(tmp) / ARCHIVE_ROOT
         for name, src in members.items():
             _copy(src, folder / name)
-        collect(plan.rows, folder / "results", cfg["collect"]["accuracy_mha"], plan.exports)
+        collect(
+            plan.rows,
+            folder / "results",
+            cfg["collect"]["accuracy_mha"],
+            plan.exports,
+            study=plan.study,
+        )
         generated = {
             "environment.lock": environment_lock(),
             "source-revision.json": json.dumps(revision, indent=2) + "\n",
             "plan.json": json.dumps(
                 {
                     "config": str(config_path),
+                    "study": plan.study,
                     "rows": plan.rows,
                     "exports": plan.exports,
                     "nodes": [n.as_dict() for n in stage_closure(plan)],
@@ -464,20 +478,23 @@ def _check_tables(archive: Path, root: Path, plan: Plan, cfg: dict, listed: set[
     from .collect import collect
 
     results = root / "results"
+    tables = [f"results/{plan.study}/{name}" for name in GENERATED_TABLES]
     archived = {}
-    for name in GENERATED_TABLES:
+    for name in tables:
         if name not in listed:
             raise EigensweepError(f"{archive}: {name} missing")
         archived[name] = (root / name).read_bytes()
-    plots_before = {p.name for p in (results / "plots").glob("*")}
+    plots_before = {p.name for p in (results / plan.study / "plots").glob("*")}
     with tempfile.TemporaryDirectory(prefix="eigensweep-tables-") as tmp:
         scratch = Path(tmp) / "results"
         for node in stage_closure(plan):
             _copy(
                 stage_path(node.stage, node.key, results), stage_path(node.stage, node.key, scratch)
             )
-        files = collect(plan.rows, scratch, cfg["collect"]["accuracy_mha"], plan.exports)
-        for name in GENERATED_TABLES:
+        files = collect(
+            plan.rows, scratch, cfg["collect"]["accuracy_mha"], plan.exports, study=plan.study
+        )
+        for name in tables:
             new = (Path(tmp) / name).read_bytes()
             if new != archived[name]:
                 raise EigensweepError(
@@ -487,7 +504,7 @@ def _check_tables(archive: Path, root: Path, plan: Plan, cfg: dict, listed: set[
     if plots_before != plots_now:
         odd = sorted(plots_before ^ plots_now)[0]
         raise EigensweepError(f"{archive}: plot {odd} is stale or missing")
-    return list(GENERATED_TABLES)
+    return tables
 
 
 def _rerun(archive: Path, root: Path, node: Node, workdir: Path, atol: float) -> float:

@@ -46,7 +46,7 @@ def _load_plan(config: str | None, force: bool | None = None):
 
     path = Path(config) if config else _default_config()
     cfg = load_config(path)
-    plan = build_plan(cfg, base_dir=Path.cwd())
+    plan = build_plan(cfg, base_dir=Path.cwd(), config_path=path)
     if force is not None:
         _gate(plan, cfg, path, force)
     check_plan_chemistry(plan)
@@ -118,7 +118,15 @@ def cmd_plan(args) -> int:
         counts[node.stage][st.split()[0]] += 1
         if args.verbose:
             lines.append(f"{node.stage:<12} {node.key}  {st}")
-    print(f"plan for {path}: {len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs")
+    if args.json:
+        print(json.dumps(_plan_json(path, plan, results), indent=1))
+        return 0
+    print(
+        f"plan for {path}: study {plan.study} (tables in results/{plan.study}/): "
+        f"{len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs"
+    )
+    for line in plan.skipped:
+        print(line)
     print(f"{'stage':<12} {'total':>6} {'cached':>7} {'pending':>8} {'damaged':>8}")
     for stage in STAGE_NAMES:
         c = counts.get(stage, {})
@@ -152,6 +160,23 @@ def _print_waiting(plan) -> None:
             f"  {ex['molecule']} {ex['point']} {ex['mapping']} tapered={ex['tapered']} "
             f"{ex['ansatz']} {ex['optimizer']}: {job_folder(ex['key_export'])}/"
         )
+
+
+def _plan_json(path: Path, plan, results: Path) -> dict:
+    """Machine-readable plan: study, skipped combinations, every stage job with its status."""
+    return {
+        "config": str(path),
+        "study": plan.study,
+        "skipped": plan.skipped,
+        "rows": [
+            {k: v for k, v in r.items() if not k.startswith("key_")} | {"key": r["key"]}
+            for r in plan.rows
+        ],
+        "jobs": [
+            {**node.as_dict(), "status": _status(node, results).split()[0]}
+            for node in plan.nodes.values()
+        ],
+    }
 
 
 def _print_costs(plan, results: Path) -> None:
@@ -262,7 +287,8 @@ def _run_locked(args, path: Path, plan, locked: bool) -> int:
         return proc.returncode
     if not args.dry_run:
         print(
-            f"eigensweep: done in {dt:.1f} s; summary: results/summary.csv, plots: results/plots/"
+            f"eigensweep: done in {dt:.1f} s; summary: results/{plan.study}/summary.csv, "
+            f"plots: results/{plan.study}/plots/"
         )
         _print_waiting(plan)
     return 0
@@ -305,6 +331,26 @@ def cmd_show(args) -> int:
     from .store import read_stage
 
     sd = read_stage(args.file)
+    if args.json:
+        doc = {
+            "file": str(args.file),
+            "stage": sd.stage,
+            "key": sd.key,
+            "attributes": {
+                k: sd.attrs.get(k)
+                for k in ("format_version", "stage_version", "created", "host", "wall_s")
+            },
+            "parents": sd.parents,
+            "software": json.loads(sd.attrs.get("software") or "{}"),
+            "parameters": sd.params,
+            "arrays": {
+                n: {"dtype": str(a.dtype), "shape": list(a.shape)}
+                for n, a in sorted(sd.arrays.items())
+            },
+            "results": sd.meta,
+        }
+        print(json.dumps(doc, indent=1, default=_json_scalar))
+        return 0
     print(f"{args.file}: eigensweep stage file, stage {sd.stage}, key {sd.key}")
     for k in ("format_version", "stage_version", "created", "host", "wall_s"):
         print(f"  {k}: {sd.attrs.get(k)}")
@@ -321,9 +367,15 @@ def cmd_show(args) -> int:
     return 0
 
 
+def _json_scalar(v):
+    """numpy scalars (HDF5 attributes) as plain JSON numbers."""
+    return v.item() if hasattr(v, "item") else str(v)
+
+
 def cmd_report(args) -> int:
     path, cfg, plan = _load_plan(args.config)
     print(f"eigensweep: report of the sweep of {path}", flush=True)
+    args.output = args.output or f"results/{plan.study}/report.html"
     args.profile, args.cores, args.dry_run, args.snakemake_args = (
         "local",
         1,
@@ -469,13 +521,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
     p.add_argument("--force", action="store_true", help="accept problems above the limits")
+    p.add_argument("--json", action="store_true", help="print the plan as JSON")
     p.set_defaults(func=cmd_plan)
 
     p = add("report", help="write the Snakemake HTML report of a finished sweep")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
-    p.add_argument(
-        "--output", default="results/report.html", help="report file (default results/report.html)"
-    )
+    p.add_argument("--output", help="report file (default results/<study>/report.html)")
     p.set_defaults(func=cmd_report)
 
     p = add(
@@ -536,6 +587,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = add("show", help="provenance and contents of a stage file")
     p.add_argument("file")
+    p.add_argument("--json", action="store_true", help="print everything as JSON")
     p.set_defaults(func=cmd_show)
     return ap
 

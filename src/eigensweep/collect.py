@@ -1,289 +1,290 @@
-"""Sweep summary table and plots.
+"""A study's tables: ``summary.csv``, ``device_summary.csv`` and the README of their columns.
 
-``results/summary.csv`` has one row per optimize job (energies in hartree, errors in mHa);
-plots go to ``results/plots/``: one energy curve per molecule (VQE vs the classical ladder),
-one error-vs-exact plot per molecule with the accuracy band, and convergence traces.
+Every study writes under its own folder ``results/<study>/`` (see :func:`study_folder`):
+``summary.csv`` has one row per optimize job of every sub-sweep (column ``sweep``),
+``device_summary.csv`` one row per reconciled estimate, ``README.md`` describes every column
+(generated from :data:`SUMMARY_COLUMNS` and :data:`DEVICE_COLUMNS`, the one table of names,
+units and meanings), and ``plots/`` holds the figures of :mod:`eigensweep.figures`.
+
+Missing values (a reference rung that was skipped, an overlap that could not be formed) are
+written as empty cells and the reason goes to the row's ``notes``; one missing value never stops
+the summary from being written.  Floats carry 10 significant digits; lines end in LF.
 """
 
 from __future__ import annotations
 
-import csv
 import math
 from pathlib import Path
 
 import numpy as np
 
-from .store import atomic_path, read_stage
+from .store import StageData, atomic_path, read_stage
+from .tables import Column, write_table
 
+#: 1 hartree in kcal/mol (CODATA 2018: 627.509 474 063 1).
+KCAL_MOL_PER_HARTREE = 627.5094740631
+
+#: Numerical noise allowed below the exact energy before a result is flagged (hartree).
+BELOW_EXACT_NOISE_EH = 1e-6
+
+
+def _c(name: str, unit: str, description: str) -> Column:
+    return Column(name, unit, description)
+
+
+#: Reference ladder columns: name in the table -> key in the integrals stage file.
 REFERENCE_COLUMNS = {
-    "energy_hf": "hf",
-    "energy_mp2": "mp2",
-    "energy_ccsd": "ccsd",
-    "energy_ccsd_t": "ccsd_t",
-    "energy_exact": "casci",
-    "energy_fci": "fci",
+    "energy_hf_eh": "hf",
+    "energy_mp2_eh": "mp2",
+    "energy_ccsd_eh": "ccsd",
+    "energy_ccsd_t_eh": "ccsd_t",
+    "energy_exact_eh": "casci",
+    "energy_fci_eh": "fci",
 }
 
-SUMMARY_COLUMNS = [
-    "molecule",
-    "point",
-    "basis",
-    "unit",
-    "charge",
-    "multiplicity",
-    "mapping",
-    "tapered",
-    "n_qubits",
-    "n_terms",
-    "n_qwc_groups",
-    "shots_one_norm_bound",
-    "shots_variance_at_reference",
-    "ansatz",
-    "optimizer",
-    "estimator",
-    "n_params",
-    "energy",
-    "energy_stderr",
-    *REFERENCE_COLUMNS,
-    "ladder_reference",
-    "error_mha",
-    "below_exact",
-    "below_exact_cause",
-    "overlap_exact",
-    "n_electrons",
-    "spin_square",
-    "spin_mismatch",
-    "cnot_count",
-    "depth",
-    "evaluations",
-    "converged",
-    "stop_reason",
-    "wall_s",
-    "key",
+#: The summary's columns in order (scan columns ``scan_<variable>_<unit>`` follow ``point``).
+SUMMARY_COLUMNS: list[Column] = [
+    _c("molecule", "", "molecule name from the config"),
+    _c("sweep", "", "sub-sweep name (`sweeps[].name`; `main` for a top-level `methods`)"),
+    _c("point", "", "scan point label as used by `export.select`, e.g. `r=0.75`"),
+    _c("basis", "", "Gaussian basis set"),
+    _c("charge", "e", "total charge (elementary charges)"),
+    _c("multiplicity", "", "spin multiplicity 2S+1"),
+    _c("n_frozen", "", "doubly occupied orbitals kept out of the qubit problem (frozen core)"),
+    _c("active_electrons", "", "electrons in the active space"),
+    _c("active_orbitals", "", "spatial orbitals in the active space (2x = qubits untapered)"),
+    _c("mapping", "", "fermion-to-qubit mapping"),
+    _c("tapered", "", "Z2 tapering on (True) or off (False)"),
+    _c("n_qubits", "", "qubits of the circuit that was optimized"),
+    _c("n_terms", "", "Pauli terms of the (tapered) qubit Hamiltonian"),
+    _c("n_qwc_groups", "", "qubit-wise commuting measurement groups (sorted insertion)"),
+    _c("shots_one_norm_bound", "", "shots for 1.6 mHa standard error from the 1-norm bound"),
+    _c("shots_variance_at_reference", "", "shots for 1.6 mHa at the reference state's variance"),
+    _c("ansatz", "", "ansatz label (name and options that differ from defaults)"),
+    _c("optimizer", "", "optimizer label"),
+    _c("estimator", "", "energy estimator label"),
+    _c("seed", "", "base random seed of the run"),
+    _c("n_params", "", "variational parameters"),
+    _c("energy_eh", "Eh", "VQE energy as estimated (hartree)"),
+    _c("energy_stderr_eh", "Eh", "standard error of `energy_eh` (0 for the exact estimator)"),
+    _c(
+        "energy_exact_at_params_eh",
+        "Eh",
+        "exact expectation value at the optimized parameters (no shot noise)",
+    ),
+    _c("energy_hf_eh", "Eh", "Hartree-Fock energy (RHF closed shell, ROHF open shell)"),
+    _c("ladder_reference", "", "SCF reference of the MP2/CC rungs: RHF or ROHF"),
+    _c("energy_mp2_eh", "Eh", "MP2 energy (on the HF reference above)"),
+    _c("energy_ccsd_eh", "Eh", "CCSD energy (on the HF reference above)"),
+    _c("energy_ccsd_t_eh", "Eh", "CCSD(T) energy (on the HF reference above)"),
+    _c("energy_exact_eh", "Eh", "exact energy of the active space (CASCI; FCI without one)"),
+    _c("energy_fci_eh", "Eh", "full-space FCI energy (empty when skipped; see `notes`)"),
+    _c("error_mha", "mHa", "`energy_eh` minus `energy_exact_eh`, in millihartree"),
+    _c("error_kcal_mol", "kcal/mol", "the same error in kcal/mol (CODATA 627.5095 per Eh)"),
+    _c(
+        "error_at_params_mha",
+        "mHa",
+        "`energy_exact_at_params_eh` minus `energy_exact_eh` (what the parameters reach)",
+    ),
+    _c(
+        "below_exact",
+        "",
+        "True when `energy_eh` lies below the exact energy by more than 3 standard errors "
+        "plus 1e-6 Eh (a variational violation, not shot noise)",
+    ),
+    _c(
+        "below_exact_cause",
+        "",
+        "why a flagged energy lies below exact: another spin than requested, or unexplained",
+    ),
+    _c("overlap_exact", "", "|<psi|exact ground space>|^2 (empty when not formed; see `notes`)"),
+    _c("n_electrons", "", "<N> of the optimized state"),
+    _c("spin_square", "", "<S^2> of the optimized state"),
+    _c("spin_mismatch", "", "True when <S^2> differs from S(S+1) of the requested multiplicity"),
+    _c("cnot_count", "", "CNOT gates of the optimized circuit"),
+    _c("depth", "", "circuit depth"),
+    _c("evaluations", "", "energy evaluations used by the optimizer"),
+    _c("n_iterations", "", "optimizer iterations"),
+    _c("shots_total", "", "shots spent over the whole optimization (0 for exact energies)"),
+    _c("converged", "", "the optimizer's own convergence criterion was met"),
+    _c("stop_reason", "", "the optimizer's stop message"),
+    _c("wall_s", "s", "wall time of the optimize job (seconds)"),
+    _c("key", "", "optimize stage key: `results/optimize/<key>.h5`"),
+    _c("notes", "", "why a value is missing, and other remarks on the row"),
 ]
 
-
-def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
-    """Summary rows for the plan's optimize jobs (reads optimize and integrals stage files)."""
-    results = Path(results)
-    cache: dict[str, dict] = {}
-    out = []
-    for row in rows:
-        k_int = row["key_integrals"]
-        if k_int not in cache:
-            cache[k_int] = read_stage(results / "integrals" / f"{k_int}.h5", stage="integrals").meta
-        refs = {k: _num(v) for k, v in cache[k_int]["references"].items()}
-        k_tap = row["key_taper"]
-        if k_tap not in cache:
-            cache[k_tap] = read_stage(results / "taper" / f"{k_tap}.h5", stage="taper").meta
-        tap = cache[k_tap]
-        opt = read_stage(results / "optimize" / f"{row['key']}.h5", stage="optimize")
-        m = opt.meta
-        energy = float(m["energy"])
-        exact = refs["casci"]
-        err = (energy - exact) * 1000.0 if math.isfinite(exact) else float("nan")
-        r = {c: row.get(c, "") for c in SUMMARY_COLUMNS}
-        r.update({k: v for k, v in row.items() if k.startswith("scan_")})
-        r.update(
-            {
-                "n_qubits": m["n_qubits"],
-                "n_terms": tap.get("n_terms", ""),
-                "n_qwc_groups": tap.get("n_qwc_groups", ""),
-                "shots_one_norm_bound": tap.get("shots_one_norm_bound", ""),
-                "shots_variance_at_reference": tap.get("shots_variance_at_reference") or "",
-                "n_params": m["n_params"],
-                "energy": energy,
-                "energy_stderr": float(m.get("energy_stderr", 0.0)),
-                **{col: float(refs[name]) for col, name in REFERENCE_COLUMNS.items()},
-                "ladder_reference": cache[k_int].get("scf_method", ""),
-                "error_mha": err,
-                # variational check: more than 1e-6 Eh below the sector-exact energy is a red flag
-                "below_exact": bool(math.isfinite(err) and err < -1e-3),
-                "below_exact_cause": _below_exact_cause(err, m),
-                "overlap_exact": _num(m.get("overlap_exact")),
-                "n_electrons": _num(m.get("n_electrons")),
-                "spin_square": _num(m.get("spin_square")),
-                "spin_mismatch": m.get("spin_mismatch", ""),
-                "cnot_count": m.get("cnot_count", ""),
-                "depth": m.get("depth", ""),
-                "evaluations": m["n_evaluations"],
-                "converged": m.get("converged", ""),
-                "stop_reason": m.get("stop_reason", ""),
-                "wall_s": float(opt.attrs.get("wall_s", float("nan"))),
-            }
-        )
-        out.append(r)
-    return out
+#: Scan-column suffix by the scan variable's unit.
+SCAN_SUFFIX = {"angstrom": "_angstrom", "bohr": "_bohr", "degree": "_deg", "none": ""}
 
 
-def _below_exact_cause(err: float, m: dict) -> str:
+def scan_column(var: str, unit: str) -> str:
+    """Summary column of a scan variable, e.g. ``scan_r_angstrom`` or ``scan_a_deg``."""
+    return f"scan_{var}{SCAN_SUFFIX.get(unit, '')}"
+
+
+def _num(v) -> float:
+    """Stored numbers use null (or nothing) for 'not available'; read them as nan."""
+    if v is None or v == "":
+        return float("nan")
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return float("nan")
+
+
+def _flag_below_exact(energy: float, stderr: float, exact: float) -> bool:
+    """Below the exact energy beyond 3 standard errors plus numerical noise."""
+    if not (math.isfinite(energy) and math.isfinite(exact)):
+        return False
+    margin = 3.0 * (stderr if math.isfinite(stderr) else 0.0) + BELOW_EXACT_NOISE_EH
+    return energy < exact - margin
+
+
+def _below_exact_cause(below: bool, m: dict) -> str:
     """Why an energy lies below the exact one: a state of another spin (the exact reference
     fixes S) or nothing known, which is a bug."""
-    if not (math.isfinite(err) and err < -1e-3):
+    if not below:
         return ""
     if m.get("spin_mismatch"):
         return f"another spin: <S^2> = {_num(m.get('spin_square')):.4f}"
     return "unexplained: please report"
 
 
-def _num(v) -> float:
-    """Stored energies use null for 'not computed'; read them as nan."""
-    return float("nan") if v is None else float(v)
+def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
+    """Summary rows for the plan's optimize jobs (reads optimize, taper and integrals files)."""
+    results = Path(results)
+    cache: dict[str, StageData] = {}
 
+    def stage_data(stage: str, key: str) -> StageData:
+        if key not in cache:
+            cache[key] = read_stage(results / stage / f"{key}.h5", stage=stage)
+        return cache[key]
 
-def _fmt(v) -> str:
-    if isinstance(v, float):
-        return "" if math.isnan(v) else repr(v)
-    return str(v)
+    out = []
+    for row in rows:
+        int_sd = stage_data("integrals", row["key_integrals"])
+        ints = int_sd.meta
+        tap = stage_data("taper", row["key_taper"]).meta
+        opt = read_stage(results / "optimize" / f"{row['key']}.h5", stage="optimize")
+        m = opt.meta
+        refs = {k: _num(v) for k, v in ints["references"].items()}
+        notes = [
+            f"{name}: {ints.get('reference_notes', {}).get(name, 'not computed')}"
+            for col, name in REFERENCE_COLUMNS.items()
+            if not math.isfinite(refs.get(name, math.nan))
+        ]
+        energy, stderr = _num(m.get("energy")), _num(m.get("energy_stderr", 0.0))
+        at_params = _num(m.get("energy_exact_at_params"))
+        exact = refs.get("casci", math.nan)
+        overlap = _num(m.get("overlap_exact"))
+        if not math.isfinite(overlap):
+            notes.append("overlap_exact: not formed by the optimize stage")
+        err = (energy - exact) * 1000.0
+        below = _flag_below_exact(energy, stderr, exact)
+        shots = opt.arrays.get("trace_shots")
+        nelec = ints.get("nelec") or [math.nan]
+        r = {
+            "molecule": row["molecule"],
+            "sweep": row.get("sweep", "main"),
+            "point": row["point"],
+            **{
+                scan_column(k[5:], row.get("axis_units", {}).get(k[5:], "none")): v
+                for k, v in row.items()
+                if k.startswith("scan_")
+            },
+            **{k: row.get(k, "") for k in ("basis", "charge", "multiplicity", "mapping")},
+            "tapered": row["tapered"],
+            "n_frozen": ints.get("n_frozen", ""),
+            "active_electrons": int(sum(nelec)) if all(map(math.isfinite, nelec)) else "",
+            "active_orbitals": ints.get("norb", ""),
+            "n_qubits": m["n_qubits"],
+            "n_terms": tap.get("n_terms", ""),
+            "n_qwc_groups": tap.get("n_qwc_groups", ""),
+            "shots_one_norm_bound": tap.get("shots_one_norm_bound", ""),
+            "shots_variance_at_reference": tap.get("shots_variance_at_reference") or "",
+            **{k: row.get(k, "") for k in ("ansatz", "optimizer", "estimator", "seed")},
+            "n_params": m["n_params"],
+            "energy_eh": energy,
+            "energy_stderr_eh": stderr,
+            "energy_exact_at_params_eh": at_params,
+            **{col: refs.get(name, math.nan) for col, name in REFERENCE_COLUMNS.items()},
+            "error_mha": err,
+            "error_kcal_mol": err / 1000.0 * KCAL_MOL_PER_HARTREE,
+            "error_at_params_mha": (at_params - exact) * 1000.0,
+            "below_exact": below,
+            "below_exact_cause": _below_exact_cause(below, m),
+            "ladder_reference": ints.get("scf_method", ""),
+            "overlap_exact": overlap,
+            "n_electrons": _num(m.get("n_electrons")),
+            "spin_square": _num(m.get("spin_square")),
+            "spin_mismatch": m.get("spin_mismatch", ""),
+            "cnot_count": m.get("cnot_count", ""),
+            "depth": m.get("depth", ""),
+            "evaluations": m.get("n_evaluations", ""),
+            "n_iterations": m.get("n_iterations", ""),
+            "shots_total": int(np.sum(shots)) if shots is not None else "",
+            "converged": m.get("converged", ""),
+            "stop_reason": " ".join(str(m.get("stop_reason") or m.get("message", "")).split()),
+            "wall_s": _num(opt.attrs.get("wall_s")),
+            "key": row["key"],
+            "notes": "; ".join(notes),
+            # internal (not written): what curve analysis and figures need
+            "_atoms": int_sd.params.get("atoms", ""),
+            "_length_unit": int_sd.params.get("unit", "angstrom"),
+            "_scan_units": dict(row.get("axis_units", {})),
+        }
+        scans = [k for k in r if k.startswith("scan_")]
+        if len(scans) == 1:
+            r["_scan_var"] = next(k[5:] for k in row if k.startswith("scan_"))
+            r["_scan_unit"] = r["_scan_units"].get(r["_scan_var"], "none")
+        out.append(r)
+    return out
 
 
 def write_summary(rows: list[dict], path: str | Path) -> Path:
     """Write the summary CSV atomically."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    scan_cols = sorted({k for r in rows for k in r if k.startswith("scan_")})
-    cols = SUMMARY_COLUMNS[:2] + scan_cols + SUMMARY_COLUMNS[2:]
-    with atomic_path(path) as tmp, open(tmp, "w", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=cols, extrasaction="ignore")
-        w.writeheader()
-        for r in rows:
-            w.writerow({c: _fmt(r.get(c, "")) for c in cols})
-    return path
+    return write_table(rows, path, SUMMARY_COLUMNS)
 
 
-def _method_of(r: dict) -> str:
-    taper = "tapered" if str(r["tapered"]) in ("True", "true") else "full"
-    return f"{r['ansatz']} / {r['optimizer']} / {r['estimator']} / {r['mapping']} / {taper}"
+def column_units(table: list[Column] | None = None) -> dict[str, str]:
+    """Unit of every column of the summary (and device) tables, scan columns by suffix."""
+    out = {c.name: c.unit for c in (table or SUMMARY_COLUMNS + DEVICE_COLUMNS)}
+    return out
 
 
-def _xaxis(rows: list[dict]) -> tuple[str, list[float] | None]:
-    scan_cols = [k for k in rows[0] if k.startswith("scan_")]
-    if not scan_cols:
-        return "point", None
-    col = scan_cols[0]
-    return col[5:], [float(r[col]) for r in rows]
+def readme_text(study: str) -> str:
+    """The study folder's README: what each file holds and every column's unit and meaning."""
+    lines = [
+        f"# Study `{study}`",
+        "",
+        "Generated by `eigensweep` (collect stage); do not edit. Stage files are shared in",
+        "`results/<stage>/<key>.h5`; this folder holds only this study's tables and figures.",
+        "",
+        "- `summary.csv`: one row per optimize job of every sub-sweep.",
+        "- `device_summary.csv`: one row per reconciled device estimate.",
+        "- `analysis.csv`: fitted curve properties per molecule and method (see below).",
+        "- `plots/`: figures as PDF and PNG (300 dpi).",
+        "",
+        "Empty cells are missing values; the row's `notes` says why. Scan columns are",
+        "`scan_<variable>_<unit>` (`_angstrom`, `_bohr`, `_deg`).",
+        "",
+    ]
+    from .analysis import ANALYSIS_COLUMNS
+
+    for title, table in (
+        ("summary.csv", SUMMARY_COLUMNS),
+        ("device_summary.csv", DEVICE_COLUMNS),
+        ("analysis.csv", ANALYSIS_COLUMNS),
+    ):
+        lines += [f"## {title}", "", "| column | unit | meaning |", "|---|---|---|"]
+        lines += [f"| `{c.name}` | {c.unit} | {c.description} |" for c in table]
+        lines.append("")
+    return "\n".join(lines)
 
 
-def plot_molecule(rows: list[dict], folder: str | Path, accuracy_mha: float = 1.6) -> list[Path]:
-    """Energy curve and error-vs-exact plots for one molecule's rows; returns written files."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    name = rows[0]["molecule"]
-    xname, _ = _xaxis(rows)
-    points = list(dict.fromkeys(r["point"] for r in rows))
-    first = {p: next(r for r in rows if r["point"] == p) for p in points}
-    x = np.array(
-        [float(first[p][f"scan_{xname}"]) if xname != "point" else i for i, p in enumerate(points)]
-    )
-    order = np.argsort(x)
-    x = x[order]
-    points = [points[i] for i in order]
-    files = []
-
-    fig, ax = plt.subplots(figsize=(7, 4.5))
-    ref_style = {
-        "energy_hf": ("HF", "k--"),
-        "energy_mp2": ("MP2", "c:"),
-        "energy_ccsd": ("CCSD", "y-."),
-        "energy_ccsd_t": ("CCSD(T)", "g:"),
-        "energy_exact": ("exact (CASCI/FCI)", "k-"),
-    }
-    for col, (lab, style) in ref_style.items():
-        y = np.array([float(first[p][col]) for p in points])
-        if np.isfinite(y).any():
-            ax.plot(x, y, style, lw=1.2, label=lab)
-    methods = list(dict.fromkeys(_method_of(r) for r in rows))
-    markers = "os^Dv<>ph*"
-    for im, m in enumerate(methods):
-        sel = {r["point"]: r for r in rows if _method_of(r) == m}
-        xs = [xv for xv, p in zip(x, points, strict=True) if p in sel]
-        ys = [float(sel[p]["energy"]) for p in points if p in sel]
-        es = [float(sel[p]["energy_stderr"] or 0.0) for p in points if p in sel]
-        # distinct open markers, shrinking, so coinciding results stay visible
-        ax.errorbar(
-            xs,
-            ys,
-            yerr=es if any(es) else None,
-            fmt=markers[im % len(markers)],
-            ms=max(3.0, 8.0 - 1.2 * im),
-            mfc="none",
-            capsize=2,
-            label=f"VQE {m}",
-        )
-    unit = {"angstrom": "Å", "bohr": "bohr"}.get(str(rows[0].get("unit", "")), "as in config")
-    ax.set_xlabel(f"{xname} ({unit if xname != 'point' else 'index'})")
-    ax.set_ylabel("energy (hartree)")
-    ax.set_title(f"{name}: VQE and classical references ({rows[0]['basis']})")
-    ax.legend(fontsize=7)
-    fig.tight_layout()
-    f = folder / f"{name}_energy.png"
-    fig.savefig(f, dpi=120)
-    plt.close(fig)
-    files.append(f)
-
-    fig, ax = plt.subplots(figsize=(7, 4))
-    ax.axhspan(0, accuracy_mha, color="tab:green", alpha=0.15, label=f"{accuracy_mha} mHa band")
-    for im, m in enumerate(methods):
-        sel = {r["point"]: r for r in rows if _method_of(r) == m}
-        xs = [xv for xv, p in zip(x, points, strict=True) if p in sel]
-        ys = [max(float(sel[p]["error_mha"]), 1e-7) for p in points if p in sel]
-        ax.semilogy(
-            xs,
-            ys,
-            "-" + markers[im % len(markers)],
-            ms=max(3.0, 8.0 - 1.2 * im),
-            mfc="none",
-            label=m,
-        )
-    ax.set_xlabel(f"{xname} ({unit if xname != 'point' else 'index'})")
-    ax.set_ylabel("E(VQE) - E(exact) (mHa)")
-    ax.set_title(f"{name}: error against the exact sector energy")
-    ax.legend(fontsize=7)
-    fig.tight_layout()
-    f = folder / f"{name}_error.png"
-    fig.savefig(f, dpi=120)
-    plt.close(fig)
-    files.append(f)
-    return files
-
-
-def plot_traces(rows: list[dict], folder: str | Path, results: str | Path = "results") -> Path:
-    """Convergence traces (energy error per evaluation) of every optimize job, one panel per molecule."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    folder = Path(folder)
-    mols = list(dict.fromkeys(r["molecule"] for r in rows))
-    fig, axes = plt.subplots(len(mols), 1, figsize=(7, 3 * len(mols)), squeeze=False)
-    for ax, mol in zip(axes[:, 0], mols, strict=True):
-        for r in (r for r in rows if r["molecule"] == mol):
-            opt = read_stage(Path(results) / "optimize" / f"{r['key']}.h5", stage="optimize")
-            tr = np.asarray(opt.arrays["trace_energy"], dtype=float)
-            err = np.maximum((tr - float(r["energy_exact"])) * 1000.0, 1e-7)
-            ax.semilogy(
-                np.arange(1, len(err) + 1),
-                err,
-                lw=0.8,
-                label=f"{r['point']} {r['ansatz']}/{r['optimizer']}",
-            )
-        ax.axhline(1.6, color="tab:green", lw=0.8, ls="--")
-        ax.set_title(f"{mol}: convergence")
-        ax.set_xlabel("energy evaluation")
-        ax.set_ylabel("E - E(exact) (mHa)")
-        if len(ax.lines) <= 12:
-            ax.legend(fontsize=6)
-    fig.tight_layout()
-    f = folder / "convergence.png"
-    fig.savefig(f, dpi=110)
-    plt.close(fig)
-    return f
+def study_folder(results: str | Path, study: str) -> Path:
+    """Where a study's tables and figures go: ``results/<study>/``."""
+    return Path(results) / study
 
 
 def collect(
@@ -291,39 +292,55 @@ def collect(
     results: str | Path = "results",
     accuracy_mha: float = 1.6,
     exports: list[dict] | None = None,
+    study: str = "main",
 ) -> list[Path]:
-    """Write ``summary.csv``, ``device_summary.csv`` and every plot; returns the written files."""
+    """Write the study's tables, README and figures; returns the written files.
+
+    The summary is written before any figure, so a plotting problem never loses it.
+    """
+    from .analysis import analyse_study, write_analysis
+    from .figures import study_figures
+
     results = Path(results)
+    folder = study_folder(results, study)
     summary = summary_rows(rows, results)
-    files = [write_summary(summary, results / "summary.csv")]
-    plots = results / "plots"
-    for mol in dict.fromkeys(r["molecule"] for r in summary):
-        files += plot_molecule([r for r in summary if r["molecule"] == mol], plots, accuracy_mha)
-    files.append(plot_traces(summary, plots, results))
-    files += write_device_outputs(exports or [], results)
+    devices = device_rows(exports or [], results)
+    files = [
+        write_summary(summary, folder / "summary.csv"),
+        write_table(devices, folder / "device_summary.csv", DEVICE_COLUMNS),
+    ]
+    analysis, warnings = analyse_study(summary)
+    files.append(write_analysis(analysis, folder / "analysis.csv"))
+    readme = folder / "README.md"
+    with atomic_path(readme) as tmp:
+        tmp.write_text(readme_text(study), encoding="utf-8", newline="\n")
+    files.append(readme)
+    for w in warnings:
+        print(f"eigensweep: collect: {w}")
+    files += study_figures(summary, exports or [], results, folder / "plots", accuracy_mha)
     return files
 
 
-DEVICE_COLUMNS = [
-    "molecule",
-    "point",
-    "mapping",
-    "tapered",
-    "ansatz",
-    "optimizer",
-    "n_qubits",
-    "n_circuits",
-    "shots",
-    "energy_simulated",
-    "energy_exact",
-    "estimate",
-    "energy",
-    "ci_low",
-    "ci_high",
-    "error_mha",
-    "kept_fraction",
-    "key_export",
-    "key_reconcile",
+DEVICE_COLUMNS: list[Column] = [
+    _c("molecule", "", "molecule name"),
+    _c("point", "", "scan point label"),
+    _c("mapping", "", "fermion-to-qubit mapping"),
+    _c("tapered", "", "Z2 tapering on or off"),
+    _c("ansatz", "", "ansatz label"),
+    _c("optimizer", "", "optimizer label"),
+    _c("n_qubits", "", "qubits of the exported circuits"),
+    _c("n_circuits", "", "circuits in the device job (measurement, calibration, folded)"),
+    _c("shots", "", "shots over all circuits of the job"),
+    _c("energy_simulated_eh", "Eh", "noise-free expectation of the exported circuit"),
+    _c("energy_exact_eh", "Eh", "exact energy of the active space"),
+    _c("estimate", "", "raw, readout_mitigated, symmetry_verified, zne_linear, zne_richardson"),
+    _c("energy_eh", "Eh", "the estimate's energy"),
+    _c("ci_low_eh", "Eh", "lower end of the bootstrap 95 % interval"),
+    _c("ci_high_eh", "Eh", "upper end of the bootstrap 95 % interval"),
+    _c("error_mha", "mHa", "`energy_eh` minus `energy_exact_eh`"),
+    _c("kept_fraction", "", "shots kept by symmetry verification"),
+    _c("key_export", "", "export stage key"),
+    _c("key_reconcile", "", "reconcile stage key"),
 ]
 
 
@@ -340,8 +357,7 @@ def device_rows(exports: list[dict], results: str | Path = "results") -> list[di
         rec = read_stage(results / "reconcile" / f"{ex['key_reconcile']}.h5", stage="reconcile")
         res = ReconcileResult.from_store(rec.arrays, rec.meta)
         manifest = exp.meta["manifest"]
-        exact = rec.meta.get("energy_exact")
-        exact = float(exact) if exact is not None else float("nan")
+        exact = _num(rec.meta.get("energy_exact"))
         for kind, est in res.estimates().items():
             if est is None:
                 continue
@@ -354,12 +370,12 @@ def device_rows(exports: list[dict], results: str | Path = "results") -> list[di
                     "n_qubits": exp.meta["n_qubits"],
                     "n_circuits": len(manifest["circuits"]),
                     "shots": sum(int(c["shots"]) for c in manifest["circuits"]),
-                    "energy_simulated": float(exp.meta["energy_simulated"]),
-                    "energy_exact": exact,
+                    "energy_simulated_eh": _num(exp.meta.get("energy_simulated")),
+                    "energy_exact_eh": exact,
                     "estimate": kind,
-                    "energy": est.value,
-                    "ci_low": est.ci_low,
-                    "ci_high": est.ci_high,
+                    "energy_eh": est.value,
+                    "ci_low_eh": est.ci_low,
+                    "ci_high_eh": est.ci_high,
                     "error_mha": (est.value - exact) * 1000.0,
                     "kept_fraction": res.kept_fraction if kind == "symmetry_verified" else "",
                     "key_export": ex["key_export"],
@@ -367,24 +383,3 @@ def device_rows(exports: list[dict], results: str | Path = "results") -> list[di
                 }
             )
     return out
-
-
-def write_device_outputs(exports: list[dict], results: str | Path = "results") -> list[Path]:
-    """``device_summary.csv`` and one returned-vs-ideal histogram per reconciled point."""
-    from .device import ReconcileResult, plot_histograms
-
-    results = Path(results)
-    rows = device_rows(exports, results)
-    path = results / "device_summary.csv"
-    with atomic_path(path) as tmp, open(tmp, "w", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=DEVICE_COLUMNS)
-        w.writeheader()
-        for r in rows:
-            w.writerow({c: _fmt(r.get(c, "")) for c in DEVICE_COLUMNS})
-    files = [path]
-    for ex in exports:
-        if ex.get("key_reconcile"):
-            rec = read_stage(results / "reconcile" / f"{ex['key_reconcile']}.h5", stage="reconcile")
-            res = ReconcileResult.from_store(rec.arrays, rec.meta)
-            files.append(plot_histograms(res, results / "plots" / f"device_{ex['key_export']}.png"))
-    return files

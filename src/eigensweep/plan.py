@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import hashlib
 import itertools
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -35,9 +34,6 @@ MOLECULE_KEYS = ("atoms", "basis", "charge", "multiplicity", "unit", "frozen_cor
 def molecule_kwargs(params: dict) -> dict:
     """The molecule-defining subset of an integrals node's parameters, as keyword arguments."""
     return {k: params[k] for k in MOLECULE_KEYS}
-
-
-_PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 
 
 @dataclass(frozen=True)
@@ -65,6 +61,8 @@ class Plan:
     nodes: dict[str, Node]
     rows: list[dict]
     exports: list[dict] = field(default_factory=list)
+    study: str = "main"
+    skipped: list[str] = field(default_factory=list)
 
     def by_stage(self, stage: str) -> list[Node]:
         return [n for n in self.nodes.values() if n.stage == stage]
@@ -85,7 +83,9 @@ def scan_points(mol: dict, where: str) -> list[dict[str, float]]:
     scan = mol.get("scan") or {}
     axes: dict[str, list[float]] = {}
     for var, spec in scan.items():
-        if isinstance(spec, dict):
+        if isinstance(spec, dict) and "values" in spec:
+            vals = [float(v) for v in spec["values"]]
+        elif isinstance(spec, dict):
             vals = np.linspace(spec["start"], spec["stop"], spec["num"]).tolist()
         else:
             vals = [float(v) for v in spec]
@@ -130,28 +130,24 @@ def molecule_geometry(mol: dict, where: str, base_dir: Path) -> str:
 
 
 def fill_geometry(template: str, point: dict[str, float], where: str) -> str:
-    """Substitute {placeholders}; checks placeholders and scan variables match exactly."""
-    used = set(_PLACEHOLDER.findall(template))
-    given = set(point)
-    if used - given:
-        missing = sorted(used - given)[0]
-        raise ConfigError(
-            f"{where}: atoms uses {{{missing}}} but scan has no values for it; add scan: {{{missing}: [...]}}"
-        )
-    if given - used:
-        extra = sorted(given - used)[0]
-        raise ConfigError(
-            f"{where}: scan variable {extra!r} does not appear as {{{extra}}} in atoms; remove it or use it"
-        )
-    text = _PLACEHOLDER.sub(lambda m: _format_value(point[m.group(1)]), template)
-    if "{" in text or "}" in text:
-        raise ConfigError(
-            f"{where}: atoms has a malformed placeholder; use {{name}} with letters, digits, _"
-        )
-    from .chem.geometry import canonical_atoms  # no PySCF needed
+    """Cartesian atom string of one scan point (placeholders evaluated, Z-matrix converted)."""
+    from .chem.geometry import fill_template  # no PySCF needed
 
-    # one spelling (symbols, numbers, separators) so cosmetic edits do not change keys
-    return canonical_atoms(text, where=where)
+    return fill_template(template, point, where)
+
+
+def scan_units(mol: dict, template: str, where: str) -> dict[str, str]:
+    """Unit of each scan variable: the scan entry's own ``unit``, else inferred from its place."""
+    from .chem.geometry import infer_scan_units, normalise_unit
+
+    out = infer_scan_units(template, mol.get("unit", "angstrom"), where)
+    for var, spec in (mol.get("scan") or {}).items():
+        unit = spec.get("unit") if isinstance(spec, dict) else None
+        if unit in ("angstrom", "bohr"):
+            out[var] = normalise_unit(unit, where)
+        elif unit is not None:
+            out[var] = unit
+    return out
 
 
 def method_label(kind: str, entry: dict) -> str:
@@ -165,17 +161,33 @@ def method_label(kind: str, entry: dict) -> str:
     return entry["name"] + "(" + ",".join(f"{k}={v}" for k, v in sorted(opts.items())) + ")"
 
 
-def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = "results") -> Plan:
+def _sweep_molecules(cfg: dict, sweeps: list):
+    """(sweep, index, molecule) for every molecule of every sweep, in config order."""
+    for sweep in sweeps:
+        for im, mol in enumerate(cfg["molecules"]):
+            if mol["name"] in sweep.molecules:
+                yield sweep, im, mol
+
+
+def build_plan(
+    cfg: dict,
+    base_dir: str | Path = ".",
+    results_dir: str | Path = "results",
+    config_path: str | Path | None = None,
+) -> Plan:
     """Expand a validated configuration into stage nodes with Merkle keys.
 
     Args:
         cfg: output of :func:`eigensweep.config.validate_config` (defaults filled).
         base_dir: folder against which relative XYZ paths are resolved.
         results_dir: where imported device results are looked for (external device only).
+        config_path: the configuration file, whose stem names the study when ``study`` is unset.
 
     Returns:
-        The :class:`Plan`; ``rows`` are ordered molecule, point, then methods.
+        The :class:`Plan`; ``rows`` are ordered sweep, molecule, point, then methods.
     """
+    from .study import expand_sweeps, study_name
+
     base_dir = Path(base_dir)
     nodes: dict[str, Node] = {}
 
@@ -185,17 +197,14 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
         return key
 
     refs = cfg["references"]
-    meth = cfg["methods"]
-    combos = list(
-        itertools.product(
-            meth["mapping"], meth["taper"], meth["ansatz"], meth["optimizer"], meth["estimator"]
-        )
-    )
+    sweeps = expand_sweeps(cfg)
     rows: list[dict] = []
-    for im, mol in enumerate(cfg["molecules"]):
+    for sweep, im, mol in _sweep_molecules(cfg, sweeps):
+        combos = sweep.combos
         where = f"molecules[{im}] ({mol['name']})"
         template = molecule_geometry(mol, where, base_dir)
         points = scan_points(mol, where)
+        units = scan_units(mol, template, where)
         prev_int: str | None = None
         prev_opt: dict[int, str] = {}
         for point in points:
@@ -224,7 +233,7 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
                     "optimizer": optimizer,
                     "estimator": estimator,
                     "seed": cfg["seed"],
-                    "warm_start": bool(meth["warm_start"] and ic in prev_opt),
+                    "warm_start": bool(sweep.warm_start and ic in prev_opt),
                 }
                 opt_parents = {"taper": k_tap, "integrals": k_int}
                 if opt_params["warm_start"]:
@@ -234,8 +243,10 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
                 rows.append(
                     {
                         "molecule": mol["name"],
+                        "sweep": sweep.name,
                         "point": point_label(point),
                         **{f"scan_{k}": v for k, v in point.items()},
+                        "axis_units": {k: units.get(k, "none") for k in point},
                         "basis": mol["basis"].lower(),
                         "unit": mol["unit"],
                         "charge": mol["charge"],
@@ -245,6 +256,7 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
                         "ansatz": method_label("ansatz", ansatz),
                         "optimizer": method_label("optimizer", optimizer),
                         "estimator": method_label("estimator", estimator),
+                        "seed": cfg["seed"],
                         "key": k_opt,
                         "key_integrals": k_int,
                         "key_hamiltonian": k_ham,
@@ -252,7 +264,13 @@ def build_plan(cfg: dict, base_dir: str | Path = ".", results_dir: str | Path = 
                     }
                 )
     exports = _plan_device(cfg, rows, add, Path(results_dir))
-    return Plan(nodes=nodes, rows=rows, exports=exports)
+    return Plan(
+        nodes=nodes,
+        rows=rows,
+        exports=exports,
+        study=study_name(cfg, config_path),
+        skipped=[line for sw in sweeps for line in sw.skipped],
+    )
 
 
 def _row_matches(sel: dict, row: dict) -> bool:

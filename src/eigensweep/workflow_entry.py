@@ -50,7 +50,13 @@ def run_collect_job(smk) -> None:
 
     _open_log(smk)
     try:
-        files = collect(smk.params.rows, "results", smk.params.accuracy_mha, smk.params.exports)
+        files = collect(
+            smk.params.rows,
+            "results",
+            smk.params.accuracy_mha,
+            smk.params.exports,
+            study=smk.params.study,
+        )
     except EigensweepError as exc:
         _fail(exc, "collect")
     print("wrote " + ", ".join(map(str, files)), file=sys.stderr)

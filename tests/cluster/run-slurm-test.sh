@@ -90,18 +90,18 @@ grep -E "has been submitted with SLURM jobid|steps \(|done in|Error" "$work/slur
 n_sub=$(grep -c "has been submitted with SLURM jobid" "$work/slurm.log" || true)
 log "$n_sub stage jobs were submitted through Slurm"
 [ "$n_sub" -gt 0 ] || { echo "cluster test: no Slurm submission seen" >&2; tail -40 "$work/slurm.log" >&2; exit 1; }
-[ -f "$work/slurm/results/summary.csv" ] || { echo "cluster test: no summary from the Slurm run" >&2; tail -40 "$work/slurm.log" >&2; exit 1; }
+[ -f "$work/slurm/results/cluster/summary.csv" ] || { echo "cluster test: no summary from the Slurm run" >&2; tail -40 "$work/slurm.log" >&2; exit 1; }
 
 log "running the same sweep locally in $work/local"
 (cd "$work/local" && "$repo/.venv/bin/eigensweep" run --config "$cfg" --cores 2) > "$work/local.log" 2>&1
 
-"$py" - "$work/slurm/results/summary.csv" "$work/local/results/summary.csv" <<'PY'
+"$py" - "$work/slurm/results/cluster/summary.csv" "$work/local/results/cluster/summary.csv" <<'PY'
 import csv, sys
 a = {r["key"]: r for r in csv.DictReader(open(sys.argv[1]))}
 b = {r["key"]: r for r in csv.DictReader(open(sys.argv[2]))}
 assert a.keys() == b.keys(), "different stage keys"
 for k in a:
-    assert a[k]["energy"] == b[k]["energy"], (k, a[k]["energy"], b[k]["energy"])
+    assert a[k]["energy_eh"] == b[k]["energy_eh"], (k, a[k]["energy_eh"], b[k]["energy_eh"])
 print(f"[cluster-test] {len(a)} optimize results identical between Slurm and local runs")
 PY
 log "passed"

@@ -5,19 +5,23 @@ rule collect:
         reconcile=get_reconcile_files(),
     output:
         summary=report(
-            "results/summary.csv", caption="../report/summary.rst", category="Summary"
-        ),
-        device=report(
-            "results/device_summary.csv",
+            get_study_file("summary.csv"),
             caption="../report/summary.rst",
             category="Summary",
         ),
+        device=report(
+            get_study_file("device_summary.csv"),
+            caption="../report/summary.rst",
+            category="Summary",
+        ),
+        analysis=get_study_file("analysis.csv"),
+        readme=get_study_file("README.md"),
         plots=[
             report(f, caption="../report/plots.rst", category="Plots")
             for f in get_plot_files()
         ],
     log:
-        "logs/collect.log",
+        f"logs/collect/{get_study()}.log",
     conda:
         "../../envs/eigensweep.yaml"
     threads: 1
@@ -28,5 +32,6 @@ rule collect:
         rows=get_rows(),
         accuracy_mha=get_accuracy_mha(),
         exports=get_exports(),
+        study=get_study(),
     script:
         "../scripts/collect.py"

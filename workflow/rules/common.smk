@@ -3,21 +3,27 @@ import os
 import sys
 from pathlib import Path
 
-from eigensweep.config import workflow_config
+from eigensweep.config import DEFAULT_CONFIG, SWEEP_KEY, workflow_config
 from eigensweep.errors import EigensweepError
 from eigensweep.plan import build_plan, parent_files
 from eigensweep.preflight import check_plan_chemistry
 from eigensweep.resources import stage_resources
+from eigensweep.study import figure_stems
 
 # Stage jobs request one thread each; keep BLAS/OpenMP pools to that so parallel jobs do not
 # oversubscribe cores (measured: L-BFGS on LiH about 4x faster on 2 cores with one thread).
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
+# the config file names the study when `study:` is unset (results/<study>/)
+CONFIG_PATH = config.get(SWEEP_KEY) or (
+    workflow.overwrite_configfiles[0] if workflow.overwrite_configfiles else DEFAULT_CONFIG
+)
+
 try:
     # the sweep is read by eigensweep's own loader (plain data, nothing evaluated)
     CFG = workflow_config(config, workflow.overwrite_configfiles)
-    PLAN = build_plan(CFG, base_dir=Path.cwd())
+    PLAN = build_plan(CFG, base_dir=Path.cwd(), config_path=CONFIG_PATH)
     check_plan_chemistry(PLAN)
 except EigensweepError as exc:
     sys.stderr.write(f"eigensweep: {exc}\n")
@@ -76,22 +82,26 @@ def get_accuracy_mha(wildcards=None):
     return CFG["collect"]["accuracy_mha"]
 
 
+def get_study(wildcards=None):
+    return PLAN.study
+
+
+def get_study_file(name):
+    """A file of this study's folder: results/<study>/<name>."""
+    return f"results/{PLAN.study}/{name}"
+
+
 def get_plot_files():
     mols = list(dict.fromkeys(row["molecule"] for row in PLAN.rows))
-    files = [
-        f"results/plots/{m}_{kind}.png" for m in mols for kind in ("energy", "error")
-    ]
-    files += [
-        f"results/plots/device_{ex['key_export']}.png"
-        for ex in PLAN.exports
-        if ex["key_reconcile"]
-    ]
-    return files + ["results/plots/convergence.png"]
+    return [get_study_file(f"plots/{stem}.png") for stem in figure_stems(mols)]
 
 
 def get_final_outputs():
     return (
-        ["results/summary.csv", "results/device_summary.csv"]
+        [
+            get_study_file(name)
+            for name in ("summary.csv", "device_summary.csv", "analysis.csv", "README.md")
+        ]
         + get_plot_files()
         + get_export_files()
     )

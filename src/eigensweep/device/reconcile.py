@@ -456,11 +456,19 @@ def reconcile(
     )
 
 
-def plot_histograms(result: ReconcileResult, path: str | Path, *, max_circuits: int = 12) -> Path:
+def plot_histograms(
+    result: ReconcileResult,
+    path: str | Path,
+    *,
+    max_circuits: int = 12,
+    start: int = 0,
+    note: str = "",
+) -> Path:
     """Bar charts of returned vs ideal probabilities of the top bitstrings, one panel per circuit.
 
     Measurement circuits come first (lowest scale factor first), then calibration circuits;
-    at most ``max_circuits`` panels. Written with matplotlib's Agg canvas (no display needed).
+    panels ``start`` to ``start + max_circuits`` of that order (page through with ``start``),
+    ``note`` as the figure's title. Written with matplotlib's Agg canvas (no display needed).
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
@@ -468,7 +476,7 @@ def plot_histograms(result: ReconcileResult, path: str | Path, *, max_circuits: 
     diags = sorted(
         result.circuits,
         key=lambda c: (c.kind != "measure", c.scale_factor, c.group or 0, c.circuit_id),
-    )[:max_circuits]
+    )[start : start + max_circuits]
     ncols = min(3, max(1, len(diags)))
     nrows = max(1, -(-len(diags) // ncols))
     fig = Figure(figsize=(4.2 * ncols, 3.2 * nrows), layout="constrained")
@@ -486,7 +494,9 @@ def plot_histograms(result: ReconcileResult, path: str | Path, *, max_circuits: 
         ax.legend(fontsize=7)
     for ax in axes[len(diags) :]:
         ax.set_visible(False)
+    if note:
+        fig.suptitle(note, fontsize=10)
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path, dpi=110)
+    fig.savefig(path, dpi=300 if path.suffix == ".png" else None)
     return path

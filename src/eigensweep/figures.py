@@ -1,0 +1,482 @@
+"""A study's figures: energy curves, signed errors, convergence, resources, device results.
+
+Every figure is written as PDF and PNG (300 dpi) under ``results/<study>/plots/``.  Labels come
+from one table (:data:`LABELS`, :func:`pretty`): H₂, LiH, UCCSD, L-BFGS-B, Jordan-Wigner.  Series
+use the Okabe-Ito colour-blind-safe palette (Okabe & Ito, "Color Universal Design", 2008) with
+distinct markers and a slight horizontal offset so that coinciding series stay visible; legends
+sit outside the axes.  Errors are signed (E - E_exact) on a symmetric-log axis, so results below
+the exact energy (shot noise) are drawn below zero instead of being floored; the accuracy band
+is ``collect.accuracy_mha`` from the config.  Points whose optimizer did not meet its own
+convergence criterion are ringed in red.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+
+import numpy as np
+
+from .store import atomic_path, read_stage
+from .study import figure_stems  # noqa: F401 (re-exported: the one list of figure names)
+
+#: Okabe-Ito palette without yellow (too faint on white), then black.
+PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
+LINESTYLES = ("-", "--", ":", "-.", (0, (5, 1, 1, 1)), (0, (3, 1)))
+DPI = 300
+
+#: Display names of config values (molecule names, methods, mappings).
+LABELS: dict[str, str] = {
+    "h2": "H₂",
+    "lih": "LiH",
+    "beh2": "BeH₂",
+    "h2o": "H₂O",
+    "water": "H₂O",
+    "n2": "N₂",
+    "o2": "O₂",
+    "ch2": "CH₂",
+    "ch4": "CH₄",
+    "nh3": "NH₃",
+    "hf": "HF",
+    "co": "CO",
+    "h4": "H₄",
+    "h6": "H₆",
+    "uccsd": "UCCSD",
+    "kupccgsd": "k-UpCCGSD",
+    "hardware_efficient": "hardware-efficient",
+    "adapt": "ADAPT-VQE",
+    "lbfgs": "L-BFGS-B",
+    "bfgs": "BFGS",
+    "cobyla": "COBYLA",
+    "nelder_mead": "Nelder-Mead",
+    "spsa": "SPSA",
+    "rbf_surrogate": "RBF surrogate",
+    "exact": "exact energies",
+    "shots": "shots",
+    "noisy": "noisy shots",
+    "jordan_wigner": "Jordan-Wigner",
+    "bravyi_kitaev": "Bravyi-Kitaev",
+    "parity": "parity",
+    "raw": "raw",
+    "readout_mitigated": "readout-mitigated",
+    "symmetry_verified": "symmetry-verified",
+    "True": "tapered",
+    "False": "untapered",
+    "angstrom": "Å",
+    "bohr": "bohr",
+    "degree": "°",
+    "sto-3g": "STO-3G",
+    "6-31g": "6-31G",
+    "cc-pvdz": "cc-pVDZ",
+}
+
+#: Reference ladder lines on energy plots: column -> (label, colour, style).
+REFERENCE_LINES = {
+    "energy_hf_eh": ("HF", "0.45", "--"),
+    "energy_mp2_eh": ("MP2", "#56B4E9", ":"),
+    "energy_ccsd_eh": ("CCSD", "#E69F00", "-."),
+    "energy_ccsd_t_eh": ("CCSD(T)", "#009E73", (0, (1, 1))),
+    "energy_exact_eh": ("exact (CASCI/FCI)", "k", "-"),
+}
+
+#: Axes that tell methods apart, in the order they appear in a series label.
+SERIES_KEYS = ("sweep", "ansatz", "optimizer", "estimator", "mapping", "tapered")
+
+
+def pretty(value) -> str:
+    """Display label of a config value: ``"kupccgsd(k=3)"`` -> ``"k-UpCCGSD (k=3)"``."""
+    text = str(value)
+    m = re.fullmatch(r"([A-Za-z0-9_\-]+)\((.*)\)", text)
+    if m:
+        return f"{LABELS.get(m.group(1), m.group(1))} ({m.group(2).replace(',', ', ')})"
+    return LABELS.get(text, LABELS.get(text.lower(), text))
+
+
+def _plt():
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def save(fig, path_stem: Path) -> list[Path]:
+    """Write a figure as ``<stem>.pdf`` and ``<stem>.png`` (300 dpi); returns both paths."""
+    path_stem.parent.mkdir(parents=True, exist_ok=True)
+    out = []
+    for ext in ("pdf", "png"):
+        p = path_stem.with_suffix(f".{ext}")
+        meta = {"CreationDate": None} if ext == "pdf" else None  # reproducible PDF bytes
+        with atomic_path(p) as tmp:
+            fig.savefig(tmp, format=ext, dpi=DPI, bbox_inches="tight", metadata=meta)
+        out.append(p)
+    _plt().close(fig)
+    return out
+
+
+def series_of(rows: list[dict]) -> tuple[list[tuple], dict[tuple, str], str]:
+    """Distinct method series of some rows, a label for each and the common part as text.
+
+    Only the axes that vary among the rows appear in the labels; the others form the common part.
+    """
+    keys = [tuple(str(r.get(k, "")) for k in SERIES_KEYS) for r in rows]
+    series = list(dict.fromkeys(keys))
+    varying = [i for i in range(len(SERIES_KEYS)) if len({s[i] for s in series}) > 1]
+    common = [
+        i for i in range(len(SERIES_KEYS)) if i not in varying and series[0][i] not in ("", "main")
+    ]
+    labels = {s: ", ".join(pretty(s[i]) for i in varying) or pretty(s[1]) for s in series}
+    return series, labels, ", ".join(pretty(series[0][i]) for i in common)
+
+
+def axis_of(rows: list[dict]) -> tuple[str | None, str]:
+    """The scan column plotted on x and its axis label with unit, e.g. ``r (Å)``."""
+    scans = [k for k in rows[0] if k.startswith("scan_")]
+    if len(scans) != 1:
+        return None, "scan point"
+    var = rows[0].get("_scan_var", scans[0][5:])
+    unit = rows[0].get("_scan_unit", "none")
+    return scans[0], f"{var} ({pretty(unit)})" if unit != "none" else var
+
+
+def _x(rows: list[dict], col: str | None, points: list[str]) -> np.ndarray:
+    if col is None:
+        return np.array([points.index(r["point"]) for r in rows], dtype=float)
+    return np.array([float(r[col]) for r in rows])
+
+
+def _f(v) -> float:
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def _legend_outside(ax) -> None:
+    handles, labels = ax.get_legend_handles_labels()
+    if handles:
+        ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=8, frameon=False)
+
+
+def _method_series(ax, rows, col, points, y_of, yerr_of=None, connect=False) -> None:
+    """One marker series per method, offset slightly in x; unconverged points ringed in red."""
+    series, labels, _ = series_of(rows)
+    xall = _x(rows, col, points)
+    span = float(np.ptp(xall)) or 1.0
+    n = len(series)
+    for i, s in enumerate(series):
+        sel = sorted(
+            (r for r in rows if tuple(str(r.get(k, "")) for k in SERIES_KEYS) == s),
+            key=lambda r: _x([r], col, points)[0],
+        )
+        x = _x(sel, col, points) + (i - (n - 1) / 2) * 0.006 * span
+        y = np.array([y_of(r) for r in sel])
+        err = np.array([yerr_of(r) for r in sel]) if yerr_of else None
+        if err is not None and not np.any(np.nan_to_num(err) > 0):
+            err = None
+        colour, marker = PALETTE[i % len(PALETTE)], MARKERS[i % len(MARKERS)]
+        ax.errorbar(
+            x,
+            y,
+            yerr=err,
+            fmt=marker,
+            ls=LINESTYLES[i % len(LINESTYLES)] if connect else "none",
+            color=colour,
+            mfc="none",
+            ms=6,
+            lw=0.9,
+            capsize=2,
+            label=labels[s],
+        )
+        bad = np.array([str(r.get("converged")) not in ("True", "true") for r in sel])
+        if bad.any():
+            ax.plot(x[bad], y[bad], "o", ms=10, mfc="none", mec="red", mew=0.8)
+    if any(str(r.get("converged")) not in ("True", "true") for r in rows):
+        ax.plot([], [], "o", ms=10, mfc="none", mec="red", mew=0.8, label="optimizer not converged")
+
+
+def _symlog(ax, values, linthresh: float, accuracy_mha: float) -> None:
+    """Symmetric-log y axis spanning the data and the accuracy band, no empty negative half."""
+    v = np.asarray([x for x in values if math.isfinite(x)], float)
+    top = max(3.0 * accuracy_mha, 3.0 * float(v.max()) if v.size else 0.0)
+    neg = v[v < -linthresh]
+    bottom = 3.0 * float(neg.min()) if neg.size else -linthresh
+    if neg.size:
+        bottom = min(bottom, -3.0 * accuracy_mha)
+    ax.set_yscale("symlog", linthresh=linthresh, linscale=0.5)
+    ax.set_ylim(bottom, top)
+
+
+def _title(rows: list[dict], what: str) -> str:
+    _, _, common = series_of(rows)
+    mol = pretty(rows[0]["molecule"])
+    basis = pretty(rows[0].get("basis", ""))
+    return f"{mol} ({basis}): {what}" + (f"\n{common}" if common else "")
+
+
+def plot_energy(rows: list[dict], stem: Path) -> list[Path]:
+    """Energy curve of one molecule: VQE series beside the classical reference ladder."""
+    plt = _plt()
+    col, xlabel = axis_of(rows)
+    points = list(dict.fromkeys(r["point"] for r in rows))
+    first = {r["point"]: r for r in reversed(rows)}
+    xr = np.array([_x([first[p]], col, points)[0] for p in points])
+    order = np.argsort(xr)
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    for c, (lab, colour, style) in REFERENCE_LINES.items():
+        y = np.array([_f(first[p].get(c)) for p in points])[order]
+        if np.isfinite(y).any():
+            ax.plot(
+                xr[order],
+                y,
+                color=colour,
+                ls=style,
+                lw=1.8 if c == "energy_exact_eh" else 1.2,
+                label=lab,
+                zorder=1,
+            )
+    _method_series(
+        ax, rows, col, points, lambda r: _f(r["energy_eh"]), lambda r: _f(r.get("energy_stderr_eh"))
+    )
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel("energy (Eh)")
+    ax.set_title(_title(rows, "VQE and classical references"), fontsize=10)
+    _legend_outside(ax)
+    return save(fig, stem)
+
+
+def plot_error(rows: list[dict], stem: Path, accuracy_mha: float = 1.6) -> list[Path]:
+    """Signed error against the exact energy (mHa) on a symmetric-log axis with error bars."""
+    plt = _plt()
+    col, xlabel = axis_of(rows)
+    points = list(dict.fromkeys(r["point"] for r in rows))
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    ax.axhspan(-accuracy_mha, accuracy_mha, color="#009E73", alpha=0.12, lw=0, zorder=0)
+    ax.axhline(
+        accuracy_mha,
+        color="#009E73",
+        ls="--",
+        lw=1.0,
+        label=f"chemical accuracy ±{accuracy_mha:g} mHa",
+    )
+    ax.axhline(-accuracy_mha, color="#009E73", ls="--", lw=1.0)
+    ax.axhline(0.0, color="k", lw=0.8)
+    _method_series(
+        ax,
+        rows,
+        col,
+        points,
+        lambda r: _f(r["error_mha"]),
+        lambda r: 1000.0 * _f(r.get("energy_stderr_eh")),
+        connect=True,
+    )
+    signed = [_f(r["error_mha"]) for r in rows]
+    errs = np.abs(signed)
+    small = errs[np.isfinite(errs) & (errs > 0)]
+    linthresh = max(1e-6, min(1e-3, float(np.min(small)) if small.size else 1e-3))
+    _symlog(
+        ax,
+        signed
+        + [
+            e + 2e3 * _f(r.get("energy_stderr_eh"))
+            for e, r in zip(signed, rows, strict=True)
+            if math.isfinite(_f(r.get("energy_stderr_eh")))
+        ],
+        linthresh,
+        accuracy_mha,
+    )
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel("E(VQE) − E(exact) (mHa)")
+    ax.set_title(
+        _title(rows, f"signed error (symmetric log axis, linear below {linthresh:g} mHa)"),
+        fontsize=10,
+    )
+    _legend_outside(ax)
+    return save(fig, stem)
+
+
+def plot_convergence(
+    rows: list[dict], stem: Path, results: Path, accuracy_mha: float
+) -> list[Path]:
+    """Signed error per energy evaluation for every job of one molecule; one colour per method."""
+    plt = _plt()
+    series, labels, _ = series_of(rows)
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    everything: list[float] = []
+    for i, s in enumerate(series):
+        first = True
+        for r in rows:
+            if tuple(str(r.get(k, "")) for k in SERIES_KEYS) != s:
+                continue
+            opt = read_stage(results / "optimize" / f"{r['key']}.h5", stage="optimize")
+            err = (
+                np.asarray(opt.arrays["trace_energy"], float) - _f(r["energy_exact_eh"])
+            ) * 1000.0
+            shots = str(r.get("estimator", "exact")) != "exact"
+            everything += [float(e) for e in err[np.isfinite(err)]]
+            ax.plot(
+                np.arange(1, len(err) + 1),
+                err,
+                marker="." if shots else None,
+                ms=2,
+                ls=LINESTYLES[i % len(LINESTYLES)],
+                lw=0.5 if shots else 1.0,
+                alpha=0.6 if shots else 0.9,
+                color=PALETTE[i % len(PALETTE)],
+                label=labels[s] if first else None,
+            )
+            first = False
+    ax.axhline(
+        accuracy_mha,
+        color="#009E73",
+        ls="--",
+        lw=1.0,
+        label=f"chemical accuracy {accuracy_mha:g} mHa",
+    )
+    ax.axhline(0.0, color="k", lw=0.8)
+    _symlog(ax, everything, 1e-3, accuracy_mha)
+    ax.set_xlabel("energy evaluation")
+    ax.set_ylabel("E − E(exact) (mHa)")
+    ax.set_title(_title(rows, "convergence (every scan point; one colour per method)"), fontsize=10)
+    _legend_outside(ax)
+    return save(fig, stem)
+
+
+def plot_resources(summary: list[dict], stem: Path) -> list[Path]:
+    """Qubits and CNOTs per molecule and ansatz, untapered beside tapered (medians over points)."""
+    plt = _plt()
+    groups = list(dict.fromkeys((r["molecule"], r["ansatz"]) for r in summary))
+    fig, axes = plt.subplots(1, 2, figsize=(max(7.5, 1.6 * len(groups) + 3), 4))
+    width = 0.38
+    for ax, col, ylabel in ((axes[0], "n_qubits", "qubits"), (axes[1], "cnot_count", "CNOT gates")):
+        for j, tapered in enumerate(("False", "True")):
+            vals = []
+            for mol, ans in groups:
+                v = [
+                    _f(r[col])
+                    for r in summary
+                    if (r["molecule"], r["ansatz"]) == (mol, ans) and str(r["tapered"]) == tapered
+                ]
+                vals.append(float(np.median(v)) if v else math.nan)
+            x = np.arange(len(groups)) + (j - 0.5) * width
+            bars = ax.bar(
+                x,
+                vals,
+                width,
+                color=PALETTE[j],
+                label=pretty(tapered),
+                hatch="//" if j else None,
+                edgecolor="k",
+                lw=0.5,
+            )
+            ax.bar_label(
+                bars, labels=["" if not math.isfinite(v) else f"{v:g}" for v in vals], fontsize=7
+            )
+        ax.set_xticks(
+            np.arange(len(groups)), [f"{pretty(m)}\n{pretty(a)}" for m, a in groups], fontsize=8
+        )
+        ax.set_ylabel(ylabel)
+    axes[1].legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False, fontsize=8)
+    fig.suptitle(
+        "Circuit resources with and without Z2 tapering (median over scan points)", fontsize=10
+    )
+    fig.tight_layout()
+    return save(fig, stem)
+
+
+def plot_noise_scaling(result, stem: Path, title: str) -> list[Path]:
+    """Energy against the noise-scale factor with 95 % intervals and the zero-noise estimates."""
+    plt = _plt()
+    fig, ax = plt.subplots(figsize=(6.5, 4.2))
+    xs = np.array(result.scale_factors, float)
+    ys = np.array([e.value for e in result.scale_energies])
+    lo = ys - np.array([e.ci_low for e in result.scale_energies])
+    hi = np.array([e.ci_high for e in result.scale_energies]) - ys
+    ax.errorbar(
+        xs,
+        ys,
+        yerr=[lo, hi],
+        fmt="o",
+        color=PALETTE[0],
+        capsize=3,
+        label=f"measured ({pretty(result.zne_input)})",
+    )
+    seen: dict[float, str] = {}
+    for i, (name, est) in enumerate(
+        (("linear", result.zne_linear), ("Richardson", result.zne_richardson))
+    ):
+        if est is None:
+            continue
+        key = round(est.value, 12)
+        if key in seen:  # the same number under two names: one label
+            continue
+        seen[key] = name
+        ax.errorbar(
+            [0.0],
+            [est.value],
+            yerr=[[est.value - est.ci_low], [est.ci_high - est.value]],
+            fmt=MARKERS[i + 1],
+            color=PALETTE[i + 1],
+            capsize=3,
+            label=f"zero-noise ({name})",
+        )
+    if result.energy_exact is not None:
+        ax.axhline(result.energy_exact, color="k", lw=1.2, label="exact")
+    if result.energy_sim is not None:
+        ax.axhline(result.energy_sim, color="0.45", ls="--", lw=1.0, label="simulated (noise-free)")
+    ax.set_xlabel("noise scale factor (unitary folding)")
+    ax.set_ylabel("energy (Eh)")
+    ax.set_xlim(left=-0.3)
+    ax.set_title(title, fontsize=10)
+    _legend_outside(ax)
+    return save(fig, stem)
+
+
+def device_figures(
+    exports: list[dict], results: Path, folder: Path, per_page: int = 12
+) -> list[Path]:
+    """Every device circuit's returned-vs-ideal histogram (paged) and the noise-scaling plot."""
+    from .device import ReconcileResult, plot_histograms
+
+    files: list[Path] = []
+    for ex in exports:
+        if not ex.get("key_reconcile"):
+            continue
+        rec = read_stage(results / "reconcile" / f"{ex['key_reconcile']}.h5", stage="reconcile")
+        res = ReconcileResult.from_store(rec.arrays, rec.meta)
+        n = len(res.circuits)
+        pages = max(1, -(-n // per_page))
+        for page in range(pages):
+            stem = folder / (f"device_{ex['key_export']}" + (f"_p{page + 1}" if pages > 1 else ""))
+            png = plot_histograms(
+                res,
+                stem.with_suffix(".png"),
+                max_circuits=per_page,
+                start=page * per_page,
+                note=f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['tapered'])}: returned vs ideal, page {page + 1} of {pages}, circuits {page * per_page + 1}-{min(n, (page + 1) * per_page)} of {n}",
+            )
+            files.append(png)
+        label = f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['ansatz'])}, {pretty(ex['tapered'])}"
+        files += plot_noise_scaling(
+            res, folder / f"zne_{ex['key_export']}", f"{label}: zero-noise extrapolation"
+        )
+    return files
+
+
+def study_figures(
+    summary: list[dict], exports: list[dict], results: Path, folder: Path, accuracy_mha: float = 1.6
+) -> list[Path]:
+    """All figures of a study; returns the written files."""
+    files: list[Path] = []
+    for mol in dict.fromkeys(r["molecule"] for r in summary):
+        rows = [r for r in summary if r["molecule"] == mol]
+        files += plot_energy(rows, folder / f"{mol}_energy")
+        files += plot_error(rows, folder / f"{mol}_error", accuracy_mha)
+        files += plot_convergence(rows, folder / f"{mol}_convergence", Path(results), accuracy_mha)
+    if summary:
+        files += plot_resources(summary, folder / "resources")
+    files += device_figures(exports, Path(results), folder)
+    return files
