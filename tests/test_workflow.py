@@ -99,10 +99,18 @@ def test_rerun_executes_nothing(sweep):
 def test_changing_optimizer_reruns_only_optimize(sweep):
     work, _ = sweep
     before = snapshot(work)
+    first_study = {
+        p: p.read_bytes() for p in (work / "results" / "sweep").rglob("*") if p.is_file()
+    }
     cfg = dict(CONFIG, methods={"taper": [False], "optimizer": [{"name": "bfgs"}]})
     (work / "sweep2.yaml").write_text(yaml.safe_dump(cfg))
     out = run_cli(work, "run", "--config", "sweep2.yaml", "--cores", "2")
     assert out.returncode == 0, out.stderr[-3000:]
+    # a second study in the same folder writes its own tables and leaves the first one's alone
+    assert (work / "results" / "sweep2" / "summary.csv").is_file()
+    assert {
+        p: p.read_bytes() for p in (work / "results" / "sweep").rglob("*") if p.is_file()
+    } == first_study
     after = snapshot(work)
     for name, value in before.items():
         assert after[name] == value, f"{name} was rewritten"

@@ -21,7 +21,6 @@ the extraction folder.
 from __future__ import annotations
 
 import copy
-
 import hashlib
 import json
 import platform
