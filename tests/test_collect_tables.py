@@ -154,32 +154,3 @@ def test_results_loader_units_and_types(shot_study):
     assert df["overlap_exact"].notna().all()
     with pytest.raises(Exception, match="missing; run the study"):
         loader.load("nope", results=results)
-
-
-def test_o2_singlet_tapered_sweep_writes_its_summary(tmp_path):
-    # the held-out case: a tapered O2 singlet (8e, 6o) whose optimize stage cannot form the
-    # overlap; the summary must still be written. reference: PySCF CASCI(6, 8) singlet on RHF
-    from pyscf import gto, mcscf, scf
-
-    raw = {
-        "molecules": [
-            {
-                "name": "o2",
-                "atoms": "O 0 0 0; O 0 0 1.2075",
-                "multiplicity": 1,
-                "active": {"electrons": 8, "orbitals": 6},
-            }
-        ],
-        "methods": {"taper": [True]},
-    }
-    results = tmp_path / "results"
-    cfg, plan = run_plan(raw, results)
-    collect(plan.rows, results, 1.6, [], study="o2")
-    (row,) = _rows(results / "o2" / "summary.csv")
-    mf = scf.RHF(gto.M(atom="O 0 0 0; O 0 0 1.2075", basis="sto-3g", verbose=0)).run()
-    cas = mcscf.CASCI(mf, 6, 8)
-    cas.fix_spin_(ss=0)
-    assert float(row["energy_exact_eh"]) == pytest.approx(cas.kernel()[0], abs=1e-6)
-    assert row["energy_eh"] != ""
-    if row["overlap_exact"] == "":
-        assert "overlap_exact" in row["notes"]
