@@ -469,7 +469,7 @@ def validate_config(raw: Any, source: str = "config") -> dict:
         )
     from .study import expand_sweeps  # unsupported combinations: skipped, or refused if strict
 
-    expand_sweeps(cfg, source)
+    expand_sweeps(cfg, check_combination, source)
     return cfg
 
 

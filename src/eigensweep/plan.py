@@ -186,6 +186,7 @@ def build_plan(
     Returns:
         The :class:`Plan`; ``rows`` are ordered sweep, molecule, point, then methods.
     """
+    from .config import check_combination
     from .study import expand_sweeps, study_name
 
     base_dir = Path(base_dir)
@@ -197,7 +198,7 @@ def build_plan(
         return key
 
     refs = cfg["references"]
-    sweeps = expand_sweeps(cfg)
+    sweeps = expand_sweeps(cfg, check_combination)
     rows: list[dict] = []
     for sweep, im, mol in _sweep_molecules(cfg, sweeps):
         combos = sweep.combos

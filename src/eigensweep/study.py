@@ -16,6 +16,7 @@ never a stage key: a stage shared by two sweeps or two studies is one stage file
 from __future__ import annotations
 
 import itertools
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -99,11 +100,13 @@ def _product(methods: dict, zipped: list[str], where: str) -> list[tuple]:
     return out
 
 
-def expand_sweeps(cfg: dict, source: str = "config") -> list[Sweep]:
+def expand_sweeps(cfg: dict, check: Callable[..., None], source: str = "config") -> list[Sweep]:
     """The sweeps of a validated configuration with their method combinations.
 
     Args:
         cfg: output of :func:`eigensweep.config.validate_config` (method entries filled).
+        check: the combination rule, :func:`eigensweep.config.check_combination` (passed in so
+            this module does not import the config module that calls it).
         source: name used in error messages.
 
     Returns:
@@ -113,8 +116,6 @@ def expand_sweeps(cfg: dict, source: str = "config") -> list[Sweep]:
         ConfigError: unknown molecule names, duplicate sweep names, bad ``zip``; an unsupported
             combination when ``strict`` is on; a sweep left with nothing to run.
     """
-    from .config import check_combination
-
     top = cfg["methods"]
     names = [m["name"] for m in cfg["molecules"]]
     entries = cfg.get("sweeps") or [{"name": DEFAULT_SWEEP}]
@@ -139,7 +140,7 @@ def expand_sweeps(cfg: dict, source: str = "config") -> list[Sweep]:
                 continue
             mapping, taper, ansatz, optimizer, estimator = combo
             try:
-                check_combination(ansatz, taper, mapping, optimizer=optimizer, estimator=estimator)
+                check(ansatz, taper, mapping, optimizer=optimizer, estimator=estimator)
             except ConfigError as exc:
                 line = f"{_combo_text(combo)}: {exc}"
                 if cfg.get("strict"):
