@@ -36,6 +36,7 @@ __all__ = [
     "apply_matrix_1q",
     "gate_matrix",
     "probabilities_to_distribution",
+    "PauliStrings",
     "simulate",
     "GATE_MATRICES",
 ]
@@ -387,3 +388,113 @@ def probabilities_to_distribution(
     return {
         format(int(i), f"0{n_qubits}b"): float(probs[i]) for i in np.flatnonzero(probs >= cutoff)
     }
+
+
+class PauliStrings:
+    """Fixed Pauli strings applied many times (ansatz gates): ``P_k psi`` and rotations.
+
+    Single-qubit strings act on a reshaped view; multi-qubit strings use precomputed tables
+    ``P_k psi = phase_k * sign_k * psi[perm_k]`` when they fit in :attr:`TABLE_BUDGET` bytes
+    (one sign vector per string, one index vector per distinct X part), otherwise the generic
+    :func:`apply_pauli` / :func:`apply_pauli_rotation`. Tables are built on first use.
+
+    Args:
+        strings: ``[(x_row, z_row), ...]`` bool rows of length ``n_qubits``.
+        n_qubits: register size.
+    """
+
+    #: bytes of precomputed multi-qubit tables allowed per set of strings
+    TABLE_BUDGET = 256 * 2**20
+
+    def __init__(self, strings: list[tuple[np.ndarray, np.ndarray]], n_qubits: int) -> None:
+        self.strings = [(np.asarray(x, dtype=bool), np.asarray(z, dtype=bool)) for x, z in strings]
+        self.n_qubits = int(n_qubits)
+        self._single: list[tuple[int, str]] = []
+        for x, z in self.strings:
+            support = np.flatnonzero(x | z)
+            if support.size == 1:
+                q = int(support[0])
+                self._single.append((q, "Y" if x[q] and z[q] else ("X" if x[q] else "Z")))
+            else:
+                self._single.append((-1, ""))
+        self._tables: list[tuple[np.ndarray, np.ndarray, complex] | None] | None = None
+
+    def _build_tables(self) -> list[tuple[np.ndarray, np.ndarray, complex] | None]:
+        n = self.n_qubits
+        dim = 1 << n
+        multi = [k for k, (q, _) in enumerate(self._single) if q < 0]
+        weights = 1 << (n - 1 - np.arange(n, dtype=np.int64))  # qubit 0 = most significant bit
+        xms = {int(weights @ self.strings[k][0]) for k in multi}
+        if 8 * dim * (len(multi) + len(xms)) > self.TABLE_BUDGET:
+            return [None] * len(self.strings)
+        idx = np.arange(dim, dtype=np.int64)
+        perms = {xm: idx ^ xm for xm in xms}
+        tables: list[tuple[np.ndarray, np.ndarray, complex] | None] = [None] * len(self.strings)
+        for k in multi:
+            x, z = self.strings[k]
+            perm = perms[int(weights @ x)]
+            zm = int(weights @ z)
+            sign = 1.0 - 2.0 * (np.bitwise_count(perm & zm) & 1)
+            phase = (1j) ** int(np.count_nonzero(x & z))
+            tables[k] = (perm, sign, complex(phase))
+        return tables
+
+    def _table(self, k: int) -> tuple[np.ndarray, np.ndarray, complex] | None:
+        if self._tables is None:
+            self._tables = self._build_tables()
+        return self._tables[k]
+
+    def rotate(self, psi: np.ndarray, k: int, angle: float) -> np.ndarray:
+        """``exp(-i angle/2 P_k) psi`` (a new array)."""
+        q, letter = self._single[k]
+        if q < 0:
+            table = self._table(k)
+            if table is None:
+                x, z = self.strings[k]
+                return apply_pauli_rotation(psi, x, z, angle)
+            perm, sign, phase = table
+            flipped = psi[perm]
+            flipped *= sign
+            out = np.cos(angle / 2.0) * psi
+            out += (-1j * np.sin(angle / 2.0) * phase) * flipped
+            return out
+        v = psi.reshape(1 << q, 2, -1)
+        c, s = np.cos(angle / 2.0), np.sin(angle / 2.0)
+        out = np.empty_like(v)
+        a, b = v[:, 0, :], v[:, 1, :]
+        if letter == "Z":
+            out[:, 0, :] = (c - 1j * s) * a
+            out[:, 1, :] = (c + 1j * s) * b
+        elif letter == "X":
+            out[:, 0, :] = c * a - 1j * s * b
+            out[:, 1, :] = c * b - 1j * s * a
+        else:  # Y
+            out[:, 0, :] = c * a - s * b
+            out[:, 1, :] = c * b + s * a
+        return out.reshape(-1)
+
+    def apply(self, psi: np.ndarray, k: int) -> np.ndarray:
+        """``P_k psi`` (a new array)."""
+        q, letter = self._single[k]
+        if q < 0:
+            table = self._table(k)
+            if table is None:
+                x, z = self.strings[k]
+                return apply_pauli(psi, x, z)
+            perm, sign, phase = table
+            out = psi[perm]
+            out *= sign
+            out *= phase
+            return out
+        v = psi.reshape(1 << q, 2, -1)
+        out = np.empty_like(v)
+        if letter == "Z":
+            out[:, 0, :] = v[:, 0, :]
+            out[:, 1, :] = -v[:, 1, :]
+        elif letter == "X":
+            out[:, 0, :] = v[:, 1, :]
+            out[:, 1, :] = v[:, 0, :]
+        else:
+            out[:, 0, :] = -1j * v[:, 1, :]
+            out[:, 1, :] = 1j * v[:, 0, :]
+        return out.reshape(-1)

@@ -78,46 +78,7 @@ class PauliRotationAnsatz:
         self._offsets = np.array([g.offset for g in self.gates], dtype=float)
         self.init_scale = float(init_scale)
         self.seed = int(seed)
-        self._single: list[tuple[int, str]] = []
-        for g in self.gates:
-            support = np.flatnonzero(g.x | g.z)
-            if support.size == 1:
-                q = int(support[0])
-                self._single.append((q, "Y" if g.x[q] and g.z[q] else ("X" if g.x[q] else "Z")))
-            else:
-                self._single.append((-1, ""))
-        self._tables: list[tuple[np.ndarray, np.ndarray, complex] | None] | None = None
-
-    # bytes of precomputed multi-qubit Pauli tables allowed per ansatz
-    TABLE_BUDGET = 256 * 2**20
-
-    def _build_tables(self) -> list[tuple[np.ndarray, np.ndarray, complex] | None]:
-        """``P_k psi = phase_k * sign_k * psi[perm_k]`` for the multi-qubit strings, if the
-        tables fit in :attr:`TABLE_BUDGET` (one sign vector per gate, one index vector per
-        distinct X part); otherwise ``None`` entries (generic kernel)."""
-        n = self._n_qubits
-        dim = 1 << n
-        multi = [k for k, (q, _) in enumerate(self._single) if q < 0]
-        weights = 1 << (n - 1 - np.arange(n, dtype=np.int64))  # qubit 0 = most significant bit
-        xms = {int(weights @ self.gates[k].x) for k in multi}
-        if 8 * dim * (len(multi) + len(xms)) > self.TABLE_BUDGET:
-            return [None] * len(self.gates)
-        idx = np.arange(dim, dtype=np.int64)
-        perms = {xm: idx ^ xm for xm in xms}
-        tables: list[tuple[np.ndarray, np.ndarray, complex] | None] = [None] * len(self.gates)
-        for k in multi:
-            g = self.gates[k]
-            perm = perms[int(weights @ g.x)]
-            zm = int(weights @ g.z)
-            sign = 1.0 - 2.0 * (np.bitwise_count(perm & zm) & 1)
-            phase = (1j) ** int(np.count_nonzero(g.x & g.z))
-            tables[k] = (perm, sign, complex(phase))
-        return tables
-
-    def _table(self, k: int) -> tuple[np.ndarray, np.ndarray, complex] | None:
-        if self._tables is None:
-            self._tables = self._build_tables()
-        return self._tables[k]
+        self._kernels = sv.PauliStrings([(g.x, g.z) for g in self.gates], self._n_qubits)
 
     @property
     def n_params(self) -> int:
@@ -143,59 +104,12 @@ class PauliRotationAnsatz:
         return self._coeffs * safe + self._offsets
 
     def _rotate(self, psi: np.ndarray, k: int, angle: float) -> np.ndarray:
-        """``exp(-i angle/2 P_k) psi``; single-qubit strings on a reshaped view."""
-        q, letter = self._single[k]
-        if q < 0:
-            table = self._table(k)
-            if table is None:
-                g = self.gates[k]
-                return sv.apply_pauli_rotation(psi, g.x, g.z, angle)
-            perm, sign, phase = table
-            flipped = psi[perm]
-            flipped *= sign
-            out = np.cos(angle / 2.0) * psi
-            out += (-1j * np.sin(angle / 2.0) * phase) * flipped
-            return out
-        v = psi.reshape(1 << q, 2, -1)
-        c, s = np.cos(angle / 2.0), np.sin(angle / 2.0)
-        out = np.empty_like(v)
-        a, b = v[:, 0, :], v[:, 1, :]
-        if letter == "Z":
-            out[:, 0, :] = (c - 1j * s) * a
-            out[:, 1, :] = (c + 1j * s) * b
-        elif letter == "X":
-            out[:, 0, :] = c * a - 1j * s * b
-            out[:, 1, :] = c * b - 1j * s * a
-        else:  # Y
-            out[:, 0, :] = c * a - s * b
-            out[:, 1, :] = c * b + s * a
-        return out.reshape(-1)
+        """``exp(-i angle/2 P_k) psi``."""
+        return self._kernels.rotate(psi, k, angle)
 
     def _pauli(self, psi: np.ndarray, k: int) -> np.ndarray:
         """``P_k psi``."""
-        q, letter = self._single[k]
-        if q < 0:
-            table = self._table(k)
-            if table is None:
-                g = self.gates[k]
-                return sv.apply_pauli(psi, g.x, g.z)
-            perm, sign, phase = table
-            out = psi[perm]
-            out *= sign
-            out *= phase
-            return out
-        v = psi.reshape(1 << q, 2, -1)
-        out = np.empty_like(v)
-        if letter == "Z":
-            out[:, 0, :] = v[:, 0, :]
-            out[:, 1, :] = -v[:, 1, :]
-        elif letter == "X":
-            out[:, 0, :] = v[:, 1, :]
-            out[:, 1, :] = v[:, 0, :]
-        else:
-            out[:, 0, :] = -1j * v[:, 1, :]
-            out[:, 1, :] = 1j * v[:, 0, :]
-        return out.reshape(-1)
+        return self._kernels.apply(psi, k)
 
     def state(self, theta: np.ndarray) -> np.ndarray:
         """Complex statevector (qubit 0 = most significant bit)."""
