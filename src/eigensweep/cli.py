@@ -27,6 +27,24 @@ EXIT_CODES = """exit status:
 """
 
 
+STORE_HELP = (
+    "shared stage store: keep stage files by key in DIR for many study folders "
+    "(default: the config's store key; none = results/)"
+)
+
+
+def _version() -> str:
+    """The installed distribution's version (package metadata)."""
+    from importlib import metadata
+
+    try:
+        return metadata.version("eigensweep")
+    except metadata.PackageNotFoundError:  # pragma: no cover (running from a bare checkout)
+        from . import __version__
+
+        return __version__
+
+
 def _default_config() -> Path:
     """``./config/config.yaml`` of the current folder; no other fallback."""
     local = Path(DEFAULT_CONFIG)
@@ -94,48 +112,66 @@ def _print_sizes(plan) -> None:
         )
 
 
-def _status(node, results: Path) -> str:
-    from .store import read_stage
+def _status(node, results: Path, store: Path | None = None) -> str:
+    """cached (in the study), stored (in the shared store, not yet linked), pending or
+    damaged (a file that fails its integrity check, in the study or the store)."""
+    from .stage_table import stage_path
+    from .store import read_stage, stored_valid
 
-    f = results / node.stage / f"{node.key}.h5"
-    if not f.exists():
+    f = stage_path(node.stage, node.key, results)
+    if f.exists():
+        try:
+            read_stage(f, stage=node.stage, key=node.key)
+        except EigensweepError:
+            return "damaged (will be recomputed)"
+        return "cached"
+    if store is None:
         return "pending"
-    try:
-        read_stage(f, stage=node.stage, key=node.key)
-    except EigensweepError:
+    if stored_valid(store, node.stage, node.key):
+        return "stored"
+    if stage_path(node.stage, node.key, store).exists():
         return "damaged (will be recomputed)"
-    return "cached"
+    return "pending"
+
+
+def _store_of(args, cfg: dict | None) -> Path | None:
+    """The sweep's shared stage store (``--store`` or the config's ``store``), or None."""
+    from .paths import sweep_store
+
+    return sweep_store(getattr(args, "store", None), cfg)
 
 
 def cmd_plan(args) -> int:
     path, cfg, plan = _load_plan(args.config, force=args.force)
     results = Path("results")
+    store = _store_of(args, cfg)
     counts: dict[str, dict[str, int]] = {}
     lines = []
     for node in plan.nodes.values():
-        st = _status(node, results)
+        st = _status(node, results, store)
         counts.setdefault(node.stage, {}).setdefault(st.split()[0], 0)
         counts[node.stage][st.split()[0]] += 1
         if args.verbose:
             lines.append(f"{node.stage:<12} {node.key}  {st}")
     if args.json:
-        print(json.dumps(_plan_json(path, plan, results), indent=1))
+        print(json.dumps(_plan_json(path, plan, results, store), indent=1))
         return 0
     print(
         f"plan for {path}: study {plan.study} (tables in results/{plan.study}/): "
         f"{len(plan.rows)} optimize jobs, {len(plan.nodes)} stage jobs"
     )
+    if store is not None:
+        print(f"stage store {store}: 'stored' jobs are taken from it without computing")
     for line in plan.skipped:
         print(line)
-    print(f"{'stage':<12} {'total':>6} {'cached':>7} {'pending':>8} {'damaged':>8}")
+    cols = ("cached", "stored", "pending", "damaged") if store else ("cached", "pending", "damaged")
+    print(f"{'stage':<12} {'total':>6}" + "".join(f" {c:>8}" for c in cols))
     for stage in STAGE_NAMES:
         c = counts.get(stage, {})
         total = sum(c.values())
         if not total:
             continue
-        print(
-            f"{stage:<12} {total:>6} {c.get('cached', 0):>7} {c.get('pending', 0):>8} {c.get('damaged', 0):>8}"
-        )
+        print(f"{stage:<12} {total:>6}" + "".join(f" {c.get(k, 0):>8}" for k in cols))
     _print_sizes(plan)
     _print_costs(plan, results)
     _print_waiting(plan)
@@ -162,18 +198,19 @@ def _print_waiting(plan) -> None:
         )
 
 
-def _plan_json(path: Path, plan, results: Path) -> dict:
+def _plan_json(path: Path, plan, results: Path, store: Path | None = None) -> dict:
     """Machine-readable plan: study, skipped combinations, every stage job with its status."""
     return {
         "config": str(path),
         "study": plan.study,
+        "store": str(store) if store else None,
         "skipped": plan.skipped,
         "rows": [
             {k: v for k, v in r.items() if not k.startswith("key_")} | {"key": r["key"]}
             for r in plan.rows
         ],
         "jobs": [
-            {**node.as_dict(), "status": _status(node, results).split()[0]}
+            {**node.as_dict(), "status": _status(node, results, store).split()[0]}
             for node in plan.nodes.values()
         ],
     }
@@ -209,7 +246,7 @@ def _print_costs(plan, results: Path) -> None:
         print(f"({unknown} problem(s) not yet mapped: costs appear once their taper stage has run)")
 
 
-def _snakemake_cmd(args, config: Path) -> list[str]:
+def _snakemake_cmd(args, config: Path, store: Path | None = None) -> list[str]:
     from .paths import repo_root
 
     root = repo_root()
@@ -221,6 +258,7 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
         str(root / "Snakefile"),
         "--config",
         f"sweep={config.resolve()}",
+        *([f"store={store}"] if store is not None else []),
         "--directory",
         str(Path.cwd()),
     ]
@@ -238,37 +276,59 @@ def _snakemake_cmd(args, config: Path) -> list[str]:
 
 
 def cmd_run(args) -> int:
+    from .store import store_in_use, store_root
+
     path, cfg, plan = _load_plan(args.config, force=args.force)
+    store = _store_of(args, cfg)
+    if store is not None:
+        store = store_root(store)
     lock = None if args.dry_run else _folder_lock()
+    in_use = store_in_use(store) if store is not None and lock is not None else None
     try:
-        return _run_locked(args, path, plan, lock is not None)
+        return _run_locked(args, path, plan, lock is not None, store)
     finally:
-        if lock is not None:
-            lock.close()
+        for held in (in_use, lock):
+            if held is not None:
+                held.close()
 
 
-def _run_locked(args, path: Path, plan, locked: bool) -> int:
+def _run_locked(args, path: Path, plan, locked: bool, store: Path | None = None) -> int:
+    from .stage_table import stage_path
+    from .store import link_stored, register_study
+
     results = Path("results")
     if locked:
         # Under the folder lock no other writer exists: temporary files are leftovers of
         # killed jobs (never stage files, which appear only by an atomic rename).
         for tmp in results.rglob(".*.tmp"):
             tmp.unlink(missing_ok=True)
-    status = {key: _status(node, results) for key, node in plan.nodes.items()}
-    pending = [plan.nodes[k] for k, st in status.items() if st != "cached"]
+    status = {key: _status(node, results, store) for key, node in plan.nodes.items()}
+    stored = [plan.nodes[k] for k, st in status.items() if st == "stored"]
+    pending = [plan.nodes[k] for k, st in status.items() if st not in ("cached", "stored")]
     damaged = [plan.nodes[k] for k, st in status.items() if st.startswith("damaged")]
+    from_store = f", {len(stored)} from the store {store}" if store is not None else ""
     print(
         f"eigensweep: {path}: {len(plan.rows)} optimize jobs in {len(plan.nodes)} stage jobs; "
-        f"{len(plan.nodes) - len(pending)} cached, {len(pending)} to run",
+        f"{len(plan.nodes) - len(pending) - len(stored)} cached{from_store}, "
+        f"{len(pending)} to run",
         flush=True,
     )
+    if store is not None and not args.dry_run:
+        # parents first (plan order), so no link is older than a link it depends on
+        for node in stored:
+            link_stored(store, node.stage, node.key, results)
+        for node in pending:  # a link into a store that no longer holds the key
+            f = stage_path(node.stage, node.key, results)
+            if f.is_symlink() and not f.exists():
+                f.unlink()
+        register_study(store, results)
     if damaged and not args.dry_run:
-        moved = _quarantine(damaged, results)
+        moved = _quarantine(damaged, results, store)
         print(
             f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be recomputed",
             flush=True,
         )
-    cmd = _snakemake_cmd(args, path)
+    cmd = _snakemake_cmd(args, path, store)
     if locked:
         cmd.append("--nolock")
     if pending:
@@ -316,11 +376,30 @@ def _folder_lock():
     return fh
 
 
-def _quarantine(nodes, results: Path) -> Path:
-    """Move damaged stage files aside (never delete evidence), return the folder."""
-    folder = results / ".damaged" / time.strftime("%Y%m%d-%H%M%S")
+def _quarantine(nodes, results: Path, store: Path | None = None) -> Path:
+    """Move damaged stage files aside (never delete evidence), return the folder.
+
+    A damaged file of the shared store is moved inside the store (``DIR/.damaged/``, under the
+    key's lock) and the study's link to it removed."""
+    from .stage_table import stage_path
+    from .store import key_lock
+
+    stamp = time.strftime("%Y%m%d-%H%M%S")
+    folder = results / ".damaged" / stamp
     for node in nodes:
-        src = results / node.stage / f"{node.key}.h5"
+        src = stage_path(node.stage, node.key, results)
+        if store is not None:
+            target = stage_path(node.stage, node.key, store)
+            if not src.exists() or (src.is_symlink() and src.resolve() == target):
+                with key_lock(store, node.stage, node.key):
+                    if target.is_file():
+                        folder = store / ".damaged" / stamp
+                        dst = folder / node.stage / target.name
+                        dst.parent.mkdir(parents=True, exist_ok=True)
+                        os.replace(target, dst)
+                if src.is_symlink():
+                    src.unlink()
+                continue
         dst = folder / node.stage / src.name
         dst.parent.mkdir(parents=True, exist_ok=True)
         os.replace(src, dst)
@@ -490,6 +569,74 @@ def cmd_counts_template(args) -> int:
     return 0
 
 
+def _store_for_command(args) -> Path:
+    """``--store``, else the ``store`` of ``--config``, else the current study's pointer."""
+    from .store import read_pointer
+
+    if args.store:
+        return Path(args.store).expanduser().resolve()
+    if args.config:
+        from .config import load_config
+
+        store = _store_of(args, load_config(args.config))
+        if store is None:
+            raise EigensweepError(f"{args.config}: names no store; give --store DIR")
+        return store
+    store = read_pointer("results")
+    if store is None:
+        raise EigensweepError(
+            "no --store given and no results/store.json in this folder; give --store DIR"
+        )
+    return store
+
+
+def _mb(n: int) -> str:
+    return f"{n / 1e6:.1f} MB"
+
+
+def cmd_store(args) -> int:
+    from .store import prune_store, store_usage
+
+    root = _store_for_command(args)
+    if not root.is_dir():
+        raise EigensweepError(f"store {root}: no such folder; check --store")
+    if args.action == "list":
+        usage = store_usage(root)
+        print(
+            f"store {root}: {len(usage.entries)} stage jobs, {_mb(sum(e.size for e in usage.entries))}, "
+            f"used by {len(usage.studies)} study folder(s)"
+        )
+        print(f"{'stage':<12} {'files':>6} {'MB':>9} {'unreferenced':>13}")
+        for stage in STAGE_NAMES:
+            es = [e for e in usage.entries if e.stage == stage]
+            if es:
+                print(
+                    f"{stage:<12} {len(es):>6} {sum(e.size for e in es) / 1e6:>9.1f} "
+                    f"{sum(1 for e in es if not e.studies):>13}"
+                )
+        for folder in usage.studies:
+            print(f"  study folder: {folder}")
+        if args.verbose:
+            for e in usage.entries:
+                print(f"{e.stage:<12} {e.key}  {e.size:>10} B  studies: {e.studies}")
+        return 0
+    usage = prune_store(root, delete=args.yes)
+    gone = usage.unreferenced
+    size = sum(e.size for e in gone)
+    for e in gone:
+        print(f"{'removed' if args.yes else 'would remove'}: {e.stage}/{e.key} ({e.size} B)")
+    verb = "removed" if args.yes else "would remove"
+    print(
+        f"store {root}: {verb} {len(gone)} stage job(s) no study refers to ({_mb(size)}), "
+        f"{len(usage.litter)} leftover temporary/lock file(s), {len(usage.gone)} registration(s) "
+        f"of removed study folders; {len(usage.entries) - len(gone)} kept, used by "
+        f"{len(usage.studies)} study folder(s)"
+    )
+    if not args.yes and (gone or usage.litter or usage.gone):
+        print("eigensweep: dry run; nothing deleted. Run again with --yes to delete")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser(
         prog="eigensweep",
@@ -498,6 +645,7 @@ def build_parser() -> argparse.ArgumentParser:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     ap.add_argument("--debug", action="store_true", help="show tracebacks for errors")
+    ap.add_argument("--version", action="version", version=f"eigensweep {_version()}")
     # --debug is accepted after the subcommand too (SUPPRESS keeps the top-level value)
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument(
@@ -514,6 +662,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--profile", help="Snakemake profile: local (default), slurm, or a folder")
     p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
     p.add_argument("--force", action="store_true", help="run problems above the config's limits")
+    p.add_argument("--store", help=STORE_HELP)
     p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
     p.set_defaults(func=cmd_run)
 
@@ -522,7 +671,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-v", "--verbose", action="store_true", help="one line per stage job")
     p.add_argument("--force", action="store_true", help="accept problems above the limits")
     p.add_argument("--json", action="store_true", help="print the plan as JSON")
+    p.add_argument("--store", help=STORE_HELP)
     p.set_defaults(func=cmd_plan)
+
+    p = add(
+        "store",
+        help="list a shared stage store, or remove its files that no study refers to "
+        "(dry run unless --yes)",
+    )
+    p.add_argument("action", choices=("list", "prune"))
+    p.add_argument("--store", help="the store (default: the config's store, or results/store.json)")
+    p.add_argument("--config", help="take the store from this sweep configuration")
+    p.add_argument("--yes", action="store_true", help="prune: really delete (default: dry run)")
+    p.add_argument("-v", "--verbose", action="store_true", help="list: one line per stage job")
+    p.set_defaults(func=cmd_store)
 
     p = add("report", help="write the Snakemake HTML report of a finished sweep")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")

@@ -32,6 +32,7 @@ import yaml
 
 from .errors import ConfigError
 from .inputs import MAX_CONFIG_BYTES, read_user_text
+from .paths import STORE_KEY
 
 __all__ = [
     "DEFAULT_CONFIG",
@@ -487,7 +488,7 @@ def workflow_config(snakemake_config: dict, configfiles: Sequence[str | Path]) -
     templating markers are refused, but Snakemake's own loader has read it first), or
     neither (the default sweep, ``config/config.yaml``).
     """
-    extra = sorted(set(snakemake_config) - {SWEEP_KEY})
+    extra = sorted(set(snakemake_config) - {SWEEP_KEY, STORE_KEY})
     if SWEEP_KEY in snakemake_config:
         path = snakemake_config[SWEEP_KEY]
         if not isinstance(path, str) or configfiles:

@@ -40,3 +40,18 @@ def repo_root() -> Path:
 def stage_file(stage: str, key: str, results: str | Path = "results") -> Path:
     """Path of one stage file: ``results/<stage>/<key>.h5`` (from the stage table)."""
     return stage_path(stage, key, results)
+
+
+#: Config key (and ``snakemake --config`` key) naming the shared stage store.
+STORE_KEY = "store"
+
+
+def sweep_store(given: str | Path | None, cfg: dict | None = None) -> Path | None:
+    """The stage store of a sweep: ``given`` (``--store DIR``, ``--config store=DIR``) or
+    else the config's ``store`` key; relative paths are taken from the sweep folder (the
+    current folder). None: stage files live in the study's own ``results/``.
+    """
+    value = given if given not in (None, "") else (cfg or {}).get(STORE_KEY)
+    if value in (None, ""):
+        return None
+    return Path(value).expanduser().resolve()

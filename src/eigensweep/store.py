@@ -425,3 +425,303 @@ class Timer:
 
     def __exit__(self, *exc) -> None:
         self.seconds = time.perf_counter() - self.t0
+
+
+# ----------------------------------------------------------------------------- shared store
+#
+# A stage store is one folder of stage files by key, shared by many study folders
+# (``eigensweep run --store DIR`` or the config key ``store``)::
+#
+#     DIR/<stage>/<key>.h5        the stage files (written only by write-then-rename)
+#     DIR/export/<key>/           device-job folders of export jobs
+#     DIR/studies/<id>.json       the study folders that use the store (for prune)
+#     DIR/.locks/<stage>-<key>.lock   one lock per key while a job computes it
+#     DIR/.store.lock             held shared by every running sweep, exclusively by prune
+#
+# A study using a store holds symbolic links ``results/<stage>/<key>.h5 -> DIR/<stage>/<key>.h5``
+# (and ``results/export/<key> -> DIR/export/<key>``) and the pointer ``results/store.json``, so
+# every reader of ``results/`` (collect, archive, show) works unchanged and reads through the
+# same verified :func:`read_stage`. Locks are ``flock`` locks: released by the kernel when the
+# holder dies, so a killed job never blocks the store.
+
+#: Pointer file in a study's results folder naming the store it uses.
+STORE_POINTER = "store.json"
+_STUDIES = "studies"
+_LOCKS = ".locks"
+_STORE_LOCK = ".store.lock"
+
+
+class StoreBusy(EigensweepError):
+    """The store is in use by a running sweep (prune needs it to itself)."""
+
+
+def store_root(path: str | Path) -> Path:
+    """The store folder as an absolute path, created if missing; one-line error otherwise."""
+    root = Path(path).expanduser().resolve()
+    try:
+        root.mkdir(parents=True, exist_ok=True)
+        (root / _LOCKS).mkdir(exist_ok=True)
+    except OSError as exc:
+        raise EigensweepError(
+            f"store {root}: cannot create it ({exc.strerror}); give --store a folder you can write to"
+        ) from None
+    if not os.access(root, os.W_OK):
+        raise EigensweepError(f"store {root}: not writable; give --store a folder you can write to")
+    return root
+
+
+@contextlib.contextmanager
+def _flock(path: Path, *, exclusive: bool, wait: bool = True) -> Iterator[None]:
+    import fcntl
+
+    fh = open(path, "a")  # noqa: SIM115 (held for the block)
+    try:
+        mode = fcntl.LOCK_EX if exclusive else fcntl.LOCK_SH
+        try:
+            fcntl.flock(fh, mode | (0 if wait else fcntl.LOCK_NB))
+        except BlockingIOError:
+            raise StoreBusy(str(path)) from None
+        yield
+    finally:
+        fh.close()
+
+
+def store_in_use(root: Path):
+    """Shared lock on the store for the lifetime of a sweep (prune waits for none of them:
+    it refuses while any is held)."""
+    import fcntl
+
+    fh = open(Path(root) / _STORE_LOCK, "a")  # noqa: SIM115 (held by the caller)
+    fcntl.flock(fh, fcntl.LOCK_SH)
+    return fh
+
+
+def key_lock(root: Path, stage: str, key: str):
+    """Exclusive lock of one key: a second writer of the same key waits, then finds it done."""
+    return _flock(Path(root) / _LOCKS / f"{stage}-{key}.lock", exclusive=True)
+
+
+def stored_valid(root: Path, stage: str, key: str) -> bool:
+    """True when the store holds a verified stage file of ``key`` (and, for export, its
+    device-job folder with its manifest)."""
+    from .stage_table import job_folder, spec, stage_path
+
+    path = stage_path(stage, key, root)
+    if not path.is_file():
+        return False
+    try:
+        read_stage(path, stage=stage, key=key)
+    except EigensweepError:
+        return False
+    return "jobs" not in spec(stage).outputs or (job_folder(key, root) / "manifest.json").is_file()
+
+
+def _symlink(target: Path, link: Path) -> None:
+    """Point ``link`` at ``target`` atomically (a new link renamed over the old path)."""
+    link.parent.mkdir(parents=True, exist_ok=True)
+    if link.is_dir() and not link.is_symlink():
+        import shutil
+
+        shutil.rmtree(link)  # a device-job folder of a run without the store
+    tmp = link.with_name(f".{link.name}.{os.getpid()}.link.tmp")
+    with contextlib.suppress(FileNotFoundError):
+        os.unlink(tmp)
+    os.symlink(target, tmp)
+    os.replace(tmp, link)
+
+
+def link_stored(root: Path, stage: str, key: str, results: str | Path = "results") -> None:
+    """Make the study's ``results/<stage>/<key>.h5`` (and device-job folder) refer to the store."""
+    from .stage_table import job_folder, spec, stage_path
+
+    root, results = Path(root), Path(results)
+    if "jobs" in spec(stage).outputs:
+        _symlink(job_folder(key, root), job_folder(key, results))
+    _symlink(stage_path(stage, key, root), stage_path(stage, key, results))
+
+
+def register_study(root: Path, results: str | Path = "results") -> None:
+    """Record that the study folder ``results`` uses the store (its links are the references
+    :func:`store_usage` counts) and write the study's pointer ``results/store.json``."""
+    results = Path(results).resolve()
+    entry = Path(root) / _STUDIES / f"{hashlib.sha256(str(results).encode()).hexdigest()[:16]}.json"
+    if not entry.is_file():
+        atomic_write_text(entry, json.dumps({"results": str(results)}) + "\n")
+    pointer = results / STORE_POINTER
+    text = json.dumps({"store": str(root)}) + "\n"
+    if not pointer.is_file() or pointer.read_text() != text:
+        atomic_write_text(pointer, text)
+
+
+def read_pointer(results: str | Path = "results") -> Path | None:
+    """The store named by a study's ``results/store.json``, or None."""
+    pointer = Path(results) / STORE_POINTER
+    if not pointer.is_file():
+        return None
+    try:
+        from .inputs import read_bounded
+
+        return Path(json.loads(read_bounded(pointer, 4096, "store pointer"))["store"])
+    except (ValueError, KeyError, TypeError):
+        raise EigensweepError(
+            f"{pointer}: not a store pointer ({{'store': DIR}}); delete it or rerun with --store DIR"
+        ) from None
+
+
+def produce_stage(
+    output: str | Path,
+    stage: str,
+    key: str,
+    store: str | Path | None,
+    compute,
+) -> bool:
+    """Write one stage job's output, through the store when there is one.
+
+    Without a store ``compute(output)`` writes ``output``. With one, under the key's lock:
+    if the store already holds a verified file of ``key`` nothing is computed, otherwise
+    ``compute(DIR/<stage>/<key>.h5)`` writes it there (atomically, as every stage write);
+    then ``output`` becomes a link to it. Two studies running the same key at the same time
+    therefore compute it once and both refer to the one file.
+
+    Returns:
+        True when ``compute`` ran.
+    """
+    from .stage_table import stage_path
+
+    if store is None:
+        compute(str(output))
+        return True
+    root = store_root(store)
+    results = Path(output).parent.parent
+    ran = False
+    with key_lock(root, stage, key):
+        if not stored_valid(root, stage, key):
+            compute(str(stage_path(stage, key, root)))
+            ran = True
+        link_stored(root, stage, key, results)
+    register_study(root, results)
+    return ran
+
+
+@dataclass
+class StoreEntry:
+    """One key held by a store: its stage file and (export) device-job folder."""
+
+    stage: str
+    key: str
+    paths: list[Path]
+    size: int
+    studies: int
+
+
+@dataclass
+class StoreUsage:
+    """What a store holds and which study folders refer to it."""
+
+    root: Path
+    entries: list[StoreEntry]
+    studies: list[Path]
+    gone: list[Path]  # registrations of study folders that no longer exist
+    litter: list[Path]  # temporary and lock files left by killed jobs
+
+    @property
+    def unreferenced(self) -> list[StoreEntry]:
+        return [e for e in self.entries if not e.studies]
+
+
+def _size(path: Path) -> int:
+    if path.is_dir() and not path.is_symlink():
+        return sum(p.stat().st_size for p in path.rglob("*") if p.is_file())
+    return path.stat().st_size
+
+
+def store_usage(root: str | Path) -> StoreUsage:
+    """Every key the store holds with the number of registered study folders linking to it."""
+    from .stage_table import STAGE_NAMES, job_folder
+
+    root = Path(root).resolve()
+    refs: dict[tuple[str, str], int] = {}
+    studies, gone = [], []
+    for entry in sorted((root / _STUDIES).glob("*.json")):
+        try:
+            results = Path(json.loads(entry.read_text())["results"])
+        except (OSError, ValueError, KeyError, TypeError):
+            gone.append(entry)
+            continue
+        if not results.is_dir():
+            gone.append(entry)
+            continue
+        studies.append(results)
+        seen: set[tuple[str, str]] = set()
+        for stage in STAGE_NAMES:
+            folder = results / stage
+            if not folder.is_dir():
+                continue
+            for link in folder.iterdir():
+                if not link.is_symlink():
+                    continue
+                target = Path(os.path.realpath(link))
+                if target.parent == root / stage:
+                    seen.add((stage, target.name.removesuffix(".h5")))
+        for ref in seen:
+            refs[ref] = refs.get(ref, 0) + 1
+    entries, litter = [], sorted((root / _LOCKS).glob("*.lock"))
+    for stage in STAGE_NAMES:
+        folder = root / stage
+        if not folder.is_dir():
+            continue
+        keys: dict[str, list[Path]] = {}
+        for p in sorted(folder.iterdir()):
+            if p.name.endswith(".tmp"):
+                litter.append(p)
+            elif p.suffix == ".h5" or (p.is_dir() and "jobs" in _outputs(stage)):
+                keys.setdefault(p.name.removesuffix(".h5"), []).append(p)
+        for key, paths in keys.items():
+            if "jobs" in _outputs(stage):
+                folder_k = job_folder(key, root)
+                litter += [q for q in folder_k.glob(".*.tmp")] if folder_k.is_dir() else []
+            entries.append(
+                StoreEntry(
+                    stage, key, paths, sum(_size(p) for p in paths), refs.get((stage, key), 0)
+                )
+            )
+    return StoreUsage(root, entries, studies, gone, litter)
+
+
+def _outputs(stage: str) -> tuple[str, ...]:
+    from .stage_table import spec
+
+    return spec(stage).outputs
+
+
+def prune_store(root: str | Path, *, delete: bool) -> StoreUsage:
+    """Files of ``root`` that no registered study folder refers to (and litter of killed
+    jobs, registrations of removed study folders); removed when ``delete``.
+
+    Holds the store's lock exclusively, so no sweep writes or links while it looks.
+
+    Raises:
+        EigensweepError: a sweep using the store is running.
+    """
+    import shutil
+
+    root = Path(root).resolve()
+    if not root.is_dir():
+        raise EigensweepError(f"store {root}: no such folder; check --store")
+    try:
+        with _flock(root / _STORE_LOCK, exclusive=True, wait=False):
+            usage = store_usage(root)
+            if delete:
+                for e in usage.unreferenced:
+                    for p in e.paths:
+                        if p.is_dir() and not p.is_symlink():
+                            shutil.rmtree(p)
+                        else:
+                            p.unlink(missing_ok=True)
+                for p in [*usage.litter, *usage.gone]:
+                    p.unlink(missing_ok=True)
+    except StoreBusy:
+        raise EigensweepError(
+            f"store {root}: a sweep using it is running; prune when it has finished"
+        ) from None
+    return usage

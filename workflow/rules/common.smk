@@ -5,9 +5,11 @@ from pathlib import Path
 
 from eigensweep.config import DEFAULT_CONFIG, SWEEP_KEY, workflow_config
 from eigensweep.errors import EigensweepError
+from eigensweep.paths import STORE_KEY, sweep_store
 from eigensweep.plan import build_plan, parent_files
 from eigensweep.preflight import check_plan_chemistry
 from eigensweep.resources import stage_resources
+from eigensweep.store import store_in_use, store_root
 from eigensweep.study import figure_stems
 
 # Stage jobs request one thread each; keep BLAS/OpenMP pools to that so parallel jobs do not
@@ -25,6 +27,12 @@ try:
     CFG = workflow_config(config, workflow.overwrite_configfiles)
     PLAN = build_plan(CFG, base_dir=Path.cwd(), config_path=CONFIG_PATH)
     check_plan_chemistry(PLAN)
+    # the shared stage store (--config store=DIR or the sweep's `store:`), held shared while
+    # this Snakemake runs (prune refuses meanwhile); jobs read it from config[STORE_KEY]
+    STORE = sweep_store(config.get(STORE_KEY), CFG)
+    if STORE is not None:
+        config[STORE_KEY] = str(store_root(STORE))
+        STORE_IN_USE = store_in_use(STORE)
 except EigensweepError as exc:
     sys.stderr.write(f"eigensweep: {exc}\n")
     sys.exit(1)
