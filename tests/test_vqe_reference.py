@@ -7,13 +7,16 @@ diagonalisation of the tapered Hamiltonian; OpenFermion's ``s_squared_operator``
 
 from __future__ import annotations
 
+import csv
 from functools import cache
 
 import numpy as np
 import pytest
-from pyscf import fci
+from pyscf import fci, gto, mcscf, scf
+from study_helpers import run_plan
 
 from eigensweep.chem import compute_integrals
+from eigensweep.collect import collect
 from eigensweep.errors import StageFileError
 from eigensweep.qubit import map_hamiltonian, reference_bits, taper
 from eigensweep.vqe import run_optimize
@@ -130,6 +133,24 @@ def test_o2_singlet_reference_is_the_singlet_space():
     assert res.overlap_exact > 0.5  # the singlet, not the triplet (8e-13 before)
 
 
+def test_o2_singlet_sector_vectors_span_the_tapered_ground_space():
+    ints = integrals(O2, 1, (8, 6))
+    _, tap = tapering(O2, "jordan_wigner", 1, (8, 6))
+    ref = ExactReference.from_integrals(ints)
+    frame = ref.sector_vectors("jordan_wigner", tap)
+    # reference: NumPy dense diagonalisation of the tapered Hamiltonian; its lowest level is
+    # PySCF's singlet CASCI energy and its eigenspace is what the sector holds of the pair
+    vals, vecs = np.linalg.eigh(tap.hamiltonian.to_sparse().toarray())
+    ground = vecs[:, np.abs(vals - vals[0]) < 1e-8]
+    assert vals[0] == pytest.approx(ints.references["casci"], abs=1e-9)
+    assert frame.shape[0] == ground.shape[1]
+    assert np.allclose(frame.conj() @ frame.T, np.eye(frame.shape[0]), atol=1e-10)
+    # same subspace: the projectors agree (closed form: P = sum |v><v| for an orthonormal basis)
+    assert np.allclose(frame.T @ frame.conj(), ground @ ground.conj().T, atol=1e-8)
+    out = check_qubit_problem(tap.hamiltonian, ref, "jordan_wigner", "k", tap)
+    assert out["energy_sector_qubit"] == pytest.approx(vals[0], abs=1e-9)
+
+
 def openfermion_moments(psi: np.ndarray, norb: int, mapping: str, tap=None):
     import openfermion as of
 
@@ -194,3 +215,38 @@ def test_restarted_uccsd_below_the_singlet_is_flagged_as_another_spin():
     assert res.spin_mismatch and res.spin_square > 0.5
     cause = _below_exact_cause((res.energy - res.energy_exact) * 1000, res.to_store()[1])
     assert cause.startswith("another spin")
+
+
+def test_o2_singlet_tapered_sweep_writes_its_summary(tmp_path):
+    # issue 20: this sweep once lost its summary (nan overlap), then stopped in the sector check
+    # because the first stored 1Delta_g vector is a mixture of two D2h sectors; only the part in
+    # the reference's sector is a state of the tapered problem.
+    raw = {
+        "molecules": [
+            {
+                "name": "o2",
+                "atoms": O2,
+                "multiplicity": 1,
+                "active": {"electrons": 8, "orbitals": 6},
+            }
+        ],
+        "methods": {"taper": [True], "optimizer": [{"name": "lbfgs", "maxiter": 30}]},
+    }
+    results = tmp_path / "results"
+    cfg, plan = run_plan(raw, results)
+    collect(plan.rows, results, cfg["collect"]["accuracy_mha"], plan.exports, study="o2")
+    with open(results / "o2" / "summary.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == 1 and rows[0]["tapered"] == "True"
+    # reference: PySCF RHF + CASCI(6 orbitals, 8 electrons) with the spin fixed to a singlet
+    # (fix_spin_, ss = 0), computed here from the molecule alone
+    mol = gto.M(atom=O2, basis="sto-3g", spin=0, symmetry=True, verbose=0)
+    mf = scf.RHF(mol).run()
+    cas = mcscf.CASCI(mf, 6, 8)
+    cas.fcisolver = fci.addons.fix_spin_(cas.fcisolver, shift=0.5, ss=0.0)
+    cas.fcisolver.conv_tol = 1e-12
+    e_singlet = cas.kernel()[0]
+    assert float(rows[0]["energy_exact_eh"]) == pytest.approx(e_singlet, abs=1e-7)
+    # the tapered sector holds one component of the pair; the optimized state's weight in it
+    overlap = float(rows[0]["overlap_exact"])
+    assert 0.5 < overlap <= 1.0 + 1e-9

@@ -600,7 +600,7 @@ def _state_report(
             frame_taper = tapering
         else:  # a user-given operator: no known frame, so no <N>, <S^2>
             return {**out, "overlap_exact": exact.operator_overlap(psi, ans.hamiltonian)}
-        frame = exact.qubit_vectors(enc, frame_taper) if exact.known else None
+        frame = exact.sector_vectors(enc, frame_taper) if exact.known else None
         out["overlap_exact"] = exact.overlap(psi, frame) if exact.known else math.nan
         n_mean, s2 = state_moments(psi, norb, nelec, mapping=enc, tapering=frame_taper)
     out["n_electrons"], out["spin_square"] = n_mean, s2

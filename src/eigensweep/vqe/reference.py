@@ -8,7 +8,9 @@ the ansatz lives in, never recomputed:
 * determinant space: the CI vectors themselves;
 * the qubit encoding of ``mapping``: :func:`~eigensweep.qubit.mapping.encode_state`;
 * a tapered problem: the encoded vectors tapered with the taper stage's own Clifford and sector
-  (:meth:`~eigensweep.qubit.TaperResult.taper_state`, Bravyi et al. 2017, arXiv:1701.08213).
+  (:meth:`~eigensweep.qubit.TaperResult.taper_state`, Bravyi et al. 2017, arXiv:1701.08213),
+  then an orthonormal basis of their span (:meth:`ExactReference.sector_vectors`): a
+  degenerate ground space may lie partly in other Z2 sectors (O2 1Delta_g).
 
 The overlap of a state with the reference is its weight in the ground space,
 ``sum_i |<v_i|psi>|^2`` over the orthonormal ground-space vectors: deterministic, independent
@@ -102,12 +104,34 @@ class ExactReference:
             out.append(psi)
         return np.array(out)
 
+    def sector_vectors(self, mapping: str, tapering: TaperResult | None = None) -> np.ndarray:
+        """Orthonormal basis of the ground space's part in the problem's symmetry sector.
+
+        Untapered, these are :meth:`qubit_vectors`. Tapering keeps one Z2 sector (chosen from
+        the reference determinant), and a degenerate ground space may span several sectors:
+        the O2 1Delta_g pair has one component of each of two D2h symmetries, and a vector of
+        the stored basis is in general a combination of both. ``H`` commutes with the
+        symmetries, so the ground space is invariant under the sector projector ``P`` and
+        ``P G`` is the projector onto the ground states inside the sector; its range is
+        spanned by the tapered vectors, whose Gram matrix has eigenvalues 0 or 1 only. The
+        basis returned is the singular vectors of weight above one half (deterministic SVD).
+
+        Returns:
+            ``(k', 2**n_qubits)``; ``k' = 0`` when the sector holds no exact ground state.
+        """
+        frame = self.qubit_vectors(mapping, tapering)
+        if tapering is None or tapering.generators.n_terms == 0 or frame.shape[0] == 0:
+            return frame
+        _, s, vh = np.linalg.svd(frame, full_matrices=False)
+        return vh[s**2 > 0.5]
+
     def overlap(self, state: np.ndarray, frame: np.ndarray | None = None) -> float:
         """Weight of ``state`` in the ground space: ``sum_i |<v_i|state>|^2``.
 
         Args:
             state: a flat CI vector (``frame`` None) or a statevector.
-            frame: ground-space vectors in the state's frame (:meth:`qubit_vectors`).
+            frame: orthonormal ground-space vectors in the state's frame
+                (:meth:`sector_vectors`).
         """
         if not self.known:
             return math.nan
@@ -207,17 +231,19 @@ def check_qubit_problem(
 ) -> dict:
     """Check that the exact state, carried into the qubit problem, is an eigenstate there.
 
-    The exact ground state (stored by the integrals stage) is written in ``mapping``'s
-    encoding and tapered with ``tapering``; it must satisfy ``H psi = E_exact psi`` with the
-    qubit Hamiltonian ``ham``. A residual above :data:`SECTOR_CHECK_TOL` means the mapping or
-    the tapering lost the state (wrong sector, wrong encoding): that is an error.
+    The exact ground space (stored by the integrals stage) is written in ``mapping``'s
+    encoding and tapered with ``tapering``; every ground state inside the tapered sector
+    (:meth:`ExactReference.sector_vectors`, normalised) must satisfy ``H psi = E_exact psi``
+    with the qubit Hamiltonian ``ham``. A residual above :data:`SECTOR_CHECK_TOL` means the
+    mapping or the tapering lost the state (wrong sector, wrong encoding): that is an error,
+    and so is a sector that holds none of the ground states.
 
     Returns:
         ``{"energy_sector_qubit": <psi|H|psi>, "sector_check": note}``; skipped (None and a
         reason) above :data:`SECTOR_CHECK_MAX_QUBITS` qubits or without a stored exact state.
 
     Raises:
-        StageFileError: the residual is too large.
+        StageFileError: the residual is too large, or the sector holds no ground state.
     """
     from ..errors import StageFileError
     from ..qubit.statevector import apply_pauli_sum
@@ -227,22 +253,36 @@ def check_qubit_problem(
             "energy_sector_qubit": None,
             "sector_check": "skipped (too large or no exact reference)",
         }
-    psi = exact.qubit_vectors(mapping, tapering)[0]
-    if psi.size != 1 << ham.n_qubits:
+    frame = exact.sector_vectors(mapping, tapering)
+    size = exact.qubit_vectors(mapping, tapering).shape[1]
+    if size != 1 << ham.n_qubits:
         raise StageFileError(
-            f"{key}: the exact state has {psi.size} amplitudes but the {mapping} qubit problem "
+            f"{key}: the exact state has {size} amplitudes but the {mapping} qubit problem "
             f"{ham.n_qubits} qubits; the tapering does not belong to this Hamiltonian"
         )
-    h_psi = apply_pauli_sum(psi, ham)
-    energy = float(np.vdot(psi, h_psi).real)
-    residual = float(np.linalg.norm(h_psi - exact.energy * psi))
-    if residual > SECTOR_CHECK_TOL or abs(energy - exact.energy) > SECTOR_CHECK_TOL:
+    if frame.shape[0] == 0:
         raise StageFileError(
-            f"{key}: the exact state is not an eigenstate of the {mapping} qubit Hamiltonian "
-            f"(energy {energy:.10f} Eh vs exact {exact.energy:.10f} Eh, residual "
-            f"{residual:.2e}); the mapping or tapering lost the state, please report this"
+            f"{key}: the symmetry sector chosen from the reference determinant holds no exact "
+            f"ground state (the ground state has another point-group or spin-parity symmetry); "
+            f"set taper: [false] for this molecule"
         )
+    energy, residual = math.nan, 0.0
+    for psi in frame:  # every ground state in the sector: H psi = E psi
+        h_psi = apply_pauli_sum(psi, ham)
+        e = float(np.vdot(psi, h_psi).real)
+        energy = e if not math.isfinite(energy) else min(energy, e)
+        residual = max(residual, float(np.linalg.norm(h_psi - exact.energy * psi)))
+        if residual > SECTOR_CHECK_TOL or abs(e - exact.energy) > SECTOR_CHECK_TOL:
+            raise StageFileError(
+                f"{key}: the exact state is not an eigenstate of the {mapping} qubit "
+                f"Hamiltonian (energy {e:.10f} Eh vs exact {exact.energy:.10f} Eh, residual "
+                f"{residual:.2e}); the mapping or tapering lost the state, please report this"
+            )
+    n_in = frame.shape[0]
     return {
         "energy_sector_qubit": energy,
-        "sector_check": f"the exact state is an eigenstate here (residual {residual:.1e} Eh)",
+        "sector_check": (
+            f"the exact state is an eigenstate here (residual {residual:.1e} Eh; "
+            f"{n_in} of {exact.vectors.shape[0]} ground states in this sector)"
+        ),
     }
