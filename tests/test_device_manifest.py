@@ -140,6 +140,46 @@ def test_write_job_files_and_reload(h2_job, tmp_path):
     assert [c.gates for _, c in items] == [job.circuits[r.circuit_id].gates for r in job.records]
 
 
+def test_every_exported_file_is_hashed_in_the_manifest(h2_job, tmp_path):
+    # issue 20: only the OpenQASM 3 files were hashed, though the README says every file is
+    import hashlib
+
+    job, _, _ = h2_job
+    folder = write_job(job, tmp_path / "job").parent
+    m = load_manifest(folder)
+    on_disk = {p.name for p in folder.iterdir()} - {"manifest.json"}
+    assert set(m["files"]) == on_disk  # the manifest cannot hash itself
+    for name, digest in m["files"].items():
+        # reference: hashlib over the bytes on disk (common practice: sha256sum)
+        assert hashlib.sha256((folder / name).read_bytes()).hexdigest() == digest
+    for rec in m["circuits"]:
+        assert rec["qasm2_sha256"] == m["files"][rec["qasm2_file"]]
+        assert rec["sha256"] == m["files"][rec["qasm3_file"]]
+
+
+@pytest.mark.parametrize("which", ["qasm2", "summary"])
+def test_load_job_circuits_detects_an_edited_qasm2_or_summary(h2_job, tmp_path, which):
+    job, _, _ = h2_job
+    write_job(job, tmp_path)
+    f = tmp_path / (job.records[0].qasm2_file if which == "qasm2" else "job-summary.md")
+    f.write_text(f.read_text() + "// edited\n")
+    with pytest.raises(StageFileError, match="SHA-256"):
+        load_job_circuits(tmp_path)
+    f.unlink()
+    with pytest.raises(StageFileError, match="missing"):
+        load_job_circuits(tmp_path)
+
+
+def test_two_scale_factors_have_one_extrapolation_label(h2_job):
+    _, ham, circ = h2_job
+    job = build_job(circ, ham, shots_total=5000, job_name="x", scale_factors=(1, 3))
+    assert set(job.shots_needed) == {"scale_1_only", "zne_linear"}
+    # closed form: through l = 1, 3 the extrapolation weights are 3/2 and -1/2, so the
+    # variance factor with shots split equally is 2 * (9/4 + 1/4) = 5
+    assert job.shots_needed["zne_linear"] == math.ceil(job.shots_needed["scale_1_only"] * 5.0)
+    assert "Richardson x" not in job.summary and "straight line" in job.summary
+
+
 def test_load_job_circuits_detects_edited_file(h2_job, tmp_path):
     job, _, _ = h2_job
     write_job(job, tmp_path)

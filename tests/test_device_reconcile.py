@@ -108,6 +108,23 @@ def test_zero_noise_extrapolation_reduces_bias(h2, depolarized):
     assert r.zne_richardson.stderr > r.zne_linear.stderr > r.raw.stderr * 0.9
 
 
+def test_two_scale_factors_give_one_extrapolated_estimate(h2):
+    # issue 20: with two noise-scale factors "linear" and "Richardson" were one number under
+    # two labels
+    _, _, ham, e_sim, e_fci, n_el = h2
+    _, _, circ, _, _ = h2_ansatz()
+    job = build_job(circ, ham, shots_total=30000, job_name="two", meta={}, scale_factors=(1, 3))
+    res = run_synthetic_device(job, seed=5, depolarizing_2q=0.02)
+    counts = {cid: r["counts"] for cid, r in res["results"].items()}
+    r = reconcile(job.to_manifest(), counts, ham, n_electrons=n_el, bootstrap=50, seed=5)
+    assert r.zne_richardson is None and "zne_richardson" not in r.estimates()
+    assert any("reported once as zne_linear" in n for n in r.notes)
+    # closed form: the line through (1, E1) and (3, E3) meets l = 0 at (3 E1 - E3) / 2
+    e1, e3 = (s.value for s in r.scale_energies)
+    assert r.zne_linear.value == pytest.approx((3 * e1 - e3) / 2, abs=1e-12)
+    assert "zne richardson" not in r.comparison_table()
+
+
 def test_symmetry_verification_improves_and_reports_kept_fraction(h2, noisy):
     # Bonet-Monroig et al. 2018 / McArdle et al. 2019: post-select on the parity sector
     e_sim = h2[3]

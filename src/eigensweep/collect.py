@@ -333,7 +333,12 @@ DEVICE_COLUMNS: list[Column] = [
     _c("shots", "", "shots over all circuits of the job"),
     _c("energy_simulated_eh", "Eh", "noise-free expectation of the exported circuit"),
     _c("energy_exact_eh", "Eh", "exact energy of the active space"),
-    _c("estimate", "", "raw, readout_mitigated, symmetry_verified, zne_linear, zne_richardson"),
+    _c(
+        "estimate",
+        "",
+        "raw, readout_mitigated, symmetry_verified, zne_linear, zne_richardson (not with two "
+        "noise-scale factors, where it is the linear fit)",
+    ),
     _c("energy_eh", "Eh", "the estimate's energy"),
     _c("ci_low_eh", "Eh", "lower end of the bootstrap 95 % interval"),
     _c("ci_high_eh", "Eh", "upper end of the bootstrap 95 % interval"),

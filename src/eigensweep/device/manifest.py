@@ -45,6 +45,7 @@ __all__ = [
     "write_job",
     "load_manifest",
     "load_job_circuits",
+    "check_job_files",
     "pauli_labels",
     "default_groups",
     "allocate_shots",
@@ -54,6 +55,8 @@ __all__ = [
 
 JOB_FORMAT = "eigensweep-device-job"
 JOB_FORMAT_VERSION = 1
+#: The job's human-readable summary, beside the circuits in the job folder.
+SUMMARY_FILE = "job-summary.md"
 BIT_ORDER = "qubit k = character k of the bitstring"
 DEFAULT_TARGET_SE = 1.6e-3  # hartree ("chemical accuracy")
 IDEAL_CUTOFF = 1e-12
@@ -198,6 +201,7 @@ class CircuitRecord:
     n_gates: int
     prepared: str | None = None
     bit_order: str = BIT_ORDER
+    qasm2_sha256: str = ""
 
     def to_dict(self) -> dict:
         return {
@@ -214,6 +218,7 @@ class CircuitRecord:
             "sha256": self.sha256,
             "qasm3_file": self.qasm3_file,
             "qasm2_file": self.qasm2_file,
+            "qasm2_sha256": self.qasm2_sha256,
             "cnot_count": self.cnot_count,
             "depth": self.depth,
             "n_gates": self.n_gates,
@@ -272,7 +277,21 @@ class DeviceJob:
             "meta": self.meta,
             "state_preparation": dict(self.state_preparation),
             "circuits": [r.to_dict() for r in self.records],
+            "files": self.file_hashes(),
         }
+
+    def file_texts(self) -> dict[str, str]:
+        """Every file of the job folder except ``manifest.json``: name -> text."""
+        out = {}
+        for r in self.records:
+            out[r.qasm3_file] = self.qasm3[r.circuit_id]
+            out[r.qasm2_file] = self.qasm2[r.circuit_id]
+        out[SUMMARY_FILE] = self.summary
+        return out
+
+    def file_hashes(self) -> dict[str, str]:
+        """SHA-256 of every file :func:`write_job` writes besides the manifest itself."""
+        return {name: sha256_text(text) for name, text in sorted(self.file_texts().items())}
 
 
 def _id_width(n: int) -> int:
@@ -373,6 +392,7 @@ def build_job(
                 sha256=sha256_text(text3),
                 qasm3_file=f"{cid}.qasm",
                 qasm2_file=f"{cid}.qasm2",
+                qasm2_sha256=sha256_text(text2),
                 ideal_distribution=ideal,
                 cnot_count=circ.cnot_count,
                 depth=circ.depth,
@@ -423,8 +443,9 @@ def build_job(
     shots_needed = {
         "scale_1_only": int(base_needed),
         "zne_linear": int(math.ceil(base_needed * f_lin)),
-        "zne_richardson": int(math.ceil(base_needed * f_rich)),
     }
+    if len(scales) > 2:  # through two points Richardson is the straight line: one label
+        shots_needed["zne_richardson"] = int(math.ceil(base_needed * f_rich))
     job = DeviceJob(
         job_name=str(job_name),
         job_id=job_id,
@@ -513,9 +534,7 @@ def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> st
         f"- standard-error bound of the scale-1 energy with these shots: {se_bound * 1e3:.3g} mHa",
         f"- shots needed for a standard error of {eps * 1e3:.3g} mHa from the bound "
         f"N = (||c||_1 / eps)^2: {job.shots_needed['scale_1_only']} at scale 1 only",
-        f"- with zero-noise extrapolation over {len(job.scale_factors)} scales (shots split "
-        f"equally): linear fit x{f_lin:.3g} -> {job.shots_needed['zne_linear']}, "
-        f"Richardson x{f_rich:.3g} -> {job.shots_needed['zne_richardson']}",
+        _zne_shots_line(job, f_lin, f_rich),
         "",
         COST_WARNING,
         "",
@@ -523,18 +542,33 @@ def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> st
     return "\n".join(lines)
 
 
+def _zne_shots_line(job: DeviceJob, f_lin: float, f_rich: float) -> str:
+    m = len(job.scale_factors)
+    head = f"- with zero-noise extrapolation over {m} scales (shots split equally): "
+    if m < 2:
+        return head + "not possible (one scale factor)"
+    if "zne_richardson" not in job.shots_needed:
+        return head + (
+            f"linear fit x{f_lin:.3g} -> {job.shots_needed['zne_linear']} (with two scales "
+            "the Richardson polynomial is this straight line)"
+        )
+    return head + (
+        f"linear fit x{f_lin:.3g} -> {job.shots_needed['zne_linear']}, "
+        f"Richardson x{f_rich:.3g} -> {job.shots_needed['zne_richardson']}"
+    )
+
+
 def write_job(job: DeviceJob, folder: str | Path) -> Path:
     """Write ``<id>.qasm``, ``<id>.qasm2``, ``job-summary.md`` and ``manifest.json`` atomically.
 
-    The manifest is written last, so a folder with a manifest always has all its circuits.
+    The manifest is written last, so a folder with a manifest always has all its circuits;
+    its ``files`` entry holds the SHA-256 of every other file (:meth:`DeviceJob.file_hashes`).
     Returns the manifest path.
     """
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    for r in job.records:
-        atomic_write_text(folder / r.qasm3_file, job.qasm3[r.circuit_id])
-        atomic_write_text(folder / r.qasm2_file, job.qasm2[r.circuit_id])
-    atomic_write_text(folder / "job-summary.md", job.summary)
+    for name, text in job.file_texts().items():
+        atomic_write_text(folder / name, text)
     text = json.dumps(job.to_manifest(), indent=1, allow_nan=False) + "\n"
     return atomic_write_text(folder / "manifest.json", text)
 
@@ -581,13 +615,38 @@ def load_manifest(path: str | Path) -> dict:
     return data
 
 
+def check_job_files(folder: str | Path, manifest: Mapping | None = None) -> list[str]:
+    """Check every file the manifest's ``files`` entry lists against its SHA-256.
+
+    Returns:
+        The checked file names (none for a manifest written before ``files`` existed).
+
+    Raises:
+        StageFileError: a listed file is missing, is not a regular file, or was changed.
+    """
+    folder = Path(folder)
+    folder = folder if folder.is_dir() else folder.parent
+    manifest = load_manifest(folder) if manifest is None else manifest
+    files = manifest.get("files") or {}
+    for name, digest in files.items():
+        f = folder / name
+        if Path(name).name != name or not f.is_file() or f.is_symlink():
+            raise StageFileError(f"{f}: job file missing; re-export the device job")
+        if hashlib.sha256(f.read_bytes()).hexdigest() != digest:
+            raise StageFileError(
+                f"{f}: SHA-256 differs from manifest.json (file edited?); re-export the job"
+            )
+    return sorted(files)
+
+
 def load_job_circuits(folder: str | Path) -> tuple[dict, list[tuple[dict, Circuit]]]:
-    """Manifest and parsed OpenQASM 3 circuits of a job folder, checking each SHA-256."""
+    """Manifest and parsed OpenQASM 3 circuits of a job folder, checking every file's SHA-256."""
     from eigensweep.device.qasm import QasmReadError, from_qasm3
 
     folder = Path(folder)
     manifest = load_manifest(folder)
     folder = folder if folder.is_dir() else folder.parent
+    check_job_files(folder, manifest)
     items = []
     for rec in manifest["circuits"]:
         f = folder / rec.get("qasm3_file", f"{rec['circuit_id']}.qasm")

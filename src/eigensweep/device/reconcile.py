@@ -13,6 +13,7 @@ Estimates (all in hartree, each with a bootstrap 95% confidence interval):
   folding scale factors (Temme, Bravyi, Gambetta, PRL 119, 180509 (2017); Giurgica-Tiron et
   al., IEEE QCE 2020, arXiv:2005.10921), applied to readout-mitigated energies when calibration
   circuits are present (readout error is not amplified by folding, so it is removed first).
+  With two scale factors the two are the same straight line: only ``zne_linear`` is reported.
 
 Confidence intervals use the percentile bootstrap (Efron, Ann. Statist. 7, 1 (1979)): every
 circuit's counts, calibration circuits included, are resampled multinomially with the observed
@@ -403,7 +404,13 @@ def reconcile(
     if len(scales) >= 2:
         stack = np.stack([per_scale[s] for s in scales], axis=1)
         samples["zne_linear"] = mit.extrapolate_linear(scales, stack)
-        samples["zne_richardson"] = mit.extrapolate_richardson(scales, stack)
+        if len(scales) > 2:
+            samples["zne_richardson"] = mit.extrapolate_richardson(scales, stack)
+        else:  # the polynomial of degree 1 through two points is the straight line
+            notes.append(
+                "two noise-scale factors: Richardson extrapolation is the linear one, "
+                "reported once as zne_linear"
+            )
     else:
         notes.append("one noise-scale factor only: no zero-noise extrapolation")
     for s in scales:
