@@ -32,9 +32,12 @@ alpha and 36 beta maps), so gate memory grows with the number of strings, not wi
 determinants x excitations (the previous engine stored every ``(src, dst, sign)`` pair:
 128 million pairs, 3.3 GB at (12e,12o)). :class:`GateSequence` packs the maps once into flat
 arrays and the compiled kernels of :mod:`eigensweep.vqe.detkernels` apply a whole sequence
-(forward) or the fused gradient-and-un-apply backward sweep in one call, with threads over
-rows (``OMP_NUM_THREADS``, one thread below ``SINGLE_THREAD_DIM`` determinants). Memory per
-problem: :mod:`eigensweep.vqe.detsize` (size gate and cluster requests).
+(forward) or the fused gradient-and-un-apply backward sweep in one call, in blocks of
+consecutive gates that share their rows (alpha-beta doubles with the same alpha part,
+alpha-only or beta-only runs) so that each part of the CI matrix is loaded into cache once per
+block rather than once per gate, with threads over rows (``OMP_NUM_THREADS``, one thread
+below ``SINGLE_THREAD_DIM`` determinants; gradients do not depend on the thread count).
+Memory per problem: :mod:`eigensweep.vqe.detsize` (size gate and cluster requests).
 
 Sign conventions
 ----------------
@@ -404,15 +407,20 @@ class GateSequence:
         self._g_sign = np.array([g.sign for g in self.gates], dtype=np.float64)
         sizes = [m[0].size for m in maps]
         self._m_off = np.concatenate([[0], np.cumsum(sizes, dtype=np.int64)]).astype(np.int64)
+        # 32-bit string addresses and 8-bit signs: the maps of a block stay in cache
         if maps:
-            self._m_src = np.concatenate([m[0] for m in maps]).astype(np.int64)
-            self._m_dst = np.concatenate([m[1] for m in maps]).astype(np.int64)
-            self._m_sign = np.concatenate([m[2] for m in maps]).astype(np.float64)
+            self._m_src = np.concatenate([m[0] for m in maps]).astype(np.int32)
+            self._m_dst = np.concatenate([m[1] for m in maps]).astype(np.int32)
+            self._m_sign = np.concatenate([m[2] for m in maps]).astype(np.int8)
         else:
-            self._m_src, self._m_dst, self._m_sign = _EMPTY_MAP
+            self._m_src = np.zeros(0, dtype=np.int32)
+            self._m_dst = np.zeros(0, dtype=np.int32)
+            self._m_sign = np.zeros(0, dtype=np.int8)
+        kinds = np.array([3 if g.n_pairs == 0 else g.kind for g in self.gates], dtype=np.int64)
+        self._blocks = detkernels.sequence_blocks(kinds, self._g_a)
 
     def _packed(self) -> tuple[np.ndarray, ...]:
-        return (self._g_a, self._g_b, self._g_sign)
+        return (self._blocks, self._g_a, self._g_b, self._g_sign)
 
     def _maps(self) -> tuple[np.ndarray, ...]:
         return (self._m_off, self._m_src, self._m_dst, self._m_sign)
