@@ -16,7 +16,9 @@ parameters. The baseline is skipped (with the reason) when its pair arrays alone
 
 ``--optimize CASE`` runs UCCSD + L-BFGS (the workflow defaults) from Hartree-Fock to
 convergence in a subprocess and reports evaluations, wall time, peak memory and, with
-``--fci``, the error against PySCF FCI of the same active space.
+``--fci``, the error against PySCF FCI of the same active space. ``--checkpoint FILE`` saves
+the best parameters, evaluation count and wall time every ``--checkpoint-every`` evaluations
+and resumes from them when rerun (for runs longer than one sitting or a cluster time limit).
 
 Cases: LiH (1.595 Angstrom) and H2O (equilibrium geometry) in STO-3G with all orbitals,
 hydrogen chains (STO-3G, 1.0 Angstrom spacing, all orbitals) and N2/6-31G at 1.098 Angstrom
@@ -25,7 +27,7 @@ with (ne, no) active spaces from PySCF CASCI (lowest orbitals frozen).
 Usage::
 
     python benchmarks/bench_engine.py [--cases lih,h2o,h8,h10,n2_10,n2_12,n2_14] [--threads 1]
-        [--baseline-src /tmp/es-old] [--optimize n2_14 --fci] [--json out.json]
+        [--baseline-src /tmp/es-old] [--optimize n2_14 --fci [--checkpoint ck.json]] [--json out.json]
 """
 
 from __future__ import annotations
@@ -143,8 +145,15 @@ def worker(case: str, repeat: int, out: str) -> dict:
     }
 
 
-def optimize_worker(case: str, fci: bool) -> dict:
-    """UCCSD + L-BFGS (workflow defaults) from HF to convergence; optional PySCF FCI check."""
+def optimize_worker(case: str, fci: bool, checkpoint: str | None = None, every: int = 5) -> dict:
+    """UCCSD + L-BFGS (workflow defaults) from HF to convergence; optional PySCF FCI check.
+
+    With ``checkpoint`` the lowest-energy parameters met so far, the evaluation count and the
+    elapsed wall time are written there atomically every ``every`` evaluations, and a rerun
+    with the same file starts from them (a warm restart: L-BFGS's curvature memory is not
+    kept, so the evaluation count of a resumed run is not that of an uninterrupted one).
+    """
+    from eigensweep.store import atomic_write_text
     from eigensweep.vqe import UCCSD, DetSpace, minimize
     from eigensweep.vqe.methods import OPTIMIZER_DEFAULTS
 
@@ -157,13 +166,32 @@ def optimize_worker(case: str, fci: bool) -> dict:
         for k, v in OPTIMIZER_DEFAULTS["lbfgs"].items()
         if k not in ("restarts", "restart_scale")
     }
-    res = minimize(
-        ansatz.energy_and_gradient,
-        ansatz.initial_params(),
-        method="lbfgs",
-        options=options,
-        grad=True,
-    )
+    x0 = ansatz.initial_params()
+    state = {"case": case, "evaluations": 0, "wall_s": 0.0, "energy": None, "theta": None}
+    if checkpoint and Path(checkpoint).is_file():
+        saved = json.loads(Path(checkpoint).read_text())
+        if saved.get("case") != case or len(saved.get("theta") or []) != x0.size:
+            sys.exit(
+                f"--checkpoint {checkpoint}: written for another case; remove it or pass another"
+            )
+        state.update(saved)
+        x0 = np.asarray(saved["theta"], dtype=float)
+    resumed_from = int(state["evaluations"])
+    wall_before = float(state["wall_s"])
+
+    def fun(x: np.ndarray) -> tuple[float, np.ndarray]:
+        e, g = ansatz.energy_and_gradient(x)
+        state["evaluations"] += 1
+        state["wall_s"] = wall_before + time.perf_counter() - t0
+        if state["energy"] is None or e < state["energy"]:
+            state["energy"], state["theta"] = float(e), [float(v) for v in x]
+        if checkpoint and state["evaluations"] % every == 0:
+            atomic_write_text(checkpoint, json.dumps(state))
+        return e, g
+
+    res = minimize(fun, x0, method="lbfgs", options=options, grad=True)
+    if checkpoint:
+        atomic_write_text(checkpoint, json.dumps(state))
     wall = time.perf_counter() - t0
     out = {
         "case": case,
@@ -172,10 +200,11 @@ def optimize_worker(case: str, fci: bool) -> dict:
         "n_params": int(ansatz.n_params),
         "energy": float(res.fun),
         "energy_hf": m["e_hf"],
-        "evaluations": int(res.n_evaluations),
+        "evaluations": int(res.n_evaluations) + resumed_from,
+        "resumed_from_evaluation": resumed_from,
         "converged": bool(res.converged),
         "message": res.message,
-        "wall_s": wall,
+        "wall_s": wall + wall_before,
         "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
     }
     if fci:
@@ -217,6 +246,8 @@ def main() -> None:
     ap.add_argument("--baseline-max-gb", type=float, default=8.0)
     ap.add_argument("--optimize", default=None)
     ap.add_argument("--fci", action="store_true")
+    ap.add_argument("--checkpoint", default=None, help="JSON file: save and resume --optimize")
+    ap.add_argument("--checkpoint-every", type=int, default=5)
     ap.add_argument("--json", default=None)
     ap.add_argument("--worker", default=None, help=argparse.SUPPRESS)
     ap.add_argument("--optimize-worker", default=None, help=argparse.SUPPRESS)
@@ -226,7 +257,13 @@ def main() -> None:
         print(json.dumps(worker(args.worker, args.repeat, args.out)))
         return
     if args.optimize_worker:
-        print(json.dumps(optimize_worker(args.optimize_worker, args.fci)))
+        print(
+            json.dumps(
+                optimize_worker(
+                    args.optimize_worker, args.fci, args.checkpoint, args.checkpoint_every
+                )
+            )
+        )
         return
 
     rows = []
@@ -304,9 +341,11 @@ def main() -> None:
                 f"{b['max_energy_diff']:8.1e} {b['max_gradient_diff']:8.1e}"
             )
     if args.optimize:
-        opt = _spawn(
-            ["--optimize-worker", args.optimize, *(["--fci"] if args.fci else [])], args.threads
-        )
+        extra = ["--fci"] if args.fci else []
+        if args.checkpoint:
+            extra += ["--checkpoint", str(Path(args.checkpoint).resolve())]
+            extra += ["--checkpoint-every", str(args.checkpoint_every)]
+        opt = _spawn(["--optimize-worker", args.optimize, *extra], args.threads)
         rows.append({"optimize": opt})
         print(f"\nUCCSD + L-BFGS from HF, threads={args.threads}")
         print(json.dumps(opt, indent=1))

@@ -1,24 +1,39 @@
 """Memory estimate of determinant-space emulation (light: no PySCF, no Numba).
 
-One estimate serves the size gate of :class:`eigensweep.vqe.detspace.DetSpace` (a problem
-that cannot fit in this machine's memory is refused before anything is allocated) and the
-``mem_mb`` request of ``optimize`` jobs on a cluster (:mod:`eigensweep.resources`).
+One estimate serves two callers: the size gate of :class:`eigensweep.vqe.detspace.DetSpace`
+(``exact_reference=False``: a problem whose emulation cannot fit in this machine's memory is
+refused before anything is allocated) and the ``mem_mb`` request of ``optimize`` jobs on a
+cluster (:func:`eigensweep.resources.optimize_size`, which uses the default
+``exact_reference=True``).
 
 With the factored gates of :mod:`eigensweep.vqe.detspace` the gates hold only string maps
 (a few arrays of length ``C(norb, n_alpha)`` or ``C(norb, n_beta)`` per distinct one-spin
-excitation), so memory is dominated by CI vectors of ``C(norb, n_alpha) * C(norb, n_beta)``
-8-byte floats:
+excitation: about 2 MB at (12e,12o) and 10 MB at (14e,14o) with their packed copy), so
+memory is dominated by CI vectors of ``C(norb, n_alpha) * C(norb, n_beta)`` 8-byte floats:
 
-* an energy + gradient holds about ``VECTORS_OPTIMIZE = 6`` of them (reference, state,
-  ``H|state>``, PySCF's sigma-vector output and temporaries);
-* the exact reference computed by the optimize stage (PySCF FCI Davidson, subspace of up to
-  12 vectors and their sigma vectors) peaks at about ``VECTORS_FCI = 30``;
-* plus ``BASE_MB`` for the interpreter with NumPy, SciPy, PySCF and Numba loaded.
+* an energy + gradient holds about ``VECTORS_OPTIMIZE = 6`` of them (an upper bound: state,
+  ``H|state>``, PySCF's sigma-vector output and temporaries, the reference);
+* an exact (FCI Davidson) solve in the same space, ``exact_reference=True``, is counted as
+  ``VECTORS_FCI = 30`` vectors. The optimize stage no longer runs one: it reads the exact
+  vectors stored by the integrals stage (:meth:`eigensweep.vqe.reference.ExactReference.
+  from_integrals`), so its request is generous by the difference; the solve itself runs in
+  the integrals stage (:func:`eigensweep.chem.exact.solve_sector`);
+* plus ``BASE_MB`` for the interpreter with NumPy, SciPy, PySCF and Numba loaded (Numba and
+  its compiled kernels alone add about 150-200 MB of resident memory).
 
-Measured with ``benchmarks/bench_engine.py`` (peak resident set size), e.g. N2/6-31G
-(14e,14o), 11.8 million determinants: about 1.2 GB for energy + gradient alone and the
-FCI reference dominating at about 3 GB; the estimate is meant to be an upper bound within
-a factor of about 1.5.
+Measured peak resident memory (``benchmarks/bench_engine.py``, one thread, N2/6-31G; the
+process holds PySCF integrals, the UCCSD gates, one energy + gradient and one sigma vector):
+
+========  =============  ==================  ================================
+space     determinants   measured peak (MB)  estimate, ``exact_reference=False``
+========  =============  ==================  ================================
+(10e,10o)        63,504                 216                               403
+(12e,12o)       853,776                 233                               440
+(14e,14o)    11,778,624                 458                               940
+========  =============  ==================  ================================
+
+``solve_sector`` alone at (12e,12o) peaked at 512 MB (estimate with ``exact_reference=True``:
+596 MB). The estimate is an upper bound, about 2x the measured emulation peak at (14e,14o).
 """
 
 from __future__ import annotations
