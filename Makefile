@@ -28,8 +28,8 @@ test: $(STAMP)
 	if [ $$rc -eq 5 ]; then echo "make test: no tests were collected" >&2; exit 1; fi; exit $$rc
 
 lint: $(STAMP)
-	$(BIN)/ruff check src workflow/scripts tests benchmarks
-	$(BIN)/ruff format --check src workflow/scripts tests benchmarks
+	$(BIN)/ruff check src tests benchmarks
+	$(BIN)/ruff format --check src tests benchmarks
 	$(BIN)/snakefmt --check Snakefile workflow/rules
 	$(BIN)/snakemake --lint --configfile config/config.yaml
 

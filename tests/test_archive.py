@@ -98,7 +98,6 @@ def test_archive_carries_workflow_config_and_environment(two_sweeps):
         "Snakefile",
         "workflow/rules/common.smk",
         "workflow/rules/optimize.smk",
-        "workflow/scripts/optimize.py",
         "workflow/schemas/config.schema.yaml",
         "profiles/local/config.yaml",
         "envs/eigensweep.yaml",

@@ -4,7 +4,7 @@ An archive is built from the plan of the named configuration, never from what ha
 the results folder: it holds exactly the stage files that plan references (every optimize job
 and its ancestors, the export and reconcile jobs, the device-job folders and imported counts),
 tables and plots regenerated from those files inside the archive, the full workflow (Snakefile,
-rules, scripts, schema, report captions, profiles, conda environments) and the configuration as
+rules, schema, report captions, profiles, conda environments) and the configuration as
 ``config/config.yaml``, so that the extracted folder re-runs with ``snakemake`` alone. It also
 holds the environment as the installer reports it (``pip freeze``), the source revision,
 ``plan.json``, ``MANIFEST.sha256`` (SHA-256 of every file) and RO-Crate metadata
@@ -54,7 +54,6 @@ MAX_MEMBERS = 200_000
 WORKFLOW_GLOBS = (
     "Snakefile",
     "workflow/rules/*.smk",
-    "workflow/scripts/*.py",
     "workflow/schemas/*.yaml",
     "workflow/report/*.rst",
     "profiles/*/config.yaml",

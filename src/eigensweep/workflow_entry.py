@@ -1,44 +1,99 @@
-"""Entry points called by the thin Snakemake scripts in ``workflow/scripts/``.
+"""Stage actions as Snakemake runs them: the ``run:`` blocks of ``workflow/rules/*.smk``.
 
-They send stderr to the job's log file, turn user-facing errors into one line (no traceback)
-and a non-zero exit, and never leave a partial stage file (the store writes atomically).
+Every job runs inside the Snakemake process that schedules it (a worker thread of Snakemake's
+local executor; on a cluster, of the Snakemake process inside the scheduler job that runs a
+group), so one interpreter and its imports (PySCF, OpenFermion, SciPy) serve every job of a run.
+Each job still has its own log, ``logs/<stage>/<key>.log``: what the job prints, and what the
+libraries it calls print through ``sys.stdout``/``sys.stderr``, goes there (a per-thread
+stream), closed by one line with the job's wall and CPU seconds. A failing job fails alone:
+its error is one line in its log and in Snakemake's report, the other jobs go on, and no
+partial stage file is left (the store writes atomically).
 """
 
 from __future__ import annotations
 
 import os
 import sys
+import threading
+import time
 import traceback
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import TextIO
 
 from .errors import EigensweepError
-from .paths import STORE_KEY
 from .plan import Node
 
 
-def _open_log(smk) -> None:
-    if smk.log:
-        sys.stderr = open(smk.log[0], "w", buffering=1)  # noqa: SIM115 (lives for the job)
+class StageJobError(Exception):
+    """A stage job stopped on bad input or a failed check: one line, no traceback needed."""
 
 
-def _fail(exc: BaseException, stage: str) -> None:
-    line = f"eigensweep {stage}: {exc}"
-    print(line, file=sys.stderr)
+class _ThreadStream:
+    """``sys.stdout``/``sys.stderr`` that write to the current job's log in a job thread."""
+
+    def __init__(self, default: TextIO) -> None:
+        self._default = default
+        self._local = threading.local()
+
+    def _target(self) -> TextIO:
+        return getattr(self._local, "stream", None) or self._default
+
+    def write(self, text: str) -> int:
+        return self._target().write(text)
+
+    def flush(self) -> None:
+        self._target().flush()
+
+    def __getattr__(self, name: str):
+        return getattr(self._target(), name)
+
+
+_install_lock = threading.Lock()
+
+
+def _thread_streams() -> tuple[_ThreadStream, _ThreadStream]:
+    """The per-thread stdout and stderr, installed once per process."""
+    with _install_lock:
+        if not isinstance(sys.stdout, _ThreadStream):
+            sys.stdout = _ThreadStream(sys.stdout)
+        if not isinstance(sys.stderr, _ThreadStream):
+            sys.stderr = _ThreadStream(sys.stderr)
+    return sys.stdout, sys.stderr  # type: ignore[return-value]
+
+
+@contextmanager
+def job_log(path: str | os.PathLike | None) -> Iterator[TextIO]:
+    """Send this thread's stdout/stderr to ``path`` (the job's log) while the job runs."""
+    if path is None:
+        yield sys.__stderr__
+        return
+    out, err = _thread_streams()
+    os.makedirs(os.path.dirname(os.fspath(path)) or ".", exist_ok=True)
+    with open(path, "w", buffering=1) as fh:
+        out._local.stream = err._local.stream = fh
+        try:
+            yield fh
+        finally:
+            out._local.stream = err._local.stream = None
+
+
+def _log_path(log) -> str | None:
+    return str(log[0]) if log else None
+
+
+def _finish(fh: TextIO, what: str, wall0: float, cpu0: float) -> None:
+    wall = time.perf_counter() - wall0
+    cpu = time.thread_time() - cpu0
+    print(f"eigensweep {what}: done in {wall:.2f} s ({cpu:.2f} s CPU in this job)", file=fh)
+
+
+def _fail(fh: TextIO, exc: BaseException, what: str) -> StageJobError:
+    line = f"eigensweep {what}: {exc}"
+    print(line, file=fh)
     if os.environ.get("EIGENSWEEP_DEBUG"):
-        traceback.print_exc()
-    print(line, file=sys.__stderr__)
-    sys.exit(1)
-
-
-def run_stage_job(smk, stage: str) -> None:
-    """Run one keyed stage job inside Snakemake."""
-    _open_log(smk)
-    node_d = smk.params.node
-    node = Node(node_d["stage"], node_d["key"], node_d["params"], node_d["parents"])
-    inputs = {name: str(path) for name, path in smk.input.items()}
-    try:
-        run_stage(node, inputs, str(smk.output[0]), store=smk.config.get(STORE_KEY))
-    except EigensweepError as exc:
-        _fail(exc, stage)
+        traceback.print_exc(file=fh)
+    return StageJobError(line)
 
 
 def run_stage(node: Node, inputs: dict[str, str], output: str, store: str | None = None) -> bool:
@@ -65,19 +120,42 @@ def run_stage(node: Node, inputs: dict[str, str], output: str, store: str | None
     return ran
 
 
-def run_collect_job(smk) -> None:
-    """Write the summary table and plots inside Snakemake."""
+def stage_job(stage: str, input, output, params, log, store: str | None = None) -> None:
+    """One keyed stage job: the ``run:`` block of ``workflow/rules/<stage>.smk``."""
+    node_d = params.node
+    node = Node(node_d["stage"], node_d["key"], node_d["params"], node_d["parents"])
+    inputs = {name: str(path) for name, path in input.items()}
+    what = f"{stage} {node.key}"
+    with job_log(_log_path(log)) as fh:
+        wall0, cpu0 = time.perf_counter(), time.thread_time()
+        try:
+            run_stage(node, inputs, str(output[0]), store)
+        except EigensweepError as exc:
+            raise _fail(fh, exc, what) from None
+        except Exception:
+            traceback.print_exc(file=fh)
+            raise
+        _finish(fh, what, wall0, cpu0)
+
+
+def collect_job(params, log) -> None:
+    """Write the study's tables and plots (the ``run:`` block of ``collect.smk``)."""
     from .collect import collect
 
-    _open_log(smk)
-    try:
-        files = collect(
-            smk.params.rows,
-            "results",
-            smk.params.accuracy_mha,
-            smk.params.exports,
-            study=smk.params.study,
-        )
-    except EigensweepError as exc:
-        _fail(exc, "collect")
-    print("wrote " + ", ".join(map(str, files)), file=sys.stderr)
+    with job_log(_log_path(log)) as fh:
+        wall0, cpu0 = time.perf_counter(), time.thread_time()
+        try:
+            files = collect(
+                params.rows,
+                "results",
+                params.accuracy_mha,
+                params.exports,
+                study=params.study,
+            )
+        except EigensweepError as exc:
+            raise _fail(fh, exc, "collect") from None
+        except Exception:
+            traceback.print_exc(file=fh)
+            raise
+        print("wrote " + ", ".join(map(str, files)), file=fh)
+        _finish(fh, "collect", wall0, cpu0)

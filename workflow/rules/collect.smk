@@ -22,8 +22,6 @@ rule collect:
         ],
     log:
         f"logs/collect/{get_study()}.log",
-    conda:
-        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=2000,
@@ -33,5 +31,5 @@ rule collect:
         accuracy_mha=get_accuracy_mha(),
         exports=get_exports(),
         study=get_study(),
-    script:
-        "../scripts/collect.py"
+    run:
+        collect_job(params, log)

@@ -1,32 +1,36 @@
 # Helpers shared by all stages: validate the config, build the plan, look nodes up by key.
+# The parse stays light: config, plan and resource estimates only (no PySCF, no OpenFermion);
+# the chemistry pre-flight runs once in `eigensweep run`/`plan`, not at every parse.
 import os
 import sys
 from pathlib import Path
+
+# Stage jobs request one thread each; keep BLAS/OpenMP pools to that so parallel jobs do not
+# oversubscribe cores (measured: L-BFGS on LiH about 4x faster on 2 cores with one thread).
+# Set before NumPy is first imported by anything below.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
 
 from eigensweep.config import DEFAULT_CONFIG, SWEEP_KEY, workflow_config
 from eigensweep.errors import EigensweepError
 from eigensweep.paths import STORE_KEY, sweep_store
 from eigensweep.plan import build_plan, parent_files
-from eigensweep.preflight import check_plan_chemistry
 from eigensweep.resources import stage_resources
 from eigensweep.store import store_in_use, store_root
 from eigensweep.study import figure_stems
-
-# Stage jobs request one thread each; keep BLAS/OpenMP pools to that so parallel jobs do not
-# oversubscribe cores (measured: L-BFGS on LiH about 4x faster on 2 cores with one thread).
-for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
-    os.environ.setdefault(_var, "1")
+from eigensweep.workflow_entry import collect_job, stage_job
 
 # the config file names the study when `study:` is unset (results/<study>/)
 CONFIG_PATH = config.get(SWEEP_KEY) or (
-    workflow.overwrite_configfiles[0] if workflow.overwrite_configfiles else DEFAULT_CONFIG
+    workflow.overwrite_configfiles[0]
+    if workflow.overwrite_configfiles
+    else DEFAULT_CONFIG
 )
 
 try:
     # the sweep is read by eigensweep's own loader (plain data, nothing evaluated)
     CFG = workflow_config(config, workflow.overwrite_configfiles)
     PLAN = build_plan(CFG, base_dir=Path.cwd(), config_path=CONFIG_PATH)
-    check_plan_chemistry(PLAN)
     # the shared stage store (--config store=DIR or the sweep's `store:`), held shared while
     # this Snakemake runs (prune refuses meanwhile); jobs read it from config[STORE_KEY]
     STORE = sweep_store(config.get(STORE_KEY), CFG)
@@ -36,6 +40,11 @@ try:
 except EigensweepError as exc:
     sys.stderr.write(f"eigensweep: {exc}\n")
     sys.exit(1)
+
+
+def get_store():
+    """The shared stage store's folder (str) for the rules' `run:` blocks, or None."""
+    return config.get(STORE_KEY) if STORE is not None else None
 
 
 def get_node(wildcards):
@@ -108,7 +117,12 @@ def get_final_outputs():
     return (
         [
             get_study_file(name)
-            for name in ("summary.csv", "device_summary.csv", "analysis.csv", "README.md")
+            for name in (
+                "summary.csv",
+                "device_summary.csv",
+                "analysis.csv",
+                "README.md",
+            )
         ]
         + get_plot_files()
         + get_export_files()

@@ -6,15 +6,11 @@ rule export:
         jobs=directory("results/export/{key}"),
     log:
         "logs/export/{key}.log",
-    benchmark:
-        "logs/benchmark/export/{key}.tsv"
-    conda:
-        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=get_mem_mb,
         runtime=get_runtime,
     params:
         node=get_node,
-    script:
-        "../scripts/export.py"
+    run:
+        stage_job("export", input, output, params, log, get_store())

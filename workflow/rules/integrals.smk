@@ -5,15 +5,11 @@ rule integrals:
         "results/integrals/{key}.h5",
     log:
         "logs/integrals/{key}.log",
-    benchmark:
-        "logs/benchmark/integrals/{key}.tsv"
-    conda:
-        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=get_mem_mb,
         runtime=get_runtime,
     params:
         node=get_node,
-    script:
-        "../scripts/integrals.py"
+    run:
+        stage_job("integrals", input, output, params, log, get_store())

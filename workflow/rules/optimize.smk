@@ -5,15 +5,11 @@ rule optimize:
         "results/optimize/{key}.h5",
     log:
         "logs/optimize/{key}.log",
-    benchmark:
-        "logs/benchmark/optimize/{key}.tsv"
-    conda:
-        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=get_mem_mb,
         runtime=get_runtime,
     params:
         node=get_node,
-    script:
-        "../scripts/optimize.py"
+    run:
+        stage_job("optimize", input, output, params, log, get_store())

@@ -5,15 +5,11 @@ rule taper:
         "results/taper/{key}.h5",
     log:
         "logs/taper/{key}.log",
-    benchmark:
-        "logs/benchmark/taper/{key}.tsv"
-    conda:
-        "../../envs/eigensweep.yaml"
     threads: 1
     resources:
         mem_mb=get_mem_mb,
         runtime=get_runtime,
     params:
         node=get_node,
-    script:
-        "../scripts/taper.py"
+    run:
+        stage_job("taper", input, output, params, log, get_store())
