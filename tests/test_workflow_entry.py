@@ -81,7 +81,7 @@ def test_snakefile_parse_imports_no_chemistry(tmp_path):
     assert out.returncode == 0, out.stderr[-2000:]
     imported = {line.rsplit("|", 1)[-1].strip() for line in out.stderr.splitlines() if "|" in line}
     assert "eigensweep.plan" in imported  # the parse did happen
-    for heavy in ("pyscf", "openfermion", "scipy", "h5py", "matplotlib"):
+    for heavy in ("pyscf", "openfermion", "scipy", "matplotlib"):
         assert heavy not in imported, heavy
 
 
