@@ -8,6 +8,14 @@ energy there, the curvature ``k = d²E/dx²`` and, for a diatomic bond-length sc
 wavenumber ``omega_e = sqrt(k / mu) / (2 pi c)`` with the reduced mass of the most abundant
 isotopes.  The same numbers from the exact (CASCI/FCI) curve at the same points sit beside them.
 
+Harmonic wavenumbers are given only for diatomic bond-length scans. Along an angle (or any
+coordinate of a polyatomic) the curvature is a diagonal force constant ``F_xx`` in Eh per unit²
+of the scan variable, and a frequency needs the kinetic-energy (Wilson G) matrix of all internal
+coordinates and the coupled normal-mode problem ``det(FG - lambda) = 0`` (Wilson, Decius &
+Cross, *Molecular Vibrations*, 1955); a one-coordinate scan with the other coordinates frozen
+does not hold the coupling terms, so the wavenumber cells stay empty and the ``notes`` column
+says why.
+
 The well depth ``E(x_last) - E(x_e)`` uses the scan's outermost point, so it is a dissociation
 energy only when the scan reaches the asymptote (it is a lower bound otherwise; the column name
 says so).  A scan is called too coarse when the degree-4 fit and the degree-3 fit through the
@@ -71,14 +79,25 @@ ANALYSIS_COLUMNS: list[Column] = [
     Column("x_e_exact", "unit", "the same from the exact curve at the same points"),
     Column("energy_min_eh", "Eh", "fitted minimum energy (VQE)"),
     Column("energy_min_exact_eh", "Eh", "fitted minimum energy (exact)"),
-    Column("curvature_eh_per_unit2", "Eh/unit²", "d²E/dx² at x_e (VQE)"),
+    Column(
+        "curvature_eh_per_unit2",
+        "Eh/unit²",
+        "d²E/dx² at x_e (VQE), per unit² of the scan variable (Eh/deg² for an angle)",
+    ),
     Column("curvature_exact_eh_per_unit2", "Eh/unit²", "d²E/dx² at x_e (exact)"),
     Column("omega_e_cm1", "cm⁻¹", "harmonic wavenumber (diatomic bond scans only)"),
     Column("omega_e_exact_cm1", "cm⁻¹", "harmonic wavenumber from the exact curve"),
     Column("well_depth_to_last_point_eh", "Eh", "E(last scan point) - E(x_e), VQE"),
     Column("well_depth_to_last_point_exact_eh", "Eh", "the same for the exact curve"),
     Column("warning", "", "why a number may mislead (coarse scan, minimum at the edge, ...)"),
+    Column("notes", "", "why a cell is empty (e.g. no wavenumber for a non-diatomic coordinate)"),
 ]
+
+#: Why an analysis row has no harmonic wavenumber.
+NO_WAVENUMBER_NOTE = (
+    "omega_e not given: harmonic wavenumbers only for diatomic bond-length scans (an angle or "
+    "polyatomic coordinate needs the Wilson G matrix and the coupled normal-mode problem)"
+)
 
 
 @dataclass
@@ -222,11 +241,13 @@ def analyse_study(summary: list[dict]) -> tuple[list[dict], list[str]]:
         vqe = fit_minimum(x, [float(r["energy_eh"]) for r in rows])
         exact = fit_minimum(x, [float(r["energy_exact_eh"]) for r in rows])
         omega = omega_exact = math.nan
+        notes = NO_WAVENUMBER_NOTE
         masses = _diatomic_masses(str(rows[0].get("_atoms", "")))
         if masses and _is_bond_scan(rows, col, unit):
             to_a2 = 1.0 / BOHR_IN_ANGSTROM**2 if unit == "bohr" else 1.0
             omega = harmonic_wavenumber(vqe.curvature * to_a2, *masses)
             omega_exact = harmonic_wavenumber(exact.curvature * to_a2, *masses)
+            notes = ""
         if vqe.warning and vqe.warning == exact.warning:
             warning = f"VQE and exact: {vqe.warning}"
         else:
@@ -250,6 +271,7 @@ def analyse_study(summary: list[dict]) -> tuple[list[dict], list[str]]:
             "well_depth_to_last_point_eh": vqe.well_depth_to_last_point,
             "well_depth_to_last_point_exact_eh": exact.well_depth_to_last_point,
             "warning": warning,
+            "notes": notes,
         }
         out.append(row)
         if warning:
