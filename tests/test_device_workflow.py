@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import csv
 import json
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -91,3 +92,13 @@ def test_external_counts_are_checked_imported_and_reconciled(tmp_path):
     mit = rows["readout_mitigated"]
     assert float(mit["ci_low_eh"]) - 3e-3 <= e_fci <= float(mit["ci_high_eh"]) + 3e-3
     assert abs(float(rows["raw"]["energy_eh"]) - e_fci) > abs(float(mit["energy_eh"]) - e_fci)
+
+    # the device figures are outputs of the collect rule (the histogram pages as one declared
+    # folder): deleted, they are made again by the next run
+    plots = tmp_path / "results" / "c" / "plots"
+    pages = sorted((plots / "device_histograms").glob(f"device_{key}*.png"))
+    assert pages and (plots / f"zne_{key}.png").is_file()
+    shutil.rmtree(plots / "device_histograms")
+    third = cli(tmp_path, "run", "--config", "c.yaml", "--cores", "2")
+    assert third.returncode == 0, third.stderr[-3000:]
+    assert sorted((plots / "device_histograms").glob("*.png")) == pages

@@ -482,7 +482,10 @@ def _check_tables(archive: Path, root: Path, plan: Plan, cfg: dict, listed: set[
         if name not in listed:
             raise EigensweepError(f"{archive}: {name} missing")
         archived[name] = (root / name).read_bytes()
-    plots_before = {p.name for p in (results / plan.study / "plots").glob("*")}
+    plots_dir = results / plan.study / "plots"
+    plots_before = {
+        p.relative_to(plots_dir).as_posix() for p in plots_dir.rglob("*") if p.is_file()
+    }
     with tempfile.TemporaryDirectory(prefix="eigensweep-tables-") as tmp:
         scratch = Path(tmp) / "results"
         for node in stage_closure(plan):
@@ -498,7 +501,12 @@ def _check_tables(archive: Path, root: Path, plan: Plan, cfg: dict, listed: set[
                 raise EigensweepError(
                     f"{archive}: {name} differs from the table re-derived from its stage files (stale)"
                 )
-        plots_now = {Path(f).name for f in files if Path(f).parent.name == "plots"}
+        scratch_plots = scratch / plan.study / "plots"
+        plots_now = {
+            Path(f).relative_to(scratch_plots).as_posix()
+            for f in files
+            if Path(f).is_relative_to(scratch_plots)
+        }
     if plots_before != plots_now:
         odd = sorted(plots_before ^ plots_now)[0]
         raise EigensweepError(f"{archive}: plot {odd} is stale or missing")

@@ -19,7 +19,11 @@ from pathlib import Path
 import numpy as np
 
 from .store import atomic_path, read_stage
-from .study import figure_stems  # noqa: F401 (re-exported: the one list of figure names)
+from .study import (  # noqa: F401 (figure_stems re-exported: the one list of figure names)
+    DEVICE_HISTOGRAM_FOLDER,
+    figure_stems,
+    reconciled_exports,
+)
 
 #: Okabe-Ito palette without yellow (too faint on white), then black.
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
@@ -438,19 +442,22 @@ def plot_noise_scaling(result, stem: Path, title: str) -> list[Path]:
 def device_figures(
     exports: list[dict], results: Path, folder: Path, per_page: int = 12
 ) -> list[Path]:
-    """Every device circuit's returned-vs-ideal histogram (paged) and the noise-scaling plot."""
+    """Every device circuit's returned-vs-ideal histogram (paged, in
+    ``plots/device_histograms/``) and the noise-scaling plot (``plots/zne_<export key>``)."""
     from .device import ReconcileResult, plot_histograms
 
     files: list[Path] = []
-    for ex in exports:
-        if not ex.get("key_reconcile"):
-            continue
+    jobs = reconciled_exports(exports)
+    if jobs:  # a declared output of the collect rule, so it exists even when empty
+        (folder / DEVICE_HISTOGRAM_FOLDER).mkdir(parents=True, exist_ok=True)
+    for ex in jobs:
         rec = read_stage(results / "reconcile" / f"{ex['key_reconcile']}.h5", stage="reconcile")
         res = ReconcileResult.from_store(rec.arrays, rec.meta)
         n = len(res.circuits)
         pages = max(1, -(-n // per_page))
         for page in range(pages):
-            stem = folder / (f"device_{ex['key_export']}" + (f"_p{page + 1}" if pages > 1 else ""))
+            name = f"device_{ex['key_export']}" + (f"_p{page + 1}" if pages > 1 else "")
+            stem = folder / DEVICE_HISTOGRAM_FOLDER / name
             png = plot_histograms(
                 res,
                 stem.with_suffix(".png"),

@@ -158,7 +158,22 @@ def expand_sweeps(cfg: dict, check: Callable[..., None], source: str = "config")
     return out
 
 
-def figure_stems(molecules: list[str]) -> list[str]:
-    """Figures every study writes (PNG and PDF) besides device ones, relative to ``plots/``."""
+def figure_stems(molecules: list[str], exports: list[dict] | None = None) -> list[str]:
+    """Figures a study writes (PNG and PDF), relative to ``plots/``.
+
+    Besides the per-molecule figures and the resource plot, one energy-vs-noise-scale plot
+    (``zne_<export key>``) per reconciled device job in ``exports``; the paged histograms of
+    those jobs go to :data:`DEVICE_HISTOGRAM_FOLDER` (their number is known only after export).
+    """
     out = [f"{m}_{kind}" for m in molecules for kind in ("energy", "error", "convergence")]
-    return out + ["resources"]
+    out.append("resources")
+    return out + [f"zne_{ex['key_export']}" for ex in reconciled_exports(exports or [])]
+
+
+#: Folder under ``plots/`` holding every device circuit's returned-vs-ideal histogram pages.
+DEVICE_HISTOGRAM_FOLDER = "device_histograms"
+
+
+def reconciled_exports(exports: list[dict]) -> list[dict]:
+    """The device jobs of a plan that have counts to reconcile (and so have figures)."""
+    return [ex for ex in exports if ex.get("key_reconcile")]

@@ -20,6 +20,15 @@ rule collect:
             report(f, caption="../report/plots.rst", category="Plots")
             for f in get_plot_files()
         ],
+        histograms=[
+            report(
+                directory(d),
+                patterns=["{name}.png"],
+                caption="../report/plots.rst",
+                category="Device histograms",
+            )
+            for d in get_device_histogram_dirs()
+        ],
     log:
         f"logs/collect/{get_study()}.log",
     threads: 1

@@ -17,7 +17,7 @@ from eigensweep.paths import STORE_KEY, sweep_store
 from eigensweep.plan import build_plan, parent_files
 from eigensweep.resources import stage_resources
 from eigensweep.store import store_in_use, store_root
-from eigensweep.study import figure_stems
+from eigensweep.study import DEVICE_HISTOGRAM_FOLDER, figure_stems, reconciled_exports
 from eigensweep.workflow_entry import collect_job, stage_job
 
 # the config file names the study when `study:` is unset (results/<study>/)
@@ -110,7 +110,15 @@ def get_study_file(name):
 
 def get_plot_files():
     mols = list(dict.fromkeys(row["molecule"] for row in PLAN.rows))
-    return [get_study_file(f"plots/{stem}.png") for stem in figure_stems(mols)]
+    stems = figure_stems(mols, PLAN.exports)
+    return [get_study_file(f"plots/{stem}.png") for stem in stems]
+
+
+def get_device_histogram_dirs():
+    """The histogram folder of the study, when it has reconciled device jobs (else none)."""
+    if not reconciled_exports(PLAN.exports):
+        return []
+    return [get_study_file(f"plots/{DEVICE_HISTOGRAM_FOLDER}")]
 
 
 def get_final_outputs():
@@ -125,5 +133,6 @@ def get_final_outputs():
             )
         ]
         + get_plot_files()
+        + get_device_histogram_dirs()
         + get_export_files()
     )
