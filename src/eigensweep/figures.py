@@ -85,6 +85,10 @@ REFERENCE_LINES = {
     "energy_exact_eh": ("exact (CASCI/FCI)", "k", "-"),
 }
 
+#: A reference rung closer than this to the exact energy at every point (hartree) is labelled
+#: as coinciding with it (1 microhartree, far below what the eye separates on an energy axis).
+COINCIDE_EH = 1e-6
+
 #: Axes that tell methods apart, in the order they appear in a series label.
 SERIES_KEYS = ("sweep", "ansatz", "optimizer", "estimator", "mapping", "tapered")
 
@@ -230,17 +234,22 @@ def plot_energy(rows: list[dict], stem: Path) -> list[Path]:
     xr = np.array([_x([first[p]], col, points)[0] for p in points])
     order = np.argsort(xr)
     fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    exact = np.array([_f(first[p].get("energy_exact_eh")) for p in points])[order]
     for c, (lab, colour, style) in REFERENCE_LINES.items():
         y = np.array([_f(first[p].get(c)) for p in points])[order]
         if np.isfinite(y).any():
+            is_exact = c == "energy_exact_eh"
+            both = np.isfinite(y) & np.isfinite(exact)
+            if not is_exact and both.any() and np.all(np.abs(y - exact)[both] < COINCIDE_EH):
+                lab += " (= exact)"  # drawn on top of the exact line, and said so
             ax.plot(
                 xr[order],
                 y,
                 color=colour,
                 ls=style,
-                lw=1.8 if c == "energy_exact_eh" else 1.2,
+                lw=2.4 if is_exact else 1.2,
                 label=lab,
-                zorder=1,
+                zorder=1 if is_exact else 1.5,
             )
     _method_series(
         ax, rows, col, points, lambda r: _f(r["energy_eh"]), lambda r: _f(r.get("energy_stderr_eh"))
@@ -406,9 +415,11 @@ def plot_noise_scaling(result, stem: Path, title: str) -> list[Path]:
         fmt="o",
         color=PALETTE[0],
         capsize=3,
-        label=f"measured ({pretty(result.zne_input)})",
+        label=f"measured ({pretty(result.zne_input)}), 95 % bootstrap intervals",
     )
     seen: dict[float, str] = {}
+    grid = np.linspace(0.0, float(xs.max()) if xs.size else 1.0, 100)
+    fits = {"linear": 1, "Richardson": len(xs) - 1}  # polynomial degree of each extrapolation
     for i, (name, est) in enumerate(
         (("linear", result.zne_linear), ("Richardson", result.zne_richardson))
     ):
@@ -418,19 +429,33 @@ def plot_noise_scaling(result, stem: Path, title: str) -> list[Path]:
         if key in seen:  # the same number under two names: one label
             continue
         seen[key] = name
+        if len(xs) > fits[name]:  # the fitted curve, from the measured points down to zero
+            poly = np.polynomial.Polynomial.fit(xs, ys, fits[name])
+            ax.plot(grid, poly(grid), color=PALETTE[i + 1], ls=LINESTYLES[i + 1], lw=0.9)
         ax.errorbar(
-            [0.0],
+            [0.08 * (2 * i - 1)],  # side by side at zero noise, so both stay visible
             [est.value],
             yerr=[[est.value - est.ci_low], [est.ci_high - est.value]],
             fmt=MARKERS[i + 1],
             color=PALETTE[i + 1],
             capsize=3,
-            label=f"zero-noise ({name})",
+            label=f"zero noise ({name} extrapolation)",
         )
     if result.energy_exact is not None:
-        ax.axhline(result.energy_exact, color="k", lw=1.2, label="exact")
+        ax.axhline(result.energy_exact, color="k", lw=1.8, label="exact", zorder=1)
     if result.energy_sim is not None:
-        ax.axhline(result.energy_sim, color="0.45", ls="--", lw=1.0, label="simulated (noise-free)")
+        same = (
+            result.energy_exact is not None
+            and abs(result.energy_sim - result.energy_exact) < COINCIDE_EH
+        )
+        ax.axhline(
+            result.energy_sim,
+            color="0.6",
+            ls="--",
+            lw=1.0,
+            label="simulated (noise-free" + (", = exact)" if same else ")"),
+            zorder=1.5,
+        )
     ax.set_xlabel("noise scale factor (unitary folding)")
     ax.set_ylabel("energy (Eh)")
     ax.set_xlim(left=-0.3)
@@ -464,8 +489,9 @@ def device_figures(
                 max_circuits=per_page,
                 start=page * per_page,
                 note=f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['tapered'])}: returned vs ideal, page {page + 1} of {pages}, circuits {page * per_page + 1}-{min(n, (page + 1) * per_page)} of {n}",
+                pdf=True,
             )
-            files.append(png)
+            files += [png, png.with_suffix(".pdf")]
         label = f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['ansatz'])}, {pretty(ex['tapered'])}"
         files += plot_noise_scaling(
             res, folder / f"zne_{ex['key_export']}", f"{label}: zero-noise extrapolation"

@@ -470,15 +470,20 @@ def plot_histograms(
     max_circuits: int = 12,
     start: int = 0,
     note: str = "",
+    pdf: bool = False,
 ) -> Path:
     """Bar charts of returned vs ideal probabilities of the top bitstrings, one panel per circuit.
 
     Measurement circuits come first (lowest scale factor first), then calibration circuits;
     panels ``start`` to ``start + max_circuits`` of that order (page through with ``start``),
-    ``note`` as the figure's title. Written with matplotlib's Agg canvas (no display needed).
+    ``note`` as the figure's title, one legend for the page (never over the bars), the
+    colour-blind-safe palette of :mod:`eigensweep.figures`. Written with matplotlib's Agg canvas
+    (no display needed); with ``pdf`` also as ``path`` with suffix ``.pdf``.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
+
+    from eigensweep.figures import DPI, PALETTE
 
     diags = sorted(
         result.circuits,
@@ -486,24 +491,49 @@ def plot_histograms(
     )[start : start + max_circuits]
     ncols = min(3, max(1, len(diags)))
     nrows = max(1, -(-len(diags) // ncols))
-    fig = Figure(figsize=(4.2 * ncols, 3.2 * nrows), layout="constrained")
+    fig = Figure(figsize=(4.2 * ncols, 3.2 * nrows + 0.6), layout="constrained")
     FigureCanvasAgg(fig)
     axes = fig.subplots(nrows, ncols, squeeze=False).ravel()
     for ax, d in zip(axes, diags, strict=False):
         labels = [t[0] for t in d.top]
         x = np.arange(len(labels))
-        ax.bar(x - 0.2, [t[1] for t in d.top], width=0.4, label="returned")
-        ax.bar(x + 0.2, [t[2] for t in d.top], width=0.4, label="ideal")
+        ax.bar(
+            x - 0.2,
+            [t[1] for t in d.top],
+            width=0.4,
+            color=PALETTE[0],
+            label="returned by the device",
+        )
+        ax.bar(
+            x + 0.2, [t[2] for t in d.top], width=0.4, color=PALETTE[1], label="ideal (noise-free)"
+        )
         ax.set_xticks(x, labels, rotation=60, fontsize=7, family="monospace")
         ax.set_xlabel("bitstring (qubit 0 first)")
         ax.set_ylabel("probability")
-        ax.set_title(f"{d.circuit_id} (TVD {d.tvd:.3f})", fontsize=9)
-        ax.legend(fontsize=7)
+        if d.kind == "measure":
+            what = f"group {d.group}, noise scale {d.scale_factor}"
+        else:
+            what = "readout calibration, all " + d.circuit_id.split("-")[-1]
+        ax.set_title(f"{what} ({d.circuit_id}), TVD {d.tvd:.3f}", fontsize=8.5)
     for ax in axes[len(diags) :]:
         ax.set_visible(False)
-    if note:
-        fig.suptitle(note, fontsize=10)
+    handles, names = axes[0].get_legend_handles_labels()
+    fig.legend(
+        handles,
+        names,
+        loc="outside lower center",
+        ncols=2,
+        frameon=False,
+        fontsize=9,
+    )
+    top = max((len(d.top) for d in diags), default=0)
+    fig.suptitle(
+        (note + "\n" if note else "") + f"the {top} most likely bitstrings of each circuit",
+        fontsize=10,
+    )
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path, dpi=300 if path.suffix == ".png" else None)
+    fig.savefig(path, dpi=DPI if path.suffix == ".png" else None)
+    if pdf:
+        fig.savefig(path.with_suffix(".pdf"), metadata={"CreationDate": None})
     return path
