@@ -217,6 +217,23 @@ def test_restarted_uccsd_below_the_singlet_is_flagged_as_another_spin():
     assert cause.startswith("another spin")
 
 
+def test_spin_flip_tied_state_reports_its_true_spin():
+    # issue 20: the tied ansatz ("spin_adapted" before) is not spin-adapted; its <S^2> must be
+    # reported as it is, whatever it is
+    ints = integrals(O2, 1, (8, 6))
+    res = optimize(
+        ints,
+        ansatz={"name": "uccsd", "spin_flip_tied": True},
+        optimizer={"name": "lbfgs", "restarts": 2, "restart_scale": 0.3},
+    )
+    space = DetSpace(ints.norb, ints.nelec, ints.h1e, ints.eri, ints.e_core)
+    state = UCCSD(space, spin_adapted=True).state(res.params)
+    # reference: PySCF spin_square of the optimized state; S(S+1) = 0 for the singlet
+    s2 = fci.spin_square(state, 6, (4, 4))[0]
+    assert res.spin_square == pytest.approx(s2, abs=1e-9)
+    assert res.spin_mismatch == (abs(s2) > 1e-3)  # the engine's tolerance, 1e-3
+
+
 def test_o2_singlet_tapered_sweep_writes_its_summary(tmp_path):
     # issue 20: this sweep once lost its summary (nan overlap), then stopped in the sector check
     # because the first stored 1Delta_g vector is a mixture of two D2h sectors; only the part in
