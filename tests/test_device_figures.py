@@ -44,8 +44,13 @@ def test_written_figures_are_the_declared_ones(study):
     # every circuit of the job on some page: 12 panels a page (ceil; closed form)
     n = len(read_stage(results / "export" / f"{ex['key_export']}.h5").meta["manifest"]["circuits"])
     pages = sorted(f.name for f in files if f.parent == plots / DEVICE_HISTOGRAM_FOLDER)
-    assert n > 12 and len(pages) == math.ceil(n / 12)
-    assert pages == [f"device_{ex['key_export']}_p{i + 1}.png" for i in range(len(pages))]
+    n_pages = math.ceil(n / 12)
+    assert n > 12 and len(pages) == 2 * n_pages  # PDF and PNG of each page
+    assert pages == sorted(
+        f"device_{ex['key_export']}_p{i + 1}.{ext}"
+        for i in range(n_pages)
+        for ext in ("pdf", "png")
+    )
 
 
 def test_archive_verifies_the_histogram_folder(study, tmp_path):
