@@ -443,8 +443,14 @@ class GateSequence:
         return self.coeffs * theta[self.params]
 
     def state(self, theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
+        return self.state_at_angles(self.angles(theta), reference)
+
+    def state_at_angles(self, phis: np.ndarray, reference: np.ndarray) -> np.ndarray:
+        """``U_K(phi_K) ... U_1(phi_1) reference`` for per-gate angles ``phis``."""
         vec = np.array(reference, dtype=np.float64, copy=True).reshape(-1)
-        phis = self.angles(theta)
+        phis = np.ascontiguousarray(phis, dtype=np.float64).reshape(-1)
+        if phis.size != len(self.gates):
+            raise ValueError(f"expected {len(self.gates)} gate angles, got {phis.size}")
         if self.gates:
             with self.space.threads():
                 detkernels.apply_sequence(

@@ -29,6 +29,7 @@ import numpy as np
 from ..circuit import Circuit, PauliRotation, circuit_costs, circuit_from_rotations
 from ..qubit.mapping import check_mapping, encode_occupations, generator_paulis
 from .detspace import DetSpace, ExcitationGate, FermionTerm, GateSequence, to_qubit_state
+from .parameter_shift import EXCITATION_RULE, ShiftUnit
 
 __all__ = [
     "Excitation",
@@ -152,6 +153,27 @@ class FermionicAnsatz:
     def state(self, theta: np.ndarray) -> np.ndarray:
         """Flat real CI vector (PySCF string order) of the ansatz state."""
         return self._sequence.state(theta, self._reference)
+
+    def angles(self, theta: np.ndarray) -> np.ndarray:
+        """Excitation angles ``phi_k = coeff_k theta[param_k]``, one per gate."""
+        return self._sequence.angles(theta)
+
+    def state_at_angles(self, angles: np.ndarray) -> np.ndarray:
+        """CI vector with excitation ``k`` at angle ``angles[k]`` (parameter shifts)."""
+        return self._sequence.state_at_angles(angles, self._reference)
+
+    def state_energy(self, psi: np.ndarray) -> float:
+        """Exact energy of a CI vector of this determinant space (``e_core`` included)."""
+        return self.space.energy(psi)
+
+    def shift_units(self) -> list[ShiftUnit]:
+        """One four-term unit per excitation, variable = its angle ``phi``
+        (:mod:`eigensweep.vqe.parameter_shift`)."""
+        return [
+            ShiftUnit((k,), (1.0,), int(e.param), float(e.coeff), EXCITATION_RULE)
+            for k, e in enumerate(self.excitations)
+            if e.coeff != 0.0
+        ]
 
     def qubit_state(self, theta: np.ndarray) -> np.ndarray:
         """Jordan-Wigner statevector (``2**n_qubits``) of the ansatz state."""

@@ -17,6 +17,7 @@ import numpy as np
 
 from ..circuit import Circuit, PauliRotation, circuit_costs, circuit_from_rotations
 from ..qubit import statevector as sv
+from .parameter_shift import PAULI_RULE, ShiftUnit
 
 if TYPE_CHECKING:
     from ..qubit.pauli import PauliSum
@@ -113,10 +114,27 @@ class PauliRotationAnsatz:
 
     def state(self, theta: np.ndarray) -> np.ndarray:
         """Complex statevector (qubit 0 = most significant bit)."""
+        return self.state_at_angles(self.angles(theta))
+
+    def state_at_angles(self, angles: np.ndarray) -> np.ndarray:
+        """Statevector with gate ``k`` at rotation angle ``angles[k]`` (parameter shifts)."""
         psi = sv.basis_state(self.reference)
-        for k, a in enumerate(self.angles(theta)):
+        for k, a in enumerate(np.asarray(angles, dtype=float)):
             psi = self._rotate(psi, k, float(a))
         return psi
+
+    def state_energy(self, psi: np.ndarray) -> float:
+        """Exact ``<psi|H|psi>`` of a state of this ansatz's qubits."""
+        return sv.expectation(psi, self._ham())
+
+    def shift_units(self) -> list[ShiftUnit]:
+        """One two-term unit per parametrized rotation, variable = its angle
+        (:mod:`eigensweep.vqe.parameter_shift`)."""
+        return [
+            ShiftUnit((k,), (1.0,), int(g.param), float(g.coeff), PAULI_RULE)
+            for k, g in enumerate(self.gates)
+            if g.param >= 0 and g.coeff != 0.0
+        ]
 
     qubit_state = state
 

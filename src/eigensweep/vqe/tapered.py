@@ -44,6 +44,7 @@ import numpy as np
 from ..qubit.mapping import check_mapping, generator_paulis
 from .detspace import FermionTerm
 from .fermionic import Excitation, FermionicAnsatz
+from .parameter_shift import EXCITATION_RULE, ShiftUnit
 from .pauli_rotation import PauliGate, PauliRotationAnsatz
 
 if TYPE_CHECKING:
@@ -118,6 +119,7 @@ class _Plan:
     kept_params: np.ndarray
     kept_excitations: list[int]
     n_dropped_excitations: int
+    units: list[ShiftUnit]
 
 
 def _plan(
@@ -153,15 +155,26 @@ def _plan(
     new_index[kept_params] = np.arange(kept_params.size)
     gates: list[PauliGate] = []
     kept_exc: list[int] = []
+    units: list[ShiftUnit] = []
     for i, (e, strings) in enumerate(zip(excitations, per_exc, strict=True)):
         if not strings:
             continue
         kept_exc.append(i)
         p = int(new_index[e.param])
+        first = len(gates)
         for x, z, w in strings:
             gates.append(PauliGate(x, z, p, float(e.coeff) * w))
+        units.append(
+            ShiftUnit(
+                tuple(range(first, len(gates))),
+                tuple(float(w) for _, _, w in strings),
+                p,
+                float(e.coeff),
+                EXCITATION_RULE,
+            )
+        )
     n_dropped = sum(1 for s in per_exc if s is None)
-    return _Plan(gates, kept_params, kept_exc, n_dropped)
+    return _Plan(gates, kept_params, kept_exc, n_dropped, units)
 
 
 class TaperedFermionicAnsatz(PauliRotationAnsatz):
@@ -207,6 +220,7 @@ class TaperedFermionicAnsatz(PauliRotationAnsatz):
         self.kept_params = plan.kept_params
         self.kept_excitations = plan.kept_excitations
         self.n_dropped_excitations = plan.n_dropped_excitations
+        self._units = plan.units
         full = np.zeros(self.n_params_untapered) if initial is None else np.asarray(initial)
         self._initial = np.asarray(full, dtype=float).reshape(-1)[self.kept_params].copy()
         self._extra_meta = dict(extra_meta or {})
@@ -236,6 +250,11 @@ class TaperedFermionicAnsatz(PauliRotationAnsatz):
             initial=ansatz.initial_params(),
             extra_meta=extra,
         )
+
+    def shift_units(self) -> list[ShiftUnit]:
+        """One four-term unit per kept excitation: its tapered rotations shift together by
+        ``w_j s`` (:mod:`eigensweep.vqe.parameter_shift`)."""
+        return list(self._units)
 
     def initial_params(self) -> np.ndarray:
         """The untapered initial parameters of the kept parameters (zeros = Hartree-Fock)."""
