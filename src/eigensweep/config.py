@@ -429,7 +429,7 @@ def _check_estimator(ansatz: str | None, optimizer: str | None, estimator: str |
     if optimizer in GRADIENT_METHODS:
         raise ConfigError(
             f"optimizer.name: {optimizer!r} needs exact gradients; with estimator {estimator!r} "
-            "use one of spsa, rbf_surrogate, cobyla, nelder_mead"
+            "use one of adam, shot_adaptive_descent, spsa, rbf_surrogate, cobyla, nelder_mead"
         )
     if ansatz == "adapt":
         raise ConfigError("estimator.name: the adapt ansatz needs the exact estimator")

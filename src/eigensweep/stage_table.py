@@ -87,7 +87,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "optimize",
-        3,
+        4,
         "run_optimize",
         {"taper": "taper", "integrals": "integrals", "warm": "optimize"},
         ("stage",),

@@ -26,8 +26,19 @@ of ``qubit_hamiltonian`` / ``tapering`` (the sweep axis ``methods.mapping``):
   ``reference_bits`` (default: the Hamiltonian of the integrals under ``mapping`` and its
   Hartree-Fock bits, only allowed when the Hamiltonian has ``2 norb`` qubits).
 
-Gradient-based optimizers (``lbfgs``, ``bfgs``) need the exact estimator; ``adapt`` too
-(its operator selection uses exact gradients). ``initial_params`` (a warm start) is ignored by
+The quasi-Newton optimizers (``lbfgs``, ``bfgs``) need the exact estimator; ``adapt`` too
+(its operator selection uses exact gradients). ``adam`` and ``shot_adaptive_descent`` take
+adjoint gradients with exact energies and parameter-shift gradients with shots
+(:mod:`eigensweep.vqe.parameter_shift`: each shifted circuit is one estimate of the
+estimator, same grouping and allocation as an energy).
+
+Shot accounting: the estimator's :class:`~eigensweep.vqe.estimators.ShotLedger` counts every
+shot of the job (``energy``, ``calibration``, ``gradient``, ``selection`` of restarts,
+``final``): ``shots_total`` and ``shots_by_purpose`` of the result; the trace records the
+cumulative count (``trace_shots_cumulative``) and the exact energy at each traced point
+(``trace_energy_exact``, a simulator diagnostic that no optimizer reads). The optimizer option
+``max_shots`` is the job's budget: the final estimate's shots are set aside first, and no
+estimate is made that would pass the rest (``stop_reason`` ``shot_budget``). ``initial_params`` (a warm start) is ignored by
 ``adapt``, which always grows its operator list from HF (noted in ``message``). With
 ``shots``/``noisy`` the optimizer's final point is re-evaluated with fresh shots
 (``final_shots``, default ``shots``) and exactly; the reported ``energy`` is that fresh
@@ -39,7 +50,7 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, field, fields
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -49,6 +60,7 @@ from ..qubit.mapping import encode_state
 from ..qubit.mapping import reference_bits as mapped_reference_bits
 from .circuits import circuit_from_meta
 from .detspace import DetSpace, to_qubit_state
+from .estimators import ShotBudgetExhausted
 from .fermionic import FermionicAnsatz
 from .kupccgsd import KUpCCGSD
 from .methods import (
@@ -60,7 +72,8 @@ from .methods import (
     check_mapping,
     validate_method,
 )
-from .optimizers import minimize
+from .optimizers import STOCHASTIC_GRADIENT_METHODS, minimize
+from .parameter_shift import GradientEstimate, curvature_factor, parameter_shift_gradient
 from .reference import ExactReference, state_moments
 from .uccsd import UCCSD
 
@@ -86,7 +99,11 @@ __all__ = [
 class OptimizeResult:
     """Outcome of :func:`run_optimize` (energies in hartree).
 
-    ``trace_*`` arrays have one entry per objective evaluation. ``energy_exact`` is the exact
+    ``trace_*`` arrays have one entry per objective evaluation or gradient step
+    (``trace_energy`` nan for a gradient step that measured no energy; ``trace_energy_exact``
+    the exact energy at the traced point; ``trace_shots_cumulative`` the job's shots so far).
+    ``shots_total`` counts every shot of the job including the final estimate;
+    ``shots_by_purpose`` splits it (module docstring). ``energy_exact`` is the exact
     reference of the integrals (lowest energy with the requested N and total spin S,
     :func:`eigensweep.chem.exact.solve_sector`), ``overlap_exact`` the state's weight in its
     (possibly degenerate) ground space, carried to the ansatz's frame (determinant space,
@@ -127,8 +144,19 @@ class OptimizeResult:
     spin_square_target: float = math.nan
     spin_mismatch: bool = False
     stop_reason: str = ""
+    shots_total: int = 0
+    shots_by_purpose: dict = field(default_factory=dict)
+    trace_energy_exact: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    trace_shots_cumulative: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
 
-    _ARRAYS = ("params", "trace_energy", "trace_grad_norm", "trace_shots")
+    _ARRAYS = (
+        "params",
+        "trace_energy",
+        "trace_grad_norm",
+        "trace_shots",
+        "trace_energy_exact",
+        "trace_shots_cumulative",
+    )
 
     def to_store(self) -> tuple[dict[str, np.ndarray], dict]:
         """Split into (arrays, JSON-able metadata) for a stage file."""
@@ -299,16 +327,20 @@ class _Run:
     converged: bool
     message: str
     stop_reason: str = ""
+    budget_exhausted: bool = False
 
 
 #: Words of optimizer messages that mean an iteration or evaluation budget ran out.
 _BUDGET_WORDS = ("budget", "schedule", "limit", "maximum number", "max_iter", "maxiter")
 
 
-def _stop_reason(converged: bool, moved: bool, message: str) -> str:
+def _stop_reason(converged: bool, moved: bool, message: str, budget: bool = False) -> str:
     """``converged`` (the optimizer's own criterion was met), ``never_moved`` (a
-    derivative-free run returned its start), ``max_iterations`` (its budget ran out) or
-    ``stopped`` (anything else; see the message)."""
+    derivative-free run returned its start; ``shot_budget`` first: ``max_shots`` reached),
+    ``max_iterations`` (its iteration budget ran out) or ``stopped`` (anything else; see the
+    message)."""
+    if budget:
+        return "shot_budget"
     if not moved:
         return "never_moved"
     if converged:
@@ -425,6 +457,37 @@ def _fermionic_circuit(m: _Methods, built: _Built) -> bool:
     return name in ("uccsd", "kupccgsd") or (name == "adapt" and not built.jw_statevector)
 
 
+def _to_qubit_fn(built: _Built, space: DetSpace, mapping: str) -> Callable:
+    """ansatz state -> the statevector that shots and noise sample."""
+    if built.det_space:
+        return lambda psi: encode_state(to_qubit_state(psi, space.norb, space.nelec), mapping)
+    return lambda psi: psi
+
+
+def _measured_operator(est: Any, ans: Any, prob: _Problem, m: _Methods) -> PauliSum:
+    """The qubit operator the job measures (mapped from the integrals for an exact
+    determinant-space job)."""
+    if est is not None:
+        return est.ham
+    if getattr(ans, "hamiltonian", None) is not None:
+        return ans.hamiltonian
+    return prob.mapped_hamiltonian(m.mapping)
+
+
+def _set_budget(est: Any, m: _Methods) -> None:
+    """The job's ``max_shots`` less the final estimate's shots, set aside first."""
+    max_shots = m.optimizer.get("max_shots")
+    if max_shots is None:
+        return
+    final = est.cost(m.estimator["final_shots"] or m.estimator["shots"])
+    if final > max_shots:
+        raise ConfigError(
+            f"optimizer.max_shots: {max_shots} is below the {final} shots of the final "
+            "estimate; raise max_shots or lower estimator.final_shots"
+        )
+    est.ledger.budget = int(max_shots) - final
+
+
 def _qubit_state_fn(built: _Built, space: DetSpace, mapping: str) -> Callable:
     """theta -> the statevector that shots and noise sample."""
     ans = built.ansatz
@@ -462,20 +525,29 @@ def _make_sampler(
 
 
 class _Objective:
-    """Counts evaluations and reports progress for the three kinds of objective."""
+    """Counts evaluations and reports progress for the kinds of objective."""
 
-    def __init__(self, ans: Any, est: Any, qubit_state: Callable, progress) -> None:
+    def __init__(
+        self, ans: Any, est: Any, qubit_state: Callable, progress, to_qubit: Callable
+    ) -> None:
         self.ans, self.est, self.qubit_state, self.progress = ans, est, qubit_state, progress
+        self.to_qubit = to_qubit  # ansatz state -> the statevector the estimator samples
         self.count = 0
         self.last_shots = 0
+        self.purpose = "energy"
+        #: () -> non-identity 1-norm of the measured qubit operator (set by run_optimize)
+        self.operator_norm: Callable[[], float] = lambda: 1.0
 
     def _report(self, e: float) -> None:
         if self.progress is not None:
             self.progress(self.count, e)
         self.count += 1
 
+    def set_phase(self, name: str) -> None:
+        self.purpose = name
+
     def sampled(self, theta: np.ndarray) -> float:
-        estimate = self.est.estimate(self.qubit_state(theta))
+        estimate = self.est.estimate(self.qubit_state(theta), purpose=self.purpose)
         self.last_shots = estimate.shots
         self._report(estimate.value)
         return estimate.value
@@ -490,6 +562,41 @@ class _Objective:
         self._report(e)
         return e
 
+    def gradient(
+        self, theta: np.ndarray, shots: np.ndarray | int | None
+    ) -> tuple[float, GradientEstimate]:
+        """Adjoint gradient with exact energies; parameter-shift gradient from shots (``shots``
+        per shifted circuit, None = the estimator's), energy not measured (nan)."""
+        if self.est is None:
+            e, g = self.with_gradient(theta)
+            return e, GradientEstimate(np.asarray(g, float), np.zeros(len(g)), 0, 0)
+        est = self.est
+        n = est.shots if shots is None else shots
+
+        def energy(psi: np.ndarray, n_shots: int) -> tuple[float, float, int]:
+            r = est.estimate(self.to_qubit(psi), shots=n_shots, purpose="gradient")
+            return r.value, r.stderr, r.shots
+
+        ans = self.ans
+        units = ans.shift_units()
+        per = np.broadcast_to(np.asarray(n, dtype=np.int64), (ans.n_params,))
+        cost = sum(u.rule.n_terms * est.cost(int(per[u.param])) for u in units)
+        if cost > est.ledger.remaining:  # never start a gradient that cannot be finished
+            raise ShotBudgetExhausted(
+                f"shot budget of {est.ledger.budget} reached ({est.ledger.total} spent, the "
+                f"next gradient needs {cost})"
+            )
+        grad = parameter_shift_gradient(
+            units, ans.angles(theta), ans.n_params, ans.state_at_angles, energy, n
+        )
+        self._report(math.nan)
+        return math.nan, grad
+
+    def monitor(self, theta: np.ndarray) -> dict:
+        """Trace fields: exact energy at the point (diagnostic) and the job's shots so far."""
+        total = self.est.ledger.total if self.est is not None else 0
+        return {"energy_exact": float(self.ans.energy(theta)), "shots_cumulative": int(total)}
+
 
 def _start_point(ans: Any, initial_params: np.ndarray | None) -> np.ndarray:
     x0 = ans.initial_params() if initial_params is None else initial_params
@@ -502,20 +609,29 @@ def _start_point(ans: Any, initial_params: np.ndarray | None) -> np.ndarray:
 
 
 def _minimize_once(obj: _Objective, start: np.ndarray, method: str, options: dict, seed: int):
+    monitor = obj.monitor if obj.est is not None else None  # exact runs trace exact energies
+    kw: dict[str, Any] = {"options": options, "seed": seed, "monitor": monitor}
+    if method in STOCHASTIC_GRADIENT_METHODS:
+        lipschitz = None
+        if method == "shot_adaptive_descent" and options.get("lipschitz") is None:
+            # 1-norm bound times the largest per-parameter frequency^2
+            factor = curvature_factor(obj.ans.shift_units(), obj.ans.n_params)
+            lipschitz = obj.operator_norm() * factor
+        return minimize(
+            obj.value, start, method=method, gradient=obj.gradient, lipschitz=lipschitz, **kw
+        )
     if obj.est is not None:
         return minimize(
             obj.sampled,
             start,
             method=method,
-            options=options,
-            seed=seed,
             shots=lambda: obj.last_shots,
+            phase=obj.set_phase,
+            **kw,
         )
     if method in GRADIENT_METHODS:
-        return minimize(
-            obj.with_gradient, start, method=method, options=options, seed=seed, grad=True
-        )
-    return minimize(obj.value, start, method=method, options=options, seed=seed)
+        return minimize(obj.with_gradient, start, method=method, grad=True, **kw)
+    return minimize(obj.value, start, method=method, **kw)
 
 
 def _optimize_with_restarts(o_cfg: dict, obj: _Objective, x0: np.ndarray, seed: int) -> _Run:
@@ -523,24 +639,33 @@ def _optimize_with_restarts(o_cfg: dict, obj: _Objective, x0: np.ndarray, seed: 
     (seed ``seed + r``); the best run wins (lowest exact energy, or lowest fresh-shot
     estimate with shots)."""
     method = o_cfg["name"]
-    options = {k: v for k, v in o_cfg.items() if k not in ("name", "restarts", "restart_scale")}
+    skip = ("name", "restarts", "restart_scale", "max_shots")
+    options = {k: v for k, v in o_cfg.items() if k not in skip}
     restarts = int(o_cfg.get("restarts", 0))
     scale = float(o_cfg.get("restart_scale", 0.1))
     best = None
     trace: list[dict] = []
+    out_of_shots = False
     for r in range(restarts + 1):
         start = x0
         if r:
             start = x0 + scale * np.random.default_rng(seed + r).standard_normal(x0.size)
         res = _minimize_once(obj, start, method, options, seed + r)
+        out_of_shots = out_of_shots or res.budget_exhausted
         x_end = np.asarray(res.x, dtype=float)
+        score = math.inf if best is not None else -math.inf
         if obj.est is not None and restarts:
-            score = obj.est.estimate(obj.qubit_state(x_end)).value
-        else:
+            try:
+                score = obj.est.estimate(obj.qubit_state(x_end), purpose="selection").value
+            except ShotBudgetExhausted:
+                out_of_shots = True
+        elif obj.est is None:
             score = float(obj.ans.energy(x_end))
         trace += list(res.trace)
         if best is None or score < best[0]:
             best = (score, res, start)
+        if out_of_shots:
+            break
     _, res, start = best
     params = np.asarray(res.x, dtype=float)
     message = res.message + (f"; best of {restarts + 1} starts" if restarts else "")
@@ -551,8 +676,10 @@ def _optimize_with_restarts(o_cfg: dict, obj: _Objective, x0: np.ndarray, seed: 
     if not moved:  # a derivative-free run that returns its start has not optimized anything
         converged = False
         message += "; the parameters never moved from their start"
-    reason = _stop_reason(converged, moved, message)
-    return _Run(params, trace, int(res.n_iterations), converged, message, reason)
+    if out_of_shots and not res.budget_exhausted:
+        message += "; the shot budget ended the restarts"
+    reason = _stop_reason(converged, moved, message, out_of_shots)
+    return _Run(params, trace, int(res.n_iterations), converged, message, reason, out_of_shots)
 
 
 def _adapt_run(built: _Built, initial_params: np.ndarray | None) -> _Run:
@@ -572,7 +699,9 @@ def _final_energy(
     if est is None:
         return e_exact_params, 0.0, e_exact_params
     final_shots = m.estimator["final_shots"] or m.estimator["shots"]
-    final: Estimate = est.estimate(qubit_state(params), shots=final_shots)
+    final: Estimate = est.estimate(
+        qubit_state(params), shots=final_shots, purpose="final", reserved=True
+    )
     return final.value, final.stderr, e_exact_params
 
 
@@ -686,11 +815,15 @@ def run_optimize(
     costs = ans.circuit_costs(m.mapping) if built.det_space else ans.circuit_costs()
 
     qubit_state = _qubit_state_fn(built, space, m.mapping)
+    to_qubit = _to_qubit_fn(built, space, m.mapping)
     est = _make_sampler(m, built, prob, tapering, qubit_hamiltonian, seed, costs["cnot_count"])
+    if est is not None:
+        _set_budget(est, m)
     if built.adapt is not None:
         run = _adapt_run(built, initial_params)
     else:
-        obj = _Objective(ans, est, qubit_state, progress)
+        obj = _Objective(ans, est, qubit_state, progress, to_qubit)
+        obj.operator_norm = lambda: _measured_operator(est, ans, prob, m).one_norm_nonidentity
         run = _optimize_with_restarts(m.optimizer, obj, _start_point(ans, initial_params), seed)
     energy, stderr, e_exact_params = _final_energy(m, built, est, qubit_state, run.params)
     report = _state_report(m, built, space, exact, tapering, run.params)
@@ -713,6 +846,15 @@ def run_optimize(
         trace_energy=np.array([t["energy"] for t in run.trace], dtype=float),
         trace_grad_norm=np.array([t["grad_norm"] for t in run.trace], dtype=float),
         trace_shots=np.array([t["shots"] for t in run.trace], dtype=np.int64),
+        trace_energy_exact=np.array(
+            [t.get("energy_exact", t["energy"] if est is None else math.nan) for t in run.trace],
+            dtype=float,
+        ),
+        trace_shots_cumulative=np.array(
+            [t.get("shots_cumulative", 0) for t in run.trace], dtype=np.int64
+        ),
+        shots_total=int(est.ledger.total) if est is not None else 0,
+        shots_by_purpose=dict(est.ledger.by_purpose) if est is not None else {},
         n_evaluations=len(run.trace),
         n_iterations=int(run.n_iterations),
         converged=bool(run.converged),

@@ -20,6 +20,13 @@
     state-dependent), and (ii) independent readout bit flips, ``p01`` = P(read 1 | 0) and
     ``p10`` = P(read 0 | 1) (both default to ``readout_error``), applied to the outcome
     distribution before sampling. No error mitigation is applied.
+
+Shot accounting: every estimator carries a :class:`ShotLedger` that adds up the shots of
+each estimate by purpose (``energy``, ``gradient``, ``calibration``, ``selection`` of
+restarts, ``final`` re-evaluation). With a budget (the optimizer option ``max_shots``) an
+estimate whose shots (after allocation, :meth:`ShotEstimator.cost`) would take the total
+past the budget is refused *before* sampling with :class:`ShotBudgetExhausted`, so the total
+never exceeds the budget; the optimizers stop cleanly on it.
 """
 
 from __future__ import annotations
@@ -43,7 +50,9 @@ __all__ = [
     "Estimator",
     "MeasurementPlan",
     "NoisyEstimator",
+    "ShotBudgetExhausted",
     "ShotEstimator",
+    "ShotLedger",
     "make_estimator",
     "validate_estimator",
 ]
@@ -57,6 +66,39 @@ class Estimate:
     stderr: float
     shots: int
 
+
+class ShotBudgetExhausted(Exception):
+    """An estimate would take the job's shots past its budget (nothing was sampled)."""
+
+
+class ShotLedger:
+    """Shots spent by purpose, with an optional budget (module docstring)."""
+
+    def __init__(self, budget: int | None = None) -> None:
+        self.budget = None if budget is None else int(budget)
+        self.total = 0
+        self.by_purpose: dict[str, int] = {}
+
+    @property
+    def remaining(self) -> float:
+        return math.inf if self.budget is None else self.budget - self.total
+
+    def charge(self, shots: int, purpose: str, *, reserved: bool = False) -> None:
+        """Book ``shots``; raise :class:`ShotBudgetExhausted` first if they do not fit
+        (``reserved``: shots set aside from the budget beforehand, never refused)."""
+        shots = int(shots)
+        if not reserved and shots > self.remaining:
+            raise ShotBudgetExhausted(
+                f"shot budget of {self.budget} reached ({self.total} spent, next estimate "
+                f"needs {shots})"
+            )
+        self.total += shots
+        self.by_purpose[purpose] = self.by_purpose.get(purpose, 0) + shots
+
+
+#: Largest ``n_groups * 2**n`` for which the estimators batch all groups (about 64 MB of
+#: float64 per table); above it they loop over groups.
+TABLE_MAX_ENTRIES = 1 << 23
 
 _H = GATE_MATRICES["h"]
 _HSDG = GATE_MATRICES["h"] @ GATE_MATRICES["sdg"]  # sdg, then h
@@ -83,6 +125,8 @@ class MeasurementPlan:
             self.zmasks.append(bits_to_mask(letters[g] != 0))
             self.coeffs.append(ham.coeffs[g])
         self.weights = np.array([np.abs(c).sum() for c in self.coeffs])
+        self._bases_cache: np.ndarray | None = None
+        self._table: np.ndarray | None = None
 
     @property
     def n_groups(self) -> int:
@@ -113,6 +157,38 @@ class MeasurementPlan:
         p = np.abs(phi) ** 2
         return p / p.sum()
 
+    def all_probabilities(self, psi: np.ndarray) -> np.ndarray:
+        """Outcome distributions of every group, ``(n_groups, 2**n)``: one batched basis change
+        per qubit and letter instead of one per group (same numbers as :meth:`probabilities`)."""
+        phi = np.broadcast_to(psi, (self.n_groups, psi.size)).copy()
+        bases = self._bases_matrix
+        for q in range(self.n_qubits):
+            for letter, mat in ((1, _H), (3, _HSDG)):
+                rows = np.flatnonzero(bases[:, q] == letter)
+                if rows.size:
+                    phi[rows] = apply_matrix_1q(phi[rows], q, mat)
+        p = np.abs(phi) ** 2
+        return p / p.sum(axis=1, keepdims=True)
+
+    @property
+    def _bases_matrix(self) -> np.ndarray:
+        if self._bases_cache is None:
+            self._bases_cache = (
+                np.array(self.bases, dtype=np.int8).reshape(self.n_groups, self.n_qubits)
+                if self.n_groups
+                else np.zeros((0, self.n_qubits), dtype=np.int8)
+            )
+        return self._bases_cache
+
+    def value_table(self) -> np.ndarray | None:
+        """``y_g(b)`` for every group and outcome, ``(n_groups, 2**n)``; None above
+        :data:`TABLE_MAX_ENTRIES` entries (then values are formed per sampled outcome)."""
+        if self._table is None and self.n_groups * (1 << self.n_qubits) <= TABLE_MAX_ENTRIES:
+            b = np.arange(1 << self.n_qubits, dtype=np.int64)
+            self._table = np.array([self.group_values(g, b) for g in range(self.n_groups)])
+            self._table = self._table.reshape(self.n_groups, 1 << self.n_qubits)
+        return self._table
+
     def group_values(self, g: int, outcomes: np.ndarray) -> np.ndarray:
         """``y(b) = sum_t c_t (-1)^{popcount(b & zmask_t)}`` for the given outcomes ``b``."""
         par = np.bitwise_count(outcomes[None, :] & self.zmasks[g][:, None]) & 1
@@ -127,8 +203,20 @@ class Estimator:
 
     def __init__(self, ham: PauliSum | None = None) -> None:
         self.ham = ham
+        self.ledger = ShotLedger()
 
-    def estimate(self, psi: np.ndarray) -> Estimate:
+    def cost(self, shots: int | None = None) -> int:
+        """Shots an estimate with ``shots`` requested really uses (0 for exact)."""
+        return 0
+
+    def estimate(
+        self,
+        psi: np.ndarray,
+        shots: int | None = None,
+        purpose: str = "energy",
+        *,
+        reserved: bool = False,
+    ) -> Estimate:
         if self.ham is None:
             raise RuntimeError("exact estimator has no qubit Hamiltonian")
         return Estimate(sv_expectation(psi, self.ham), 0.0, 0)
@@ -148,8 +236,24 @@ class ShotEstimator(Estimator):
     def _distribution(self, psi: np.ndarray, g: int) -> np.ndarray:
         return self.plan.probabilities(psi, g)
 
-    def estimate(self, psi: np.ndarray, shots: int | None = None) -> Estimate:
+    def cost(self, shots: int | None = None) -> int:
+        """Shots after allocation (at least 2 per group) for ``shots`` requested."""
+        return int(self.plan.allocate(self.shots if shots is None else int(shots)).sum())
+
+    def estimate(
+        self,
+        psi: np.ndarray,
+        shots: int | None = None,
+        purpose: str = "energy",
+        *,
+        reserved: bool = False,
+    ) -> Estimate:
+        """Sample ``psi`` with ``shots`` (default the estimator's), booked under ``purpose``."""
         alloc = self.plan.allocate(self.shots if shots is None else int(shots))
+        self.ledger.charge(int(alloc.sum()), purpose, reserved=reserved)
+        table = self.plan.value_table()
+        if table is not None and self.plan.n_groups:
+            return self._estimate_batched(psi, alloc, table)
         value = self.plan.constant
         var = 0.0
         for g in range(self.plan.n_groups):
@@ -164,6 +268,20 @@ class ShotEstimator(Estimator):
             value += mean
             var += s2 / n_g
         return Estimate(float(value), math.sqrt(var), int(alloc.sum()))
+
+    def _distributions(self, psi: np.ndarray) -> np.ndarray:
+        return self.plan.all_probabilities(psi)
+
+    def _estimate_batched(self, psi: np.ndarray, alloc: np.ndarray, table: np.ndarray) -> Estimate:
+        """All groups at once: the same draws as the per-group loop (one multinomial per
+        group, in group order), the values read from :meth:`MeasurementPlan.value_table`."""
+        p = self._distributions(psi)
+        counts = self.rng.multinomial(alloc, p).astype(float)
+        n_g = alloc.astype(float)
+        means = np.einsum("gb,gb->g", counts, table) / n_g
+        s2 = np.einsum("gb,gb->g", counts, (table - means[:, None]) ** 2) / (n_g - 1.0)
+        value = self.plan.constant + float(means.sum())
+        return Estimate(value, math.sqrt(float((s2 / n_g).sum())), int(alloc.sum()))
 
 
 class NoisyEstimator(ShotEstimator):
@@ -187,16 +305,22 @@ class NoisyEstimator(ShotEstimator):
         self.p01 = float(p01)
         self.p10 = float(p10)
 
+    def _distributions(self, psi: np.ndarray) -> np.ndarray:
+        return self._noisy(super()._distributions(psi))
+
     def _distribution(self, psi: np.ndarray, g: int) -> np.ndarray:
-        p = super()._distribution(psi, g)
+        return self._noisy(super()._distribution(psi, g))
+
+    def _noisy(self, p: np.ndarray) -> np.ndarray:
+        """Global depolarizing mix and readout flips of outcome distributions (last axis)."""
         n = self.plan.n_qubits
-        p = self.fidelity * p + (1.0 - self.fidelity) / p.size
+        p = self.fidelity * p + (1.0 - self.fidelity) / p.shape[-1]
         if self.p01 or self.p10:
             conf = np.array([[1.0 - self.p01, self.p10], [self.p01, 1.0 - self.p10]])
             for q in range(n):
                 p = apply_matrix_1q(p, q, conf)
         p = np.clip(p, 0.0, None)
-        return p / p.sum()
+        return p / p.sum(axis=-1, keepdims=True)
 
 
 def make_estimator(

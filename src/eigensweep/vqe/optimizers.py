@@ -22,7 +22,12 @@ Methods (``method=``):
     average, from ``gain_estimates`` gradient estimates at ``x0``. The returned point is
     the mean of the last ``iterate_average`` iterates (iterate averaging; 1 = last iterate).
     SPSA has no convergence test: ``converged`` is always False (the gain schedule ran to its
-    end; the optimize result's ``stop_reason`` says ``max_iterations``).
+    end; the optimize result's ``stop_reason`` says ``max_iterations``). Two safeguards of
+    Spall (1998, sec. III): ``resamplings`` gradient estimates are averaged per iteration,
+    and with ``blocking`` a step is rejected when the energy at the new point exceeds the
+    energy of the current point by more than ``blocking_tolerance`` (default twice the
+    spread of the calibration energies at the start, i.e. about two standard errors; 0 with
+    exact energies); blocking costs one more evaluation per iteration.
 ``rbf_surrogate``
     Stochastic radial-basis-function surrogate search (Gutmann, J. Global Optim. 19, 201
     (2001); Regis & Shoemaker, INFORMS J. Comput. 19, 497 (2007)): a cubic RBF with linear
@@ -39,6 +44,35 @@ Methods (``method=``):
     ``sigma < tol`` or after ``maxiter`` evaluations. With ``smoothing > 0`` the returned
     point is the evaluated point of lowest fitted value.
 
+``adam``
+    Gradient descent with Adam moments (Kingma & Ba, ICLR 2015, arXiv:1412.6980):
+    ``m = beta1 m + (1 - beta1) g``, ``v = beta2 v + (1 - beta2) g^2``, step
+    ``lr m_hat / (sqrt(v_hat) + eps)`` with bias-corrected ``m_hat``, ``v_hat``. The gradient is
+    the adjoint one with exact energies and the parameter-shift one with shots
+    (:mod:`eigensweep.vqe.parameter_shift`, ``gradient_shots`` per shifted circuit). Stops
+    (``converged``) when the gradient max-norm falls below ``tol`` (exact energies only; with
+    shots the estimate never is that small reliably, so the run ends at ``maxiter``).
+``shot_adaptive_descent``
+    Gradient descent with individual coupled adaptive number of shots, iCANS1 of Kübler,
+    Arrasmith, Cincio, Coles, Quantum 4, 263 (2020), Algorithm 1: step ``lr g`` with
+    ``lr = 1/L`` by default (``L`` = ``lipschitz``, default the Hamiltonian's non-identity
+    1-norm, the bound used there for Pauli rotations, times the square of the largest
+    frequency sum of one parameter, :func:`~eigensweep.vqe.parameter_shift.curvature_factor`:
+    4 for an excitation angle); after each step the shots of component ``i`` become
+    ``s_i = ceil(2 L lr xi_i / ((2 - L lr) (chi_i^2 + b mu^k)))`` with ``chi``, ``xi`` the bias-corrected
+    exponential averages (factor ``mu``) of the gradient and of its single-shot variance,
+    clipped to ``[min_shots, s_j]`` where ``j`` maximises the expected gain per shot
+    ``gamma_i = ((lr - L lr^2/2) chi_i^2 - L lr^2 xi_i/(2 s_i)) / s_i``. Shots are per shifted
+    circuit of the component (the estimator spreads them over its measurement groups). With
+    exact energies it is plain gradient descent with step ``lr``.
+``max_shots`` (every method)
+    Shot budget of the whole optimize job (energies, gradients, calibration, restarts and the
+    final fresh estimate, which is set aside first). An estimate that would pass it is not
+    made (:class:`~eigensweep.vqe.estimators.ShotBudgetExhausted`) and the method returns at
+    once: the current iterate for SPSA, Adam and shot-adaptive descent, the best point so far
+    for the SciPy and surrogate methods; ``message`` says so and ``stop_reason`` is
+    ``shot_budget``. Ignored with exact energies.
+
 Every method is deterministic for a given ``seed``. Unknown option keys raise
 :class:`~eigensweep.errors.ConfigError`.
 """
@@ -53,11 +87,16 @@ from typing import Any
 import numpy as np
 import scipy.optimize
 
+from ..errors import ConfigError
+from .estimators import ShotBudgetExhausted
 from .methods import GRADIENT_METHODS, OPTIMIZER_DEFAULTS, validate_options
+from .parameter_shift import GradientEstimate
 
 __all__ = [
     "GRADIENT_METHODS",
     "OPTIMIZER_DEFAULTS",
+    "STOCHASTIC_GRADIENT_METHODS",
+    "GradientFn",
     "OptimizerResult",
     "minimize",
     "validate_options",
@@ -68,8 +107,10 @@ __all__ = [
 class OptimizerResult:
     """Outcome of :func:`minimize`.
 
-    ``trace`` has one dict per objective evaluation: ``energy``, ``grad_norm`` (nan when no
-    gradient was computed), ``evaluation`` (0-based index) and ``shots``.
+    ``trace`` has one dict per objective evaluation or gradient step: ``energy`` (nan for a
+    gradient step that measured no energy), ``grad_norm`` (nan when no gradient was
+    computed), ``evaluation`` (0-based index), ``shots`` (of that record) and whatever the
+    ``monitor`` of :func:`minimize` adds. ``budget_exhausted`` is true when ``max_shots`` stopped it.
     """
 
     x: np.ndarray
@@ -80,6 +121,14 @@ class OptimizerResult:
     converged: bool
     message: str
     trace: list[dict] = field(default_factory=list)
+    budget_exhausted: bool = False
+
+
+#: Methods that need a gradient (adjoint with exact energies, parameter shift with shots).
+STOCHASTIC_GRADIENT_METHODS = ("adam", "shot_adaptive_descent")
+
+GradientFn = Callable[[np.ndarray, "np.ndarray | int | None"], tuple[float, GradientEstimate]]
+"""``(x, shots per parameter or None = default) -> (energy or nan, gradient estimate)``."""
 
 
 class _Recorder:
@@ -90,26 +139,34 @@ class _Recorder:
         fun: Callable,
         grad: Callable | bool | None,
         shots: int | Callable[[], int],
+        monitor: Callable[[np.ndarray], dict] | None = None,
     ) -> None:
         self.fun = fun
         self.grad = grad
         self.shots = shots
+        self.monitor = monitor
         self.trace: list[dict] = []
         self.n_grad = 0
         self.best_x: np.ndarray | None = None
         self.best_f = math.inf
+        self.iterate: np.ndarray | None = None  # current point of iterative methods
 
-    def _record(self, x: np.ndarray, f: float, g: np.ndarray | None) -> None:
-        if not math.isfinite(f):
+    def _record(
+        self, x: np.ndarray, f: float, g: np.ndarray | None, shots: int | None = None
+    ) -> None:
+        if not (math.isfinite(f) or (math.isnan(f) and shots is not None)):
             raise FloatingPointError(f"objective returned {f}")
-        self.trace.append(
-            {
-                "energy": float(f),
-                "grad_norm": float(np.linalg.norm(g)) if g is not None else math.nan,
-                "evaluation": len(self.trace),
-                "shots": int(self.shots() if callable(self.shots) else self.shots),
-            }
-        )
+        if shots is None:
+            shots = int(self.shots() if callable(self.shots) else self.shots)
+        rec = {
+            "energy": float(f),
+            "grad_norm": float(np.linalg.norm(g)) if g is not None else math.nan,
+            "evaluation": len(self.trace),
+            "shots": int(shots),
+        }
+        if self.monitor is not None:
+            rec.update(self.monitor(x))
+        self.trace.append(rec)
         if f < self.best_f:
             self.best_f = float(f)
             self.best_x = np.array(x, dtype=float, copy=True)
@@ -137,6 +194,16 @@ class _Recorder:
         self._record(x, f, g)
         return f, g
 
+    def gradient_step(
+        self, gradient: GradientFn, x: np.ndarray, shots: np.ndarray | int | None = None
+    ) -> GradientEstimate:
+        """One gradient estimate at ``x``, recorded as one trace entry."""
+        x = np.asarray(x, dtype=float)
+        f, est = gradient(x, shots)
+        self.n_grad += 1
+        self._record(x, float(f), est.gradient, shots=est.shots)
+        return est
+
     @property
     def n_eval(self) -> int:
         return len(self.trace)
@@ -151,6 +218,10 @@ def minimize(
     seed: int = 0,
     grad: Callable[[np.ndarray], np.ndarray] | bool | None = None,
     shots: int | Callable[[], int] = 0,
+    gradient: GradientFn | None = None,
+    monitor: Callable[[np.ndarray], dict] | None = None,
+    lipschitz: float | None = None,
+    phase: Callable[[str], None] | None = None,
 ) -> OptimizerResult:
     """Minimise ``fun`` from ``x0`` with ``method`` (module docstring).
 
@@ -164,23 +235,51 @@ def minimize(
             ``None`` (gradient methods then use SciPy finite differences).
         shots: shots per evaluation recorded in the trace (0 for exact objectives), or a
             callable returning the shots of the evaluation just made.
+        gradient: :data:`GradientFn` for ``adam`` and ``shot_adaptive_descent``.
+        monitor: ``x -> dict`` of extra trace fields at each recorded point.
+        lipschitz: gradient Lipschitz bound for ``shot_adaptive_descent`` when its option
+            ``lipschitz`` is null.
+        phase: told ``"calibration"`` while SPSA calibrates its gains and ``"energy"`` after
+            (for shot accounting by purpose).
     """
     opts = validate_options(method, options)
+    opts.pop("max_shots", None)  # enforced by the estimator's ledger
     x0 = np.array(x0, dtype=float, copy=True).reshape(-1)
-    rec = _Recorder(fun, grad, shots)
+    rec = _Recorder(fun, grad, shots, monitor)
+    rec.phase = phase if phase is not None else (lambda _name: None)
     if x0.size == 0:
         f = rec.value(x0)
         return OptimizerResult(x0, f, 1, 0, 0, True, "no parameters", rec.trace)
-    if method in ("lbfgs", "bfgs"):
-        res = _scipy_gradient(rec, x0, method, opts)
-    elif method == "cobyla":
-        res = _scipy_cobyla(rec, x0, opts)
-    elif method == "nelder_mead":
-        res = _scipy_nelder_mead(rec, x0, opts)
-    elif method == "spsa":
-        res = _spsa(rec, x0, opts, seed)
-    else:
-        res = _rbf_surrogate(rec, x0, opts, seed)
+    if method in STOCHASTIC_GRADIENT_METHODS and gradient is None:
+        if grad is None:
+            raise ValueError(f"optimizer {method!r} needs a gradient function")
+        gradient = _exact_gradient_fn(fun, grad)
+    try:
+        if method in ("lbfgs", "bfgs"):
+            res = _scipy_gradient(rec, x0, method, opts)
+        elif method == "cobyla":
+            res = _scipy_cobyla(rec, x0, opts)
+        elif method == "nelder_mead":
+            res = _scipy_nelder_mead(rec, x0, opts)
+        elif method == "spsa":
+            res = _spsa(rec, x0, opts, seed)
+        elif method == "adam":
+            res = _adam(rec, x0, opts, gradient)
+        elif method == "shot_adaptive_descent":
+            res = _shot_adaptive(rec, x0, opts, gradient, lipschitz)
+        else:
+            res = _rbf_surrogate(rec, x0, opts, seed)
+    except ShotBudgetExhausted as exc:
+        if rec.iterate is not None:
+            x = rec.iterate.copy()
+        elif rec.best_x is not None:
+            x = rec.best_x.copy()
+        else:
+            x = x0.copy()
+        n_it = sum(1 for t in rec.trace if t.get("step"))
+        res = OptimizerResult(
+            x, rec.best_f, 0, 0, n_it, False, f"stopped: {exc}", budget_exhausted=True
+        )
     res.trace = rec.trace
     res.n_evaluations = rec.n_eval
     res.n_gradient_evaluations = rec.n_grad
@@ -263,30 +362,57 @@ def _spsa(rec: _Recorder, x0: np.ndarray, opts: dict, seed: int) -> OptimizerRes
     maxiter = opts["maxiter"]
     alpha, gamma, c = opts["alpha"], opts["gamma"], opts["c"]
     big_a = opts["A"] if opts["A"] is not None else 0.1 * maxiter
+    resamplings = opts["resamplings"]
     x = x0.copy()
+    rec.iterate = x.copy()
 
-    def grad_estimate(xk: np.ndarray, ck: float) -> np.ndarray:
+    def grad_estimate(xk: np.ndarray, ck: float) -> tuple[np.ndarray, list[float]]:
         delta = rng.choice(np.array([-1.0, 1.0]), size=d)
         fp = rec.value(xk + ck * delta)
         fm = rec.value(xk - ck * delta)
-        return (fp - fm) / (2.0 * ck) * delta
+        return (fp - fm) / (2.0 * ck) * delta, [fp, fm]
 
     a = opts["a"]
-    if a is None:
-        mags = [np.mean(np.abs(grad_estimate(x, c))) for _ in range(opts["gain_estimates"])]
-        mag = float(np.mean(mags))
-        a = opts["first_step"] * (big_a + 1.0) ** alpha / mag if mag > 0 else opts["first_step"]
+    spread: list[float] = []
+    if a is None or (opts["blocking"] and opts["blocking_tolerance"] is None):
+        rec.phase("calibration")
+        mags = []
+        for _ in range(opts["gain_estimates"]):
+            g, fs = grad_estimate(x, c)
+            mags.append(np.mean(np.abs(g)))
+            spread += fs
+        if a is None:
+            mag = float(np.mean(mags))
+            a = opts["first_step"] * (big_a + 1.0) ** alpha / mag if mag > 0 else opts["first_step"]
+        rec.phase("energy")
+    tolerance = opts["blocking_tolerance"]
+    if opts["blocking"] and tolerance is None:
+        tolerance = 2.0 * float(np.std(spread, ddof=1)) if len(spread) > 1 else 0.0
+    f_current = rec.value(x) if opts["blocking"] else math.nan
     history: list[np.ndarray] = []
     keep = opts["iterate_average"]
+    n_blocked = 0
     for k in range(maxiter):
         ak = a / (k + 1.0 + big_a) ** alpha
         ck = c / (k + 1.0) ** gamma
-        x = x - ak * grad_estimate(x, ck)
+        g = np.mean([grad_estimate(x, ck)[0] for _ in range(resamplings)], axis=0)
+        x_new = x - ak * g
+        if opts["blocking"]:
+            f_new = rec.value(x_new)
+            if f_new > f_current + tolerance:
+                n_blocked += 1
+            else:
+                x, f_current = x_new, f_new
+        else:
+            x = x_new
         history.append(x.copy())
         if len(history) > keep:
             history.pop(0)
+        rec.iterate = np.mean(history, axis=0)
+        rec.trace[-1]["step"] = k + 1
     x_final = np.mean(history, axis=0)
     f_final = rec.value(x_final)
+    blocked = f", {n_blocked} steps blocked" if opts["blocking"] else ""
     return OptimizerResult(
         x_final,
         f_final,
@@ -294,7 +420,129 @@ def _spsa(rec: _Recorder, x0: np.ndarray, opts: dict, seed: int) -> OptimizerRes
         0,
         maxiter,
         False,  # SPSA has no convergence test of its own
-        f"SPSA gain schedule completed ({maxiter} iterations, a={a:.4g}); no convergence test",
+        f"SPSA gain schedule completed ({maxiter} iterations, a={a:.4g}{blocked}); "
+        "no convergence test",
+    )
+
+
+# ---------------------------------------------------------------------------- gradient descent
+def _exact_gradient_fn(fun: Callable, grad: Callable | bool) -> GradientFn:
+    """A :data:`GradientFn` from an exact ``(value, gradient)`` objective."""
+
+    def gradient(x: np.ndarray, _shots: np.ndarray | int | None) -> tuple[float, GradientEstimate]:
+        if grad is True:
+            f, g = fun(x)
+        else:
+            f, g = fun(x), grad(x)
+        g = np.asarray(g, dtype=float)
+        return float(f), GradientEstimate(g, np.zeros_like(g), 0, 0)
+
+    return gradient
+
+
+def _gradient_shots(opts: dict) -> int | None:
+    return opts.get("gradient_shots")
+
+
+def _adam(rec: _Recorder, x0: np.ndarray, opts: dict, gradient: GradientFn) -> OptimizerResult:
+    lr, b1, b2, eps = opts["lr"], opts["beta1"], opts["beta2"], opts["eps"]
+    x = x0.copy()
+    rec.iterate = x.copy()
+    m = np.zeros_like(x)
+    v = np.zeros_like(x)
+    shots = _gradient_shots(opts)
+    for k in range(1, opts["maxiter"] + 1):
+        est = rec.gradient_step(gradient, x, shots)
+        g = est.gradient
+        if est.shots == 0 and float(np.max(np.abs(g))) < opts["tol"]:
+            return OptimizerResult(
+                x,
+                rec.trace[-1]["energy"],
+                0,
+                0,
+                k - 1,
+                True,
+                f"gradient max-norm below tol={opts['tol']:g}",
+            )
+        m = b1 * m + (1.0 - b1) * g
+        v = b2 * v + (1.0 - b2) * g * g
+        m_hat = m / (1.0 - b1**k)
+        v_hat = v / (1.0 - b2**k)
+        x = x - lr * m_hat / (np.sqrt(v_hat) + eps)
+        rec.iterate = x.copy()
+        rec.trace[-1]["step"] = k
+    return OptimizerResult(
+        x,
+        rec.trace[-1]["energy"],
+        0,
+        0,
+        opts["maxiter"],
+        False,
+        f"iteration limit of {opts['maxiter']} reached",
+    )
+
+
+def _shot_adaptive(
+    rec: _Recorder, x0: np.ndarray, opts: dict, gradient: GradientFn, lipschitz: float | None
+) -> OptimizerResult:
+    big_l = opts["lipschitz"] if opts["lipschitz"] is not None else lipschitz
+    if big_l is None or not big_l > 0:
+        big_l = 1.0
+    lr = opts["lr"] if opts["lr"] is not None else 1.0 / big_l
+    if not lr * big_l < 2.0:
+        raise ConfigError(
+            f"optimizer.lr: lr x lipschitz must be below 2 for shot_adaptive_descent, got "
+            f"{lr * big_l:g}; lower lr or leave it null"
+        )
+    mu, b, s_min = opts["mu"], opts["b"], opts["min_shots"]
+    d = x0.size
+    x = x0.copy()
+    rec.iterate = x.copy()
+    s = np.full(d, s_min, dtype=np.int64)
+    chi = np.zeros(d)
+    xi = np.zeros(d)
+    for k in range(opts["maxiter"]):
+        est = rec.gradient_step(gradient, x, s)
+        g = est.gradient
+        if est.shots == 0 and float(np.max(np.abs(g))) < opts["tol"]:
+            return OptimizerResult(
+                x,
+                rec.trace[-1]["energy"],
+                0,
+                0,
+                k,
+                True,
+                f"gradient max-norm below tol={opts['tol']:g}",
+            )
+        single_shot_var = est.variance * s  # variance of one shot per shifted circuit
+        xi = mu * xi + (1.0 - mu) * single_shot_var
+        chi = mu * chi + (1.0 - mu) * g
+        xi_h = xi / (1.0 - mu ** (k + 1))
+        chi_h = chi / (1.0 - mu ** (k + 1))
+        x = x - lr * g
+        rec.iterate = x.copy()
+        rec.trace[-1]["step"] = k + 1
+        if est.shots == 0:
+            continue
+        s_new = np.ceil(2.0 * big_l * lr * xi_h / ((2.0 - big_l * lr) * (chi_h**2 + b * mu**k)))
+        s_new = np.clip(
+            np.nan_to_num(s_new, nan=s_min, posinf=opts["max_component_shots"]),
+            s_min,
+            opts["max_component_shots"],
+        )
+        gain = (
+            (lr - big_l * lr**2 / 2.0) * chi_h**2 - big_l * lr**2 * xi_h / (2.0 * s_new)
+        ) / s_new
+        s_cap = s_new[int(np.argmax(gain))]
+        s = np.clip(s_new, s_min, max(s_cap, s_min)).astype(np.int64)
+    return OptimizerResult(
+        x,
+        rec.trace[-1]["energy"],
+        0,
+        0,
+        opts["maxiter"],
+        False,
+        f"iteration limit of {opts['maxiter']} reached (lr={lr:.4g}, L={big_l:.4g})",
     )
 
 
