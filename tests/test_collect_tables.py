@@ -94,10 +94,10 @@ def test_shot_noise_below_exact_is_not_flagged(shot_study):
 
 def test_shots_and_iterations_are_reported(shot_study):
     # reference: the configured 500 shots per energy evaluation (common practice: budget = shots
-    # per evaluation x evaluations)
+    # per evaluation x evaluations), plus the final fresh estimate (final_shots = shots)
     results, _, _ = shot_study
     for r in _rows(results / "t" / "summary.csv"):
-        assert int(r["shots_total"]) == 500 * int(r["evaluations"])
+        assert int(r["shots_total"]) == 500 * (int(r["evaluations"]) + 1)
         assert int(r["n_iterations"]) >= 1 and r["stop_reason"]
         assert r["seed"] == "3" and r["active_electrons"] == "2" and r["active_orbitals"] == "2"
         assert r["n_frozen"] == "0"

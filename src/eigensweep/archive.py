@@ -61,7 +61,13 @@ WORKFLOW_GLOBS = (
 )
 #: Files the archive regenerates from its stage files (tables and plots).
 #: (inside the study's folder ``results/<study>/``)
-GENERATED_TABLES = ("summary.csv", "device_summary.csv", "analysis.csv", "README.md")
+GENERATED_TABLES = (
+    "summary.csv",
+    "device_summary.csv",
+    "analysis.csv",
+    "seeds.csv",
+    "README.md",
+)
 _ORCID = re.compile(r"\A\d{4}-\d{4}-\d{4}-\d{3}[\dX]\Z")
 _MANIFEST_LINE = re.compile(r"\A([0-9a-f]{64})  (\S(?:.*\S)?)\Z")
 

@@ -105,7 +105,12 @@ SUMMARY_COLUMNS: list[Column] = [
     _c("depth", "", "circuit depth"),
     _c("evaluations", "", "energy evaluations used by the optimizer"),
     _c("n_iterations", "", "optimizer iterations"),
-    _c("shots_total", "", "shots spent over the whole optimization (0 for exact energies)"),
+    _c(
+        "shots_total",
+        "",
+        "shots of the whole optimize job: energies, gradients, calibration, restart selection "
+        "and the final fresh estimate (0 for exact energies)",
+    ),
     _c("converged", "", "the optimizer's own convergence criterion was met"),
     _c("stop_reason", "", "the optimizer's stop message"),
     _c("wall_s", "s", "wall time of the optimize job (seconds)"),
@@ -222,7 +227,9 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
             "depth": m.get("depth", ""),
             "evaluations": m.get("n_evaluations", ""),
             "n_iterations": m.get("n_iterations", ""),
-            "shots_total": int(np.sum(shots)) if shots is not None else "",
+            "shots_total": int(m["shots_total"])
+            if "shots_total" in m
+            else (int(np.sum(shots)) if shots is not None else ""),
             "converged": m.get("converged", ""),
             "stop_reason": " ".join(str(m.get("stop_reason") or m.get("message", "")).split()),
             "wall_s": _num(opt.attrs.get("wall_s")),
@@ -238,6 +245,88 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
             r["_scan_var"] = next(k[5:] for k in row if k.startswith("scan_"))
             r["_scan_unit"] = r["_scan_units"].get(r["_scan_var"], "none")
         out.append(r)
+    return out
+
+
+#: What identifies one (problem, method) cell of the seed axis in ``seeds.csv``.
+SEED_GROUP_KEYS = (
+    "molecule",
+    "sweep",
+    "point",
+    "mapping",
+    "tapered",
+    "ansatz",
+    "optimizer",
+    "estimator",
+)
+
+#: ``seeds.csv``: one row per (molecule, sweep, point, methods), aggregated over seeds.
+SEED_COLUMNS: list[Column] = [
+    *[c for c in SUMMARY_COLUMNS if c.name in SEED_GROUP_KEYS],
+    _c("n_seeds", "", "optimize jobs (seeds) aggregated in this row"),
+    _c("seeds", "", "the seeds, space-separated"),
+    _c("error_median_mha", "mHa", "median over seeds of E(VQE) - E(exact), the reported energy"),
+    _c("error_q25_mha", "mHa", "25th percentile over seeds of the error"),
+    _c("error_q75_mha", "mHa", "75th percentile over seeds of the error"),
+    _c("abs_error_median_mha", "mHa", "median over seeds of |E(VQE) - E(exact)|"),
+    _c(
+        "error_at_params_median_mha",
+        "mHa",
+        "median over seeds of the exact energy at the optimized parameters minus E(exact) "
+        "(the state's own error, free of the final estimate's shot noise)",
+    ),
+    _c("error_at_params_q25_mha", "mHa", "25th percentile of the state's error"),
+    _c("error_at_params_q75_mha", "mHa", "75th percentile of the state's error"),
+    _c(
+        "within_accuracy", "", "fraction of seeds with |E(VQE) - E(exact)| within the accuracy band"
+    ),
+    _c("shots_total_median", "", "median over seeds of the job's total shots"),
+    _c("shots_total_min", "", "fewest total shots of one seed"),
+    _c("shots_total_max", "", "most total shots of one seed"),
+]
+
+
+def _median_q(values: list[float]) -> tuple[float, float, float]:
+    v = np.array([x for x in values if math.isfinite(x)], dtype=float)
+    if v.size == 0:
+        return math.nan, math.nan, math.nan
+    q25, q50, q75 = np.percentile(v, [25, 50, 75])
+    return float(q50), float(q25), float(q75)
+
+
+def seed_rows(summary: list[dict], accuracy_mha: float = 1.6) -> list[dict]:
+    """``seeds.csv`` rows: the summary grouped by :data:`SEED_GROUP_KEYS`, median and
+    quartiles over seeds (first-appearance order)."""
+    groups: dict[tuple, list[dict]] = {}
+    for r in summary:
+        groups.setdefault(tuple(str(r.get(k, "")) for k in SEED_GROUP_KEYS), []).append(r)
+    out = []
+    for members in groups.values():
+        err = [_num(r.get("error_mha")) for r in members]
+        at = [_num(r.get("error_at_params_mha")) for r in members]
+        shots = [float(r["shots_total"]) for r in members if r.get("shots_total") != ""]
+        e50, e25, e75 = _median_q(err)
+        a50, a25, a75 = _median_q(at)
+        finite = [abs(e) for e in err if math.isfinite(e)]
+        row = {k: members[0].get(k, "") for k in SEED_GROUP_KEYS}
+        row.update(
+            n_seeds=len(members),
+            seeds=" ".join(str(r.get("seed", "")) for r in members),
+            error_median_mha=e50,
+            error_q25_mha=e25,
+            error_q75_mha=e75,
+            abs_error_median_mha=float(np.median(finite)) if finite else math.nan,
+            error_at_params_median_mha=a50,
+            error_at_params_q25_mha=a25,
+            error_at_params_q75_mha=a75,
+            within_accuracy=(
+                sum(1 for e in finite if e <= accuracy_mha) / len(finite) if finite else math.nan
+            ),
+            shots_total_median=int(np.median(shots)) if shots else "",
+            shots_total_min=int(min(shots)) if shots else "",
+            shots_total_max=int(max(shots)) if shots else "",
+        )
+        out.append(row)
     return out
 
 
@@ -263,6 +352,7 @@ def readme_text(study: str) -> str:
         "- `summary.csv`: one row per optimize job of every sub-sweep.",
         "- `device_summary.csv`: one row per reconciled device estimate.",
         "- `analysis.csv`: fitted curve properties per molecule and method (see below).",
+        "- `seeds.csv`: median and spread over seeds per molecule, point and methods.",
         "- `plots/`: figures as PDF and PNG (300 dpi).",
         "",
         "Empty cells are missing values; the row's `notes` says why. Scan columns are",
@@ -275,6 +365,7 @@ def readme_text(study: str) -> str:
         ("summary.csv", SUMMARY_COLUMNS),
         ("device_summary.csv", DEVICE_COLUMNS),
         ("analysis.csv", ANALYSIS_COLUMNS),
+        ("seeds.csv", SEED_COLUMNS),
     ):
         lines += [f"## {title}", "", "| column | unit | meaning |", "|---|---|---|"]
         lines += [f"| `{c.name}` | {c.unit} | {c.description} |" for c in table]
@@ -311,6 +402,7 @@ def collect(
     ]
     analysis, warnings = analyse_study(summary)
     files.append(write_analysis(analysis, folder / "analysis.csv"))
+    files.append(write_table(seed_rows(summary, accuracy_mha), folder / "seeds.csv", SEED_COLUMNS))
     readme = folder / "README.md"
     with atomic_path(readme) as tmp:
         tmp.write_text(readme_text(study), encoding="utf-8", newline="\n")

@@ -57,6 +57,8 @@ LABELS: dict[str, str] = {
     "nelder_mead": "Nelder-Mead",
     "spsa": "SPSA",
     "rbf_surrogate": "RBF surrogate",
+    "adam": "Adam",
+    "shot_adaptive_descent": "shot-adaptive descent (iCANS)",
     "exact": "exact energies",
     "shots": "shots",
     "noisy": "noisy shots",
@@ -314,46 +316,145 @@ def plot_error(rows: list[dict], stem: Path, accuracy_mha: float = 1.6) -> list[
 def plot_convergence(
     rows: list[dict], stem: Path, results: Path, accuracy_mha: float
 ) -> list[Path]:
-    """Signed error per energy evaluation for every job of one molecule; one colour per method."""
+    """Signed error per energy evaluation for every job of one molecule; one colour per method.
+
+    When some jobs sample energies a second panel shows, for those jobs, the error of the
+    exact energy at each traced point against the shots spent so far (log axis): the bill of
+    a noisy optimization, comparable across optimizers that measure energies and gradients.
+    """
     plt = _plt()
     series, labels, _ = series_of(rows)
-    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    sampled = [r for r in rows if str(r.get("estimator", "exact")) != "exact"]
+    if sampled:
+        fig, (ax, ax2) = plt.subplots(1, 2, figsize=(12.0, 4.5))
+    else:
+        fig, ax = plt.subplots(figsize=(7.5, 4.5))
+        ax2 = None
     everything: list[float] = []
+    by_shots: list[float] = []
     for i, s in enumerate(series):
         first = True
         for r in rows:
             if tuple(str(r.get(k, "")) for k in SERIES_KEYS) != s:
                 continue
             opt = read_stage(results / "optimize" / f"{r['key']}.h5", stage="optimize")
-            err = (
-                np.asarray(opt.arrays["trace_energy"], float) - _f(r["energy_exact_eh"])
-            ) * 1000.0
+            exact = _f(r["energy_exact_eh"])
+            err = (np.asarray(opt.arrays["trace_energy"], float) - exact) * 1000.0
             shots = str(r.get("estimator", "exact")) != "exact"
             everything += [float(e) for e in err[np.isfinite(err)]]
+            style = {
+                "ls": LINESTYLES[i % len(LINESTYLES)],
+                "color": PALETTE[i % len(PALETTE)],
+                "label": labels[s] if first else None,
+            }
             ax.plot(
                 np.arange(1, len(err) + 1),
                 err,
                 marker="." if shots else None,
                 ms=2,
-                ls=LINESTYLES[i % len(LINESTYLES)],
                 lw=0.5 if shots else 1.0,
                 alpha=0.6 if shots else 0.9,
-                color=PALETTE[i % len(PALETTE)],
-                label=labels[s] if first else None,
+                **style,
             )
+            if ax2 is not None and shots and "trace_shots_cumulative" in opt.arrays:
+                cum = np.asarray(opt.arrays["trace_shots_cumulative"], float)
+                e_at = (np.asarray(opt.arrays["trace_energy_exact"], float) - exact) * 1000.0
+                ok = np.isfinite(e_at) & (cum > 0)
+                by_shots += [float(e) for e in e_at[ok]]
+                ax2.plot(cum[ok], e_at[ok], lw=0.8, alpha=0.8, **style)
             first = False
-    ax.axhline(
-        accuracy_mha,
-        color="#009E73",
-        ls="--",
-        lw=1.0,
-        label=f"chemical accuracy {accuracy_mha:g} mHa",
-    )
-    ax.axhline(0.0, color="k", lw=0.8)
+    for a in (ax, ax2):
+        if a is None:
+            continue
+        a.axhline(
+            accuracy_mha,
+            color="#009E73",
+            ls="--",
+            lw=1.0,
+            label=f"chemical accuracy {accuracy_mha:g} mHa" if a is ax else None,
+        )
+        a.axhline(0.0, color="k", lw=0.8)
     _symlog(ax, everything, 1e-3, accuracy_mha)
     ax.set_xlabel("energy evaluation")
     ax.set_ylabel("E − E(exact) (mHa)")
     ax.set_title(_title(rows, "convergence (every scan point; one colour per method)"), fontsize=10)
+    if ax2 is not None:
+        _symlog(ax2, by_shots, 1e-3, accuracy_mha)
+        ax2.set_xscale("log")
+        ax2.set_xlabel("shots spent so far")
+        ax2.set_ylabel("E_exact(θ) − E(exact) (mHa)")
+        ax2.set_title("sampled jobs: exact error at each evaluated point vs shots", fontsize=10)
+    _legend_outside(ax2 if ax2 is not None else ax)
+    return save(fig, stem)
+
+
+def plot_shots_error(seeds: list[dict], stem: Path, accuracy_mha: float = 1.6) -> list[Path]:
+    """Error against total shots per (ansatz, optimizer, estimator) at each point, over seeds.
+
+    One marker per row of ``seeds.csv`` with a sampling estimator: x the median total shots
+    (bar from the fewest to the most of one seed), y the median over seeds of the state's error
+    ``E_exact(theta) - E(exact)`` (bar: 25th to 75th percentile); hollow markers give the median
+    ``|E(VQE) - E(exact)|`` of the reported estimate, which adds the final estimate's noise.
+    The shaded band is the accuracy band.
+    """
+    plt = _plt()
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    rows = [
+        r
+        for r in seeds
+        if str(r.get("estimator", "exact")) != "exact" and r["shots_total_median"] != ""
+    ]
+    ax.axhspan(0.0, accuracy_mha, color="#009E73", alpha=0.15, lw=0)
+    ax.axhline(accuracy_mha, color="#009E73", ls="--", lw=1.0, label=f"{accuracy_mha:g} mHa")
+    if not rows:
+        ax.text(
+            0.5,
+            0.5,
+            "no job of this study samples energies",
+            ha="center",
+            va="center",
+            transform=ax.transAxes,
+        )
+        ax.set_axis_off()
+        return save(fig, stem)
+    keys = ("molecule", "point", "ansatz", "optimizer", "estimator", "mapping", "tapered")
+    varying = [k for k in keys if len({str(r.get(k, "")) for r in rows}) > 1]
+    methods = list(dict.fromkeys(tuple(str(r.get(k, "")) for k in keys[2:]) for r in rows))
+    ys: list[float] = []
+    for r in rows:
+        m = methods.index(tuple(str(r.get(k, "")) for k in keys[2:]))
+        x = float(r["shots_total_median"])
+        y = _f(r["error_at_params_median_mha"])
+        lo, hi = _f(r["error_at_params_q25_mha"]), _f(r["error_at_params_q75_mha"])
+        xlo, xhi = float(r["shots_total_min"]), float(r["shots_total_max"])
+        label = ", ".join(pretty(r.get(k, "")) for k in varying) or pretty(r["optimizer"])
+        label += f" ({r['n_seeds']} seeds)"
+        colour = PALETTE[m % len(PALETTE)]
+        ax.errorbar(
+            [x],
+            [y],
+            yerr=[[max(y - lo, 0.0)], [max(hi - y, 0.0)]],
+            xerr=[[x - xlo], [xhi - x]],
+            fmt=MARKERS[m % len(MARKERS)],
+            color=colour,
+            ms=5,
+            capsize=2,
+            lw=0.8,
+            label=label,
+        )
+        a = _f(r["abs_error_median_mha"])
+        if math.isfinite(a):
+            ax.plot([x], [a], MARKERS[m % len(MARKERS)], mfc="none", color=colour, ms=7)
+            ys.append(a)
+        ys += [v for v in (y, lo, hi) if math.isfinite(v)]
+    ax.set_xscale("log")
+    positive = [v for v in ys if v > 0]
+    if positive and min(positive) > 0:
+        ax.set_yscale("log")
+        ax.set_ylim(min(min(positive), accuracy_mha) / 3.0, max(max(positive), accuracy_mha) * 3.0)
+    ax.set_xlabel("total shots of the job (median over seeds)")
+    ax.set_ylabel("error (mHa); filled: state, hollow: reported")
+    ax.set_title("error vs shots (median and spread over seeds)", fontsize=10)
     _legend_outside(ax)
     return save(fig, stem)
 
@@ -511,5 +612,10 @@ def study_figures(
         files += plot_convergence(rows, folder / f"{mol}_convergence", Path(results), accuracy_mha)
     if summary:
         files += plot_resources(summary, folder / "resources")
+    from .collect import seed_rows
+
+    files += plot_shots_error(
+        seed_rows(summary, accuracy_mha), folder / "shots_error", accuracy_mha
+    )
     files += device_figures(exports, Path(results), folder)
     return files

@@ -207,7 +207,7 @@ def build_plan(
         points = scan_points(mol, where)
         units = scan_units(mol, template, where)
         prev_int: str | None = None
-        prev_opt: dict[int, str] = {}
+        prev_opt: dict[tuple[int, int], str] = {}
         for point in points:
             atoms = fill_geometry(template, point, f"{where} point {point_label(point)}")
             int_params = {
@@ -226,21 +226,23 @@ def build_plan(
             int_parents = {"guess": prev_int} if int_params["neighbour_start"] else {}
             k_int = add("integrals", int_params, int_parents)
             prev_int = k_int
-            for ic, (mapping, taper, ansatz, optimizer, estimator) in enumerate(combos):
+            for ic, seed, (mapping, taper, ansatz, optimizer, estimator) in (
+                (ic, seed, combo) for ic, combo in enumerate(combos) for seed in sweep.seeds
+            ):
                 k_ham = add("hamiltonian", {"mapping": mapping}, {"integrals": k_int})
                 k_tap = add("taper", {"taper": taper}, {"hamiltonian": k_ham, "integrals": k_int})
                 opt_params = {
                     "ansatz": ansatz,
                     "optimizer": optimizer,
                     "estimator": estimator,
-                    "seed": cfg["seed"],
-                    "warm_start": bool(sweep.warm_start and ic in prev_opt),
+                    "seed": seed,
+                    "warm_start": bool(sweep.warm_start and (ic, seed) in prev_opt),
                 }
                 opt_parents = {"taper": k_tap, "integrals": k_int}
                 if opt_params["warm_start"]:
-                    opt_parents["warm"] = prev_opt[ic]
+                    opt_parents["warm"] = prev_opt[(ic, seed)]
                 k_opt = add("optimize", opt_params, opt_parents)
-                prev_opt[ic] = k_opt
+                prev_opt[(ic, seed)] = k_opt
                 rows.append(
                     {
                         "molecule": mol["name"],
@@ -257,7 +259,7 @@ def build_plan(
                         "ansatz": method_label("ansatz", ansatz),
                         "optimizer": method_label("optimizer", optimizer),
                         "estimator": method_label("estimator", estimator),
-                        "seed": cfg["seed"],
+                        "seed": seed,
                         "key": k_opt,
                         "key_integrals": k_int,
                         "key_hamiltonian": k_ham,

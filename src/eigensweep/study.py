@@ -39,6 +39,7 @@ class Sweep:
     combos: list[tuple] = field(default_factory=list)
     warm_start: bool = False
     skipped: list[str] = field(default_factory=list)
+    seeds: list[int] = field(default_factory=lambda: [0])
 
 
 #: Study name of a config file called ``config.yaml`` without ``study:`` (the default sweep's
@@ -134,7 +135,15 @@ def expand_sweeps(cfg: dict, check: Callable[..., None], source: str = "config")
                 + ", ".join(names)
             )
         methods = {**top, **(entry.get("methods") or {})}
-        sweep = Sweep(entry["name"], list(mols), warm_start=bool(methods.get("warm_start")))
+        seeds = entry.get("seeds") or cfg.get("seeds") or [cfg.get("seed", 0)]
+        if len(set(seeds)) != len(seeds):
+            raise ConfigError(f"{where}: seeds repeat a value; list each seed once")
+        sweep = Sweep(
+            entry["name"],
+            list(mols),
+            warm_start=bool(methods.get("warm_start")),
+            seeds=[int(x) for x in seeds],
+        )
         for combo in _product(methods, list(entry.get("zip") or []), where):
             if excluded(combo, entry.get("exclude") or []):
                 continue
@@ -166,7 +175,7 @@ def figure_stems(molecules: list[str], exports: list[dict] | None = None) -> lis
     those jobs go to :data:`DEVICE_HISTOGRAM_FOLDER` (their number is known only after export).
     """
     out = [f"{m}_{kind}" for m in molecules for kind in ("energy", "error", "convergence")]
-    out.append("resources")
+    out += ["resources", "shots_error"]
     return out + [f"zne_{ex['key_export']}" for ex in reconciled_exports(exports or [])]
 
 
