@@ -6,7 +6,7 @@ Run from the repository root::
     .venv/bin/python benchmarks/bench_mapping.py --no-csr   # skip the ~3 GB CSR baseline
 
 Targets: LiH mapping + tapering well under 2 s; N2/STO-3G (20 qubits) mapping, symmetries,
-tapering and grouping under a minute. ``apply_pauli_sum`` on the 20-qubit N2 Hamiltonian is
+tapering and grouping under a minute. ``apply_pauli_expansion`` on the 20-qubit N2 Hamiltonian is
 compared with a SciPy CSR matrix-vector product measured in the same run (the CSR matrix is
 built by eigensweep's own row-major builder; OpenFermion's ``get_sparse_operator`` would take far
 longer at 20 qubits) and with the naive one-term-at-a-time loop (extrapolated from a sample).
@@ -23,13 +23,13 @@ from pyscf import ao2mo, gto, scf
 
 from eigensweep.qubit import (
     apply_pauli,
-    apply_pauli_sum,
-    find_z2_symmetries,
+    apply_pauli_expansion,
     map_hamiltonian,
     qwc_groups,
+    reduce_to_sector,
     reference_bits,
     sector_ground_energy,
-    taper,
+    symmetry_null_space,
 )
 
 GEOMETRIES = {"lih": "Li 0 0 0; H 0 0 1.595", "n2": "N 0 0 0; N 0 0 1.098"}
@@ -69,9 +69,9 @@ def pipeline(name: str, mapping: str, rows: list, extra: list) -> tuple:
     tag = f"{name} {mapping}"
     t_start = time.perf_counter()
     ham = timed(rows, f"{tag}: map_hamiltonian", map_hamiltonian, h1e, eri, e_core, mapping)
-    gens = timed(rows, f"{tag}: find_z2_symmetries", find_z2_symmetries, ham)
+    gens = timed(rows, f"{tag}: symmetry_null_space", symmetry_null_space, ham)
     bits = reference_bits(nelec, norb, mapping)
-    result = timed(rows, f"{tag}: taper", taper, ham, bits)
+    result = timed(rows, f"{tag}: taper", reduce_to_sector, ham, bits)
     groups = timed(rows, f"{tag}: qwc_groups (untapered)", qwc_groups, ham)
     rows.append((f"{tag}: total (map+symmetries+taper+groups)", time.perf_counter() - t_start))
     extra.append(
@@ -109,19 +109,25 @@ def main() -> None:
     phi = rng.standard_normal(1 << tap.n_qubits) + 1j * rng.standard_normal(1 << tap.n_qubits)
     timed(
         rows,
-        f"n2 tapered ({tap.n_qubits} q) apply_pauli_sum, 1st (builds CSR)",
-        apply_pauli_sum,
+        f"n2 tapered ({tap.n_qubits} q) apply_pauli_expansion, 1st (builds CSR)",
+        apply_pauli_expansion,
         phi,
         tap,
     )
-    best_of(rows, f"n2 tapered ({tap.n_qubits} q) apply_pauli_sum", apply_pauli_sum, phi, tap)
+    best_of(
+        rows,
+        f"n2 tapered ({tap.n_qubits} q) apply_pauli_expansion",
+        apply_pauli_expansion,
+        phi,
+        tap,
+    )
     psi = rng.standard_normal(1 << ham.n_qubits) + 1j * rng.standard_normal(1 << ham.n_qubits)
     psi /= np.linalg.norm(psi)
     timed(
         rows, "n2 H|psi>: compile (x-mask groups, sign tables)", lambda: ham.compile().sign_tables()
     )
-    out = timed(rows, "n2 H|psi>: apply_pauli_sum, 1st call", apply_pauli_sum, psi, ham)
-    best = best_of(rows, "n2 H|psi>: apply_pauli_sum", apply_pauli_sum, psi, ham)
+    out = timed(rows, "n2 H|psi>: apply_pauli_expansion, 1st call", apply_pauli_expansion, psi, ham)
+    best = best_of(rows, "n2 H|psi>: apply_pauli_expansion", apply_pauli_expansion, psi, ham)
     sample = np.arange(0, ham.n_terms, max(1, ham.n_terms // 40))
     t0 = time.perf_counter()
     for t in sample:
@@ -129,18 +135,18 @@ def main() -> None:
     naive = (time.perf_counter() - t0) * ham.n_terms / sample.size
     rows.append((f"n2 H|psi>: naive term-by-term loop (extrapolated, {ham.n_terms} terms)", naive))
     extra.append(
-        f"apply_pauli_sum uses {ham.compile().n_groups} x-mask groups for {ham.n_terms} terms; "
+        f"apply_pauli_expansion uses {ham.compile().n_groups} x-mask groups for {ham.n_terms} terms; "
         f"speed-up over the naive loop {naive / best:.1f}x"
     )
     if not args.no_csr:
-        mat = timed(rows, "n2 H|psi>: build CSR baseline (to_sparse)", ham.to_sparse)
+        mat = timed(rows, "n2 H|psi>: build CSR baseline (sparse_matrix)", ham.sparse_matrix)
         ref = timed(rows, "n2 H|psi>: scipy CSR matvec, 1st", mat.__matmul__, psi)
         csr = best_of(rows, "n2 H|psi>: scipy CSR matvec", mat.__matmul__, psi)
         err = float(np.abs(ref - out).max())
         gib = (mat.data.nbytes + mat.indices.nbytes + mat.indptr.nbytes) / 2**30
         extra.append(
             f"CSR baseline: nnz {mat.nnz:,} ({gib:.2f} GiB); max |difference| {err:.1e}; "
-            f"apply_pauli_sum / CSR matvec time ratio {best / csr:.2f} (best of calls 2-3)"
+            f"apply_pauli_expansion / CSR matvec time ratio {best / csr:.2f} (best of calls 2-3)"
         )
 
     width = max(len(label) for label, _ in rows)

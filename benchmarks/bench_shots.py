@@ -25,7 +25,7 @@ import time
 import numpy as np
 from pyscf import ao2mo, fci, gto, scf
 
-from eigensweep.qubit import map_hamiltonian, reference_bits, taper
+from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
 from eigensweep.vqe import run_optimize
 
 GEOMETRY = {"H2": "H 0 0 0; H 0 0 0.74", "LiH": "Li 0 0 0; H 0 0 1.595"}
@@ -47,7 +47,7 @@ def problem(name: str) -> tuple[dict, float, object]:
     }
     e_fci = float(fci.FCI(mf).kernel()[0])
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], "jordan_wigner")
-    tap = taper(ham, reference_bits(ints["nelec"], ints["norb"], "jordan_wigner"))
+    tap = reduce_to_sector(ham, reference_bits(ints["nelec"], ints["norb"], "jordan_wigner"))
     return ints, e_fci, tap
 
 

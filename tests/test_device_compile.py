@@ -9,15 +9,15 @@ import numpy as np
 import pytest
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import dense_pauli, dense_rotation, random_pauli_sum  # noqa: E402
+from test_device_support import dense_pauli, dense_rotation, random_pauli_expansion  # noqa: E402
 
 from eigensweep.circuit import Circuit, Gate, inverse_gate  # noqa: E402
 from eigensweep.device.compile import (  # noqa: E402
+    base_of_global_fold,
     circuit_from_rotations,
-    fold_circuit,
+    globally_folded_circuit,
     group_basis,
     measurement_circuit,
-    unfold_circuit,
 )
 from eigensweep.device.synthetic import simulate_batch  # noqa: E402
 from eigensweep.qubit.statevector import (  # noqa: E402
@@ -166,12 +166,12 @@ def test_fold_preserves_state_and_scales_gate_count(scale):
     # Giurgica-Tiron et al. 2020: folding G (G^dagger G)^k implements G with (2k+1)x the gates
     rng = np.random.default_rng(scale)
     circ = circuit_from_rotations([1, 0, 1], _random_rotations(3, 4, rng))
-    folded = fold_circuit(circ, scale)
+    folded = globally_folded_circuit(circ, scale)
     assert len(folded.gates) == scale * len(circ.gates)
     assert folded.cnot_count == scale * circ.cnot_count
     assert folded.gates[: len(circ.gates)] == circ.gates  # invariant: starts with G
     assert np.max(np.abs(simulate(folded) - simulate(circ))) < 1e-12
-    assert unfold_circuit(folded, scale).gates == circ.gates
+    assert base_of_global_fold(folded, scale).gates == circ.gates
 
 
 def test_fold_unfold_identity_and_inverse():
@@ -183,7 +183,7 @@ def test_fold_unfold_identity_and_inverse():
     psi0 = basis_state([1, 0, 1, 1])
     assert np.max(np.abs(simulate(both, psi0) - psi0)) < 1e-12
     with pytest.raises(ValueError):
-        unfold_circuit(circ, 3)
+        base_of_global_fold(circ, 3)
 
 
 def test_fold_handles_every_known_gate_including_sx():
@@ -193,18 +193,18 @@ def test_fold_handles_every_known_gate_including_sx():
     for name in ("rx", "ry", "rz"):
         circ.append(name, (1,), (0.4,))
     circ.append("cx", (1, 0))
-    folded = fold_circuit(circ, 3)
+    folded = globally_folded_circuit(circ, 3)
     assert np.max(np.abs(simulate(folded) - simulate(circ))) < 1e-12
     # sx has a two-gate inverse: count is 3 * len + 1 extra per fold
     assert len(folded.gates) == 3 * len(circ.gates) + 1
-    assert unfold_circuit(folded, 3).gates == circ.gates
+    assert base_of_global_fold(folded, 3).gates == circ.gates
     assert inverse_gate(Gate("sdg", (0,))) == [Gate("s", (0,))]
 
 
 @pytest.mark.parametrize("bad", [0, 2, -1, 4, 1.5, True])
 def test_fold_rejects_even_or_nonpositive_scale(bad):
     with pytest.raises(ValueError, match="odd positive"):
-        fold_circuit(Circuit(1), bad)
+        globally_folded_circuit(Circuit(1), bad)
 
 
 def test_circuit_append_validates():
@@ -217,7 +217,7 @@ def test_circuit_append_validates():
 def test_random_hamiltonian_energy_from_measurement_circuits():
     # reference: project expectation(); energies re-assembled from per-group parities
     rng = np.random.default_rng(7)
-    ham = random_pauli_sum(3, 8, rng)
+    ham = random_pauli_expansion(3, 8, rng)
     circ = circuit_from_rotations([1, 0, 0], _random_rotations(3, 4, rng))
     psi = simulate(circ)
     total = 0.0

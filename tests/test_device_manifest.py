@@ -23,7 +23,7 @@ from eigensweep.device.manifest import (  # noqa: E402
     write_job,
 )
 from eigensweep.errors import StageFileError  # noqa: E402
-from eigensweep.qubit.pauli import PauliSum  # noqa: E402
+from eigensweep.qubit.pauli import PauliExpansion  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -214,7 +214,7 @@ def test_build_job_rejects_bad_input(h2_job):
     with pytest.raises(ValueError, match="JSON"):
         build_job(circ, ham, meta={"a": object()}, **kw)
     with pytest.raises(ValueError, match="qubits"):
-        build_job(circ, PauliSum.from_labels(["ZZ"], [1.0]), **kw)
+        build_job(circ, PauliExpansion.from_strings(["ZZ"], [1.0]), **kw)
     with pytest.raises(ValueError, match="exactly once"):
         build_job(circ, ham, groups=[[1]], **kw)
     with pytest.raises(ValueError, match="qubit-wise"):

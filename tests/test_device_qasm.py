@@ -11,10 +11,10 @@ import openqasm3
 import pytest
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import h2_ansatz, h2_problem, random_pauli_sum  # noqa: E402
+from test_device_support import h2_ansatz, h2_problem, random_pauli_expansion  # noqa: E402
 
 from eigensweep.circuit import Circuit, Gate  # noqa: E402
-from eigensweep.device.compile import circuit_from_rotations, fold_circuit  # noqa: E402
+from eigensweep.device.compile import circuit_from_rotations, globally_folded_circuit  # noqa: E402
 from eigensweep.device.manifest import build_job, write_job  # noqa: E402
 from eigensweep.device.qasm import (  # noqa: E402
     QasmReadError,
@@ -171,10 +171,10 @@ def test_exported_measurement_circuits_reproduce_energy(h2_job_folder):
 def test_folded_random_hamiltonian_energy_via_qasm():
     # Giurgica-Tiron et al. 2020: folded circuits are the same unitary, exported exactly
     rng = np.random.default_rng(11)
-    ham = random_pauli_sum(3, 7, rng)
+    ham = random_pauli_expansion(3, 7, rng)
     x = np.array([1, 0, 1], bool)
     z = np.array([1, 1, 0], bool)
     circ = circuit_from_rotations([1, 1, 0], [(x, z, 0.37), (z, x, -1.1)])
-    folded = fold_circuit(circ, 5)
+    folded = globally_folded_circuit(circ, 5)
     back = from_qasm3(to_qasm3(folded))
     assert abs(expectation(simulate(back), ham) - expectation(simulate(circ), ham)) < 1e-12

@@ -20,7 +20,7 @@ from eigensweep.device.reconcile import (  # noqa: E402
     reconcile,
 )
 from eigensweep.device.synthetic import run_synthetic_device  # noqa: E402
-from eigensweep.qubit.pauli import PauliSum  # noqa: E402
+from eigensweep.qubit.pauli import PauliExpansion  # noqa: E402
 from eigensweep.stage_table import stage_key  # noqa: E402
 from eigensweep.store import read_stage, write_stage  # noqa: E402
 
@@ -83,7 +83,7 @@ def test_noise_free_confidence_intervals_cover_simulated_energy(h2, noise_free):
 
 
 def test_readout_mitigation_reduces_error(h2, readout_only):
-    # readout mitigation by calibration matrices (tensored model): removes the readout bias
+    # readout mitigation by calibration matrices (per-qubit model): removes the readout bias
     e_sim = h2[3]
     r = readout_only
     assert abs(r.readout_mitigated.value - e_sim) < abs(r.raw.value - e_sim)
@@ -158,7 +158,7 @@ def test_symmetry_verification_exact_on_constructed_counts(h2):
     assert abs(r.raw.value - e_sim) > 0.01
 
     # the same with explicit Z2 generators (alpha and beta parity, interleaved JW)
-    gens = PauliSum.from_labels(["ZIZI", "IZIZ"], [1.0, 1.0])
+    gens = PauliExpansion.from_strings(["ZIZI", "IZIZ"], [1.0, 1.0])
     r2 = reconcile(manifest, counts, ham, generators=gens, sector=[-1, -1], bootstrap=50)
     assert abs(r2.symmetry_verified.value - e_sim) < 1e-4
     # a wrong sector throws away the good shots instead
@@ -169,7 +169,7 @@ def test_symmetry_verification_exact_on_constructed_counts(h2):
 def test_symmetry_not_applicable_is_reported(h2):
     job, manifest, ham, *_ = h2
     res = run_synthetic_device(job, seed=0)
-    gens = PauliSum.from_labels(["XXXX"], [1.0])  # diagonal in no measured basis here
+    gens = PauliExpansion.from_strings(["XXXX"], [1.0])  # diagonal in no measured basis here
     r = reconcile(manifest, res, ham, generators=gens, sector=[1], bootstrap=20)
     assert r.symmetry_verified is None and r.kept_fraction is None
     assert any("no measured group" in n for n in r.notes)
@@ -250,23 +250,25 @@ def test_plot_histograms_writes_png(noisy, tmp_path):
 
 
 def test_mitigation_numerics():
-    # tensored inverse undoes a known confusion exactly; simplex projection (Duchi et al. 2008)
+    # per-qubit inverse undoes a known confusion exactly; simplex projection (Duchi et al. 2008)
     rng = np.random.default_rng(0)
     n = 3
     p_true = rng.dirichlet(np.ones(2**n))
     a = np.array([[[0.97, 0.06], [0.03, 0.94]], [[0.9, 0.1], [0.1, 0.9]], [[1, 0.2], [0, 0.8]]])
     full = np.kron(np.kron(a[0], a[1]), a[2])  # qubit 0 = most significant
     p_meas = full @ p_true
-    np.testing.assert_allclose(mit.apply_tensored_inverse(p_meas[None], a)[0], p_true, atol=1e-12)
+    np.testing.assert_allclose(
+        mit.invert_confusion_per_qubit(p_meas[None], a)[0], p_true, atol=1e-12
+    )
     proj = mit.project_to_simplex(np.array([[0.6, 0.6, -0.1, 0.0]]))[0]
     np.testing.assert_allclose(proj, [0.5, 0.5, 0.0, 0.0], atol=1e-12)
     assert mit.project_to_simplex(p_true[None]) == pytest.approx(p_true[None])
     # Richardson through (1, 3, 5) is exact for quadratics; linear fit exact for lines
     lam = [1, 3, 5]
-    assert mit.extrapolate_richardson(lam, np.array([2 + 3 * x - x**2 for x in lam])) == (
+    assert mit.richardson_zero_noise_value(lam, np.array([2 + 3 * x - x**2 for x in lam])) == (
         pytest.approx(2.0)
     )
-    assert mit.extrapolate_linear(lam, np.array([1.0 + 0.5 * x for x in lam])) == (
+    assert mit.line_fit_zero_noise_value(lam, np.array([1.0 + 0.5 * x for x in lam])) == (
         pytest.approx(1.0)
     )
     np.testing.assert_allclose(mit.richardson_weights(lam), [15 / 8, -5 / 4, 3 / 8])

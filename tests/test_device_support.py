@@ -13,7 +13,7 @@ import scipy.optimize
 
 from eigensweep.circuit import Circuit
 from eigensweep.device.compile import circuit_from_rotations
-from eigensweep.qubit.pauli import PauliSum
+from eigensweep.qubit.pauli import PauliExpansion
 from eigensweep.qubit.statevector import expectation, simulate
 
 _PAULI = {
@@ -39,7 +39,7 @@ def dense_rotation(x, z, angle) -> np.ndarray:
     return np.cos(angle / 2) * np.eye(p.shape[0]) - 1j * np.sin(angle / 2) * p
 
 
-def dense_hamiltonian(ham: PauliSum) -> np.ndarray:
+def dense_hamiltonian(ham: PauliExpansion) -> np.ndarray:
     return sum(c * dense_pauli(lab) for lab, c in zip(ham.labels(), ham.coeffs, strict=True))
 
 
@@ -62,7 +62,7 @@ def h2_problem():
     one_so, two_so = of.chem.molecular_data.spinorb_from_spatial(h1, two)
     op = of.InteractionOperator(mol.energy_nuc(), one_so, 0.5 * two_so)
     qop = of.jordan_wigner(of.get_fermion_operator(op))
-    ham = PauliSum.from_openfermion(qop, 4)
+    ham = PauliExpansion.from_openfermion(qop, 4)
     e_fci = fci.FCI(mf).kernel()[0]
     return ham, float(e_fci), 2
 
@@ -111,7 +111,7 @@ def two_qubit_problem():
 
     Returns (ham, circuit, state, energy, exact ground energy).
     """
-    ham = PauliSum.from_labels(TWO_QUBIT_LABELS, TWO_QUBIT_COEFFS)
+    ham = PauliExpansion.from_strings(TWO_QUBIT_LABELS, TWO_QUBIT_COEFFS)
 
     def energy(p):
         return expectation(simulate(hea_circuit(p)), ham)
@@ -129,9 +129,9 @@ def two_qubit_problem():
     return ham, circ, psi, float(expectation(psi, ham)), exact
 
 
-def random_pauli_sum(n: int, n_terms: int, rng: np.random.Generator) -> PauliSum:
+def random_pauli_expansion(n: int, n_terms: int, rng: np.random.Generator) -> PauliExpansion:
     labels = ["I" * n] + ["".join(rng.choice(list("IXYZ"), size=n)) for _ in range(n_terms)]
-    return PauliSum.from_labels(labels, rng.normal(size=len(labels)))
+    return PauliExpansion.from_strings(labels, rng.normal(size=len(labels)))
 
 
 # ----------------------------------------------------------------------------- checks
@@ -157,7 +157,7 @@ def test_dense_helpers_match_openfermion_sparse_operator():
     import openfermion as of
 
     rng = np.random.default_rng(3)
-    ham = random_pauli_sum(3, 6, rng)
+    ham = random_pauli_expansion(3, 6, rng)
     ref = of.get_sparse_operator(ham.to_openfermion(), n_qubits=3).toarray()
     assert np.allclose(dense_hamiltonian(ham), ref, atol=1e-12)
 

@@ -15,7 +15,7 @@ import pytest
 from test_vqe_common import molecule
 
 from eigensweep.device import build_job, state_circuit
-from eigensweep.qubit import map_hamiltonian, no_taper, reference_bits, taper
+from eigensweep.qubit import identity_reduction, map_hamiltonian, reduce_to_sector, reference_bits
 from eigensweep.vqe import run_optimize
 
 EXACT = {"optimizer": {"name": "lbfgs"}, "estimator": {"name": "exact"}}
@@ -25,7 +25,7 @@ def _optimized(name: str, tapered: bool):
     ints = molecule(name)
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], "jordan_wigner")
     bits = reference_bits(ints["nelec"], ints["norb"], "jordan_wigner")
-    tap = taper(ham, bits) if tapered else no_taper(ham, bits)
+    tap = reduce_to_sector(ham, bits) if tapered else identity_reduction(ham, bits)
     res = run_optimize(**ints, ansatz={"name": "uccsd"}, **EXACT, tapering=tap)
     return res, tap
 

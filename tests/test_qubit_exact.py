@@ -13,18 +13,18 @@ from test_qubit_molecules import molecule
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
     MAPPINGS,
-    PauliSum,
+    PauliExpansion,
+    identity_reduction,
     map_hamiltonian,
-    no_taper,
+    reduce_to_sector,
     reference_bits,
     sector_basis_states,
     sector_ground_energy,
-    taper,
 )
 
 
 @functools.cache
-def mapped(name: str, mapping: str) -> PauliSum:
+def mapped(name: str, mapping: str) -> PauliExpansion:
     m = molecule(name)
     return map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
 
@@ -32,7 +32,7 @@ def mapped(name: str, mapping: str) -> PauliSum:
 # ---------------------------------------------------------------- bad input
 def test_bad_input():
     ham = mapped("h2", "jordan_wigner")
-    with pytest.raises(TypeError, match="PauliSum"):
+    with pytest.raises(TypeError, match="PauliExpansion"):
         sector_ground_energy(ham.to_openfermion(), n_electrons=2, mapping="jordan_wigner")
     with pytest.raises(ConfigError, match="needs the mapping"):
         sector_ground_energy(ham, n_electrons=2)
@@ -42,9 +42,9 @@ def test_bad_input():
         sector_ground_energy(ham, n_electrons=5, mapping="jordan_wigner")
     with pytest.raises(ConfigError, match="exceeds the sector dimension"):
         sector_ground_energy(ham, n_electrons=2, sz=0.0, mapping="jordan_wigner", k=5)
-    with pytest.raises(TypeError, match="TaperResult"):
+    with pytest.raises(TypeError, match="SectorReduction"):
         sector_ground_energy(ham, taper="yes")
-    tr = taper(ham, reference_bits((1, 1), 2, "jordan_wigner"))
+    tr = reduce_to_sector(ham, reference_bits((1, 1), 2, "jordan_wigner"))
     with pytest.raises(ConfigError, match="leaves 1 qubits"):
         sector_ground_energy(ham, n_electrons=2, mapping="jordan_wigner", taper=tr)
 
@@ -108,7 +108,7 @@ def test_no_taper_passes_sector_through(mapping):
     # reference: PySCF FCI computed at test time
     m = molecule("h2o")
     ham = mapped("h2o", mapping)
-    result = no_taper(ham, reference_bits(m.nelec, m.norb, mapping))
+    result = identity_reduction(ham, reference_bits(m.nelec, m.norb, mapping))
     energy = sector_ground_energy(
         result.hamiltonian, n_electrons=10, sz=0.0, mapping=mapping, taper=result
     )

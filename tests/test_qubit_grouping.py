@@ -12,7 +12,7 @@ from test_qubit_molecules import molecule
 
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
-    PauliSum,
+    PauliExpansion,
     basis_state,
     map_hamiltonian,
     measurement_basis,
@@ -22,12 +22,12 @@ from eigensweep.qubit import (
 )
 
 
-def lih(mapping: str = "jordan_wigner") -> PauliSum:
+def lih(mapping: str = "jordan_wigner") -> PauliExpansion:
     m = molecule("lih", with_fci=False)
     return map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
 
 
-def qubit_wise_commute(ham: PauliSum, i: int, j: int) -> bool:
+def qubit_wise_commute(ham: PauliExpansion, i: int, j: int) -> bool:
     both = (ham.x[i] | ham.z[i]) & (ham.x[j] | ham.z[j])
     same = (ham.x[i] == ham.x[j]) & (ham.z[i] == ham.z[j])
     return bool(np.all(~both | same))
@@ -35,8 +35,8 @@ def qubit_wise_commute(ham: PauliSum, i: int, j: int) -> bool:
 
 # ---------------------------------------------------------------- bad input
 def test_bad_input():
-    ham = PauliSum.from_labels(["ZI", "XX"], [1.0, 0.5])
-    with pytest.raises(TypeError, match="PauliSum"):
+    ham = PauliExpansion.from_strings(["ZI", "XX"], [1.0, 0.5])
+    with pytest.raises(TypeError, match="PauliExpansion"):
         qwc_groups(ham.to_openfermion())
     with pytest.raises(ConfigError, match="positive"):
         shots_for_precision(ham, target_se=0.0)
@@ -79,7 +79,7 @@ def test_sorted_insertion_order_and_determinism():
 
 def test_small_example_by_hand():
     # common practice, by hand: ZZ and ZI share the Z basis, XX starts a new group
-    ham = PauliSum.from_labels(["II", "ZZ", "ZI", "XX", "IX"], [9.0, 1.0, 0.5, 0.8, 0.1])
+    ham = PauliExpansion.from_strings(["II", "ZZ", "ZI", "XX", "IX"], [9.0, 1.0, 0.5, 0.8, 0.1])
     labels = ham.labels()
     groups = [[labels[i] for i in g] for g in qwc_groups(ham)]
     assert groups == [["ZZ", "ZI"], ["XX", "IX"]]
@@ -87,7 +87,7 @@ def test_small_example_by_hand():
 
 def test_one_norm_shot_bound_formula():
     # Wecker, Hastings, Troyer (arXiv:1507.08969), from memory: M = (sum_{t != I} |c_t| / eps)^2
-    ham = PauliSum.from_labels(["II", "ZI", "XY"], [-3.0, 0.4, -0.2])
+    ham = PauliExpansion.from_strings(["II", "ZI", "XY"], [-3.0, 0.4, -0.2])
     out = shots_for_precision(ham, target_se=1e-3)
     assert out["shots_one_norm_bound"] == math.ceil((0.6 / 1e-3) ** 2)
     assert out["shots_variance"] is None and out["n_groups"] == 2

@@ -11,7 +11,7 @@ from test_qubit_molecules import molecule
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
     MAPPINGS,
-    PauliSum,
+    PauliExpansion,
     basis_state,
     encode_linear,
     encoding_matrix,
@@ -85,7 +85,7 @@ def test_h2_spectrum_matches_openfermion(mapping):
     ref = np.linalg.eigvalsh(ref_op.toarray())
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
     assert ham.n_qubits == 4
-    ours = np.linalg.eigvalsh(ham.to_sparse().toarray())
+    ours = np.linalg.eigvalsh(ham.sparse_matrix().toarray())
     assert np.abs(ours - ref).max() < 1e-10
 
 
@@ -99,7 +99,7 @@ def test_jordan_wigner_term_counts(name, count):
     ref = of.jordan_wigner(openfermion_interaction_operator(m))
     ref.compress(1e-12)
     assert len(ref.terms) == count
-    assert ham.allclose(PauliSum.from_openfermion(ref, ham.n_qubits), atol=1e-12)
+    assert ham.allclose(PauliExpansion.from_openfermion(ref, ham.n_qubits), atol=1e-12)
 
 
 @pytest.mark.parametrize("name", ["h2", "lih"])
@@ -111,7 +111,7 @@ def test_parity_matches_openfermion_binary_code(name):
     ref = of.binary_code_transform(fop, of.parity_code(n))
     ref.compress(1e-12)
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, "parity")
-    assert ham.allclose(PauliSum.from_openfermion(ref, n), atol=1e-12)
+    assert ham.allclose(PauliExpansion.from_openfermion(ref, n), atol=1e-12)
 
 
 def test_bravyi_kitaev_matrix_matches_openfermion():
@@ -153,7 +153,7 @@ def test_random_fermion_operator_all_mappings(n):
     for mapping, ref in refs.items():
         ours = map_fermion_operator(op, n, mapping)
         ref.compress(1e-12)
-        assert ours.allclose(PauliSum.from_openfermion(ref, n), atol=1e-12), mapping
+        assert ours.allclose(PauliExpansion.from_openfermion(ref, n), atol=1e-12), mapping
 
 
 @pytest.mark.parametrize("mapping", MAPPINGS)
@@ -185,7 +185,7 @@ def test_number_and_sz_are_diagonal(mapping):
     n_op, sz_op = number_operator(8, mapping), sz_operator(8, mapping)
     assert n_op.is_diagonal() and sz_op.is_diagonal()
     ref = of.get_sparse_operator(of.jordan_wigner(of.number_operator(8)), 8)
-    ours = n_op.to_sparse()
+    ours = n_op.sparse_matrix()
     if mapping == "jordan_wigner":
         # reference: OpenFermion number_operator computed at test time
         assert abs(ours - ref).max() < 1e-12

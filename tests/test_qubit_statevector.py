@@ -12,11 +12,11 @@ import scipy.linalg
 from eigensweep.circuit import Circuit, Gate
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
-    PauliSum,
+    PauliExpansion,
     apply_gate,
     apply_pauli,
+    apply_pauli_expansion,
     apply_pauli_rotation,
-    apply_pauli_sum,
     basis_state,
     expectation,
     simulate,
@@ -32,9 +32,9 @@ _P0 = np.diag([1.0, 0.0])
 _P1 = np.diag([0.0, 1.0])
 
 
-def random_sum(rng: np.random.Generator, n: int, n_terms: int) -> PauliSum:
+def random_sum(rng: np.random.Generator, n: int, n_terms: int) -> PauliExpansion:
     labels = ["".join(rng.choice(list("IXYZ"), n)) for _ in range(n_terms)]
-    return PauliSum.from_labels(labels, rng.normal(size=n_terms))
+    return PauliExpansion.from_strings(labels, rng.normal(size=n_terms))
 
 
 def random_state(rng: np.random.Generator, n: int) -> np.ndarray:
@@ -60,12 +60,12 @@ def cx_full(c: int, t: int, n: int) -> np.ndarray:
 # ---------------------------------------------------------------- bad input
 def test_bad_input():
     psi = basis_state(np.array([0, 1]))
-    with pytest.raises(TypeError, match="PauliSum"):
-        apply_pauli_sum(psi, of.QubitOperator("Z0"))
+    with pytest.raises(TypeError, match="PauliExpansion"):
+        apply_pauli_expansion(psi, of.QubitOperator("Z0"))
     with pytest.raises(TypeError, match="numpy.ndarray"):
-        apply_pauli_sum(list(psi), PauliSum.from_labels(["ZI"], [1.0]))
+        apply_pauli_expansion(list(psi), PauliExpansion.from_strings(["ZI"], [1.0]))
     with pytest.raises(ConfigError, match="2 qubits but the operator acts on 3"):
-        apply_pauli_sum(psi, PauliSum.from_labels(["ZII"], [1.0]))
+        apply_pauli_expansion(psi, PauliExpansion.from_strings(["ZII"], [1.0]))
     with pytest.raises(ConfigError, match="length 2\\*\\*n"):
         apply_pauli(np.ones(3, complex), [1, 0], [0, 0])
     with pytest.raises(TypeError, match="Gate"):
@@ -87,14 +87,14 @@ def test_basis_state_order_matches_openfermion():
 
 
 @pytest.mark.parametrize("n", [6, 7, 8])
-def test_apply_pauli_sum_matches_sparse_matrix(n):
+def test_apply_pauli_expansion_matches_sparse(n):
     # reference: OpenFermion get_sparse_operator computed at test time
     rng = np.random.default_rng(n)
     ham = random_sum(rng, n, 60)
     mat = of.get_sparse_operator(ham.to_openfermion(), n)
     for _ in range(3):
         psi = random_state(rng, n)
-        assert np.abs(apply_pauli_sum(psi, ham) - mat @ psi).max() < 1e-12
+        assert np.abs(apply_pauli_expansion(psi, ham) - mat @ psi).max() < 1e-12
         assert expectation(psi, ham) == pytest.approx(np.vdot(psi, mat @ psi).real, abs=1e-12)
 
 
@@ -119,7 +119,7 @@ def test_apply_pauli_each_term():
     letters = {"I": _I2, "X": _X, "Y": _Y, "Z": _Z}
     psi = random_state(rng, 4)
     for label in ("XYZI", "YYII", "ZZZZ", "IIIY", "IIII"):
-        p = PauliSum.from_labels([label], [1.0])
+        p = PauliExpansion.from_strings([label], [1.0])
         full = kron_all([letters[c] for c in label])
         assert np.allclose(apply_pauli(psi, p.x[0], p.z[0]), full @ psi, atol=1e-14)
 
@@ -130,7 +130,7 @@ def test_apply_pauli_rotation_matches_expm():
     n = 5
     psi = random_state(rng, n)
     for label, angle in (("XYZIZ", 0.37), ("YIIIX", -1.9), ("IZIZI", 2.5)):
-        p = PauliSum.from_labels([label], [1.0])
+        p = PauliExpansion.from_strings([label], [1.0])
         mat = of.get_sparse_operator(p.to_openfermion(), n).toarray()
         ref = scipy.linalg.expm(-0.5j * angle * mat) @ psi
         assert np.allclose(apply_pauli_rotation(psi, p.x[0], p.z[0], angle), ref, atol=1e-13)

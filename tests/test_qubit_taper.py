@@ -13,56 +13,56 @@ from test_qubit_molecules import molecule
 from eigensweep.errors import ConfigError, StageFileError
 from eigensweep.qubit import (
     MAPPINGS,
-    PauliSum,
-    TaperResult,
+    PauliExpansion,
+    SectorReduction,
     basis_state,
     expectation,
-    find_z2_symmetries,
+    identity_reduction,
     map_fermion_operator,
     map_hamiltonian,
-    no_taper,
     number_operator,
+    reduce_to_sector,
     reference_bits,
     sector_ground_energy,
-    taper,
+    symmetry_null_space,
 )
 from eigensweep.qubit.pauli import symplectic_inner
 
 
 @functools.cache
-def tapered(name: str, mapping: str) -> tuple[PauliSum, TaperResult]:
+def tapered(name: str, mapping: str) -> tuple[PauliExpansion, SectorReduction]:
     m = molecule(name)
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
-    return ham, taper(ham, reference_bits(m.nelec, m.norb, mapping))
+    return ham, reduce_to_sector(ham, reference_bits(m.nelec, m.norb, mapping))
 
 
 # ---------------------------------------------------------------- bad input
 def test_bad_input():
-    ham = PauliSum.from_labels(["ZZ", "XX"], [1.0, 0.5])
-    with pytest.raises(TypeError, match="PauliSum"):
-        taper(of.QubitOperator("Z0"), np.array([0, 0]))
-    with pytest.raises(TypeError, match="PauliSum"):
-        find_z2_symmetries(ham.to_openfermion())
+    ham = PauliExpansion.from_strings(["ZZ", "XX"], [1.0, 0.5])
+    with pytest.raises(TypeError, match="PauliExpansion"):
+        reduce_to_sector(of.QubitOperator("Z0"), np.array([0, 0]))
+    with pytest.raises(TypeError, match="PauliExpansion"):
+        symmetry_null_space(ham.to_openfermion())
     with pytest.raises(ConfigError, match="2 values of 0/1"):
-        taper(ham, np.array([0, 1, 1]))
-    with pytest.raises(TypeError, match="PauliSum"):
-        no_taper(None, np.array([0, 0]))
+        reduce_to_sector(ham, np.array([0, 1, 1]))
+    with pytest.raises(TypeError, match="PauliExpansion"):
+        identity_reduction(None, np.array([0, 0]))
 
 
 def test_taper_operator_refuses_non_commuting_operator():
     _, result = tapered("h2", "jordan_wigner")
-    x_on_0 = PauliSum.from_labels(["XIII"], [1.0])  # flips the alpha-electron parity
+    x_on_0 = PauliExpansion.from_strings(["XIII"], [1.0])  # flips the alpha-electron parity
     with pytest.raises(ValueError, match="anticommute"):
         result.taper_operator(x_on_0)
     with pytest.raises(ConfigError, match="5 qubits"):
-        result.taper_operator(PauliSum.from_labels(["IIIII"], [1.0]))
+        result.taper_operator(PauliExpansion.from_strings(["IIIII"], [1.0]))
 
 
 # ---------------------------------------------------------------- round trips
 def test_store_round_trip():
     _, result = tapered("lih", "parity")
     arrays = result.to_store("taper_")
-    back = TaperResult.from_store(arrays, "taper_")
+    back = SectorReduction.from_store(arrays, "taper_")
     assert back.hamiltonian.allclose(result.hamiltonian, atol=0)
     assert back.generators.allclose(result.generators, atol=0)
     assert np.array_equal(back.sector, result.sector)
@@ -72,18 +72,18 @@ def test_store_round_trip():
     broken = dict(arrays)
     broken["taper_sector"] = broken["taper_sector"][:-1]
     with pytest.raises(StageFileError, match="inconsistent"):
-        TaperResult.from_store(broken, "taper_")
+        SectorReduction.from_store(broken, "taper_")
 
 
-def test_no_taper_is_identity_stage():
+def test_identity_reduction_passes_the_problem_through():
     ham, _ = tapered("h2", "jordan_wigner")
     bits = reference_bits((1, 1), 2, "jordan_wigner")
-    result = no_taper(ham, bits)
+    result = identity_reduction(ham, bits)
     assert result.generators.n_terms == 0 and result.n_qubits == 4
     assert result.hamiltonian.allclose(ham, atol=0)
     assert np.array_equal(result.reference_bits, bits)
     assert result.taper_operator(ham).allclose(ham, atol=0)
-    back = TaperResult.from_store(result.to_store("t_"), "t_")
+    back = SectorReduction.from_store(result.to_store("t_"), "t_")
     assert back.generators.n_terms == 0 and back.hamiltonian.allclose(ham, atol=0)
 
 
@@ -95,7 +95,7 @@ def test_h2_four_qubits_to_one():
         assert result.generators.n_terms == 3
         assert result.n_qubits == 1
         # reference: PySCF FCI computed at test time (2x2 problem: lowest eigenvalue)
-        lowest = np.linalg.eigvalsh(result.hamiltonian.to_sparse().toarray())[0]
+        lowest = np.linalg.eigvalsh(result.hamiltonian.sparse_matrix().toarray())[0]
         assert lowest == pytest.approx(molecule("h2").e_fci, abs=1e-8)
 
 
@@ -148,7 +148,7 @@ def test_spectrum_matches_openfermion_taper_off_qubits(name, mapping):
     ref_op = of.taper_off_qubits(ham.to_openfermion(), stabilizers)
     n = result.n_qubits
     ref = np.linalg.eigvalsh(of.get_sparse_operator(ref_op, n).toarray())
-    ours = np.linalg.eigvalsh(result.hamiltonian.to_sparse().toarray())
+    ours = np.linalg.eigvalsh(result.hamiltonian.sparse_matrix().toarray())
     assert np.abs(ours - ref).max() < 1e-10
 
 
@@ -172,20 +172,22 @@ def test_taper_operator_keeps_number_and_excitation_algebra():
     assert tap_val == pytest.approx(full_val.real, abs=1e-12)
     # <HF|G^2|HF> is the weight of the excited determinant: same before and after tapering
     g2_full = of.get_sparse_operator(gen.to_openfermion(), n) @ full_ref
-    g2_tap = result.taper_operator(gen).to_sparse() @ tap_ref
+    g2_tap = result.taper_operator(gen).sparse_matrix() @ tap_ref
     assert np.vdot(g2_tap, g2_tap).real == pytest.approx(np.vdot(g2_full, g2_full).real)
 
 
 def test_symmetry_with_x_letters_is_reported_not_tapered():
     # common practice, by hand: X0 X1 + Z0 Z1 commutes with both X0 X1 and Z0 Z1; only the
     # Z string has a sector fixed by a basis-state reference
-    ham = PauliSum.from_labels(["XX", "ZZ"], [0.5, 1.0])
-    gens = find_z2_symmetries(ham)
+    ham = PauliExpansion.from_strings(["XX", "ZZ"], [0.5, 1.0])
+    gens = symmetry_null_space(ham)
     assert gens.labels() == ["ZZ", "XX"]
     with pytest.warns(UserWarning, match="not tapered"):
-        result = taper(ham, np.array([1, 0]))
+        result = reduce_to_sector(ham, np.array([1, 0]))
     assert result.generators.labels() == ["ZZ"] and result.n_qubits == 1
     assert result.sector.tolist() == [-1]
     assert result.qubits_kept.tolist() == [0]
     # by hand: on the ZZ = -1 states {01, 10}, H = -1 + 0.5 (swap), eigenvalues -1.5 and -0.5
-    assert np.allclose(np.linalg.eigvalsh(result.hamiltonian.to_sparse().toarray()), [-1.5, -0.5])
+    assert np.allclose(
+        np.linalg.eigvalsh(result.hamiltonian.sparse_matrix().toarray()), [-1.5, -0.5]
+    )

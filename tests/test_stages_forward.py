@@ -22,7 +22,7 @@ from eigensweep.collect import collect
 from eigensweep.config import load_config
 from eigensweep.plan import build_plan, parent_files
 from eigensweep.stage_table import stage_path
-from eigensweep.stages import STAGE_ACTIONS, load_z2_symmetries
+from eigensweep.stages import STAGE_ACTIONS, load_diagonal_symmetries
 from eigensweep.store import read_stage
 
 CONFIG = {
@@ -40,7 +40,7 @@ def sweep(tmp_path_factory):
     import eigensweep.qubit as qubit_package
 
     taper_module = importlib.import_module("eigensweep.qubit.taper")
-    names = ("taper", "find_z2_symmetries", "z2_symmetries")
+    names = ("reduce_to_sector", "symmetry_null_space", "diagonal_symmetries")
     real = {(m, k): getattr(m, k) for m in (qubit_package, taper_module) for k in names}
 
     def refuse(*args, **kwargs):
@@ -80,7 +80,7 @@ def test_taper_file_carries_z2_symmetries_when_tapering_is_off(sweep):
 
     work, plan = sweep
     for sd in _files(work, plan, "taper"):
-        gens, sector = load_z2_symmetries(sd)
+        gens, sector = load_diagonal_symmetries(sd)
         # H2 / STO-3G, Jordan-Wigner: 3 independent Z2 symmetries, 4 -> 1 qubits
         # (Bravyi et al. 2017, arXiv:1701.08213)
         assert gens.n_terms == 3 and gens.n_qubits == 4
@@ -98,14 +98,14 @@ def test_taper_file_carries_z2_symmetries_when_tapering_is_off(sweep):
 
 
 def test_taper_file_carries_the_tapered_number_and_spin_operators(sweep):
-    from eigensweep.qubit import PauliSum
+    from eigensweep.qubit import PauliExpansion
     from eigensweep.qubit.statevector import basis_state, expectation
 
     work, plan = sweep
     for sd in _files(work, plan, "taper"):
         ref = np.asarray(sd.arrays["taper/reference_bits"])
-        number = PauliSum.from_store(sd.arrays, "number/")
-        spin_z = PauliSum.from_store(sd.arrays, "spin_z/")
+        number = PauliExpansion.from_store(sd.arrays, "number/")
+        spin_z = PauliExpansion.from_store(sd.arrays, "spin_z/")
         # the HF reference of H2 has N = 2 and S_z = 0 (closed shell, Szabo & Ostlund)
         assert expectation(basis_state(ref), number) == pytest.approx(2.0, abs=1e-12)
         assert expectation(basis_state(ref), spin_z) == pytest.approx(0.0, abs=1e-12)

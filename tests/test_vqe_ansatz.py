@@ -20,7 +20,7 @@ from eigensweep.vqe import (  # noqa: E402
     PauliGate,
     PauliRotationAnsatz,
     fci_ground_state,
-    pool_terms,
+    pool_excitations,
     run_optimize,
 )
 
@@ -63,7 +63,7 @@ def _fd_check(fun_and_grad, fun, theta, h=1e-5, n_check=8):
 
 def _fermionic_ansatze():
     space = space_of("LiH")
-    adapt_terms = pool_terms("singles_doubles", space.norb, space.nelec)[::7]
+    adapt_terms = pool_excitations("singles_doubles", space.norb, space.nelec)[::7]
     return [
         UCCSD(space),
         UCCSD(space, spin_adapted=True),
@@ -224,7 +224,7 @@ def test_hea_run_on_h2_starts_at_hf_and_ends_at_the_singlet(r, tapered):
     # triplet (+24.1 mHa) marked converged
     from pyscf import ao2mo, fci, gto, scf
 
-    from eigensweep.qubit import reference_bits, taper
+    from eigensweep.qubit import reduce_to_sector, reference_bits
 
     mol = gto.M(atom=f"H 0 0 0; H 0 0 {r}", basis="sto-3g", verbose=0)
     mf = scf.RHF(mol)
@@ -242,7 +242,7 @@ def test_hea_run_on_h2_starts_at_hf_and_ends_at_the_singlet(r, tapered):
     tap = None
     if tapered:
         ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
-        tap = taper(ham, reference_bits((1, 1), 2, "jordan_wigner"))
+        tap = reduce_to_sector(ham, reference_bits((1, 1), 2, "jordan_wigner"))
     res = run_optimize(
         **m,
         ansatz={"name": "hardware_efficient", "rounds": 2, "init_scale": 0.0},
@@ -261,11 +261,11 @@ def test_hea_run_on_h2_starts_at_hf_and_ends_at_the_singlet(r, tapered):
 def test_hea_run_on_tapered_lih_starts_at_hf_and_ends_below():
     from pyscf import gto, scf
 
-    from eigensweep.qubit import map_hamiltonian, reference_bits, taper
+    from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
 
     m = molecule("LiH")
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "parity")
-    tap = taper(ham, reference_bits(m["nelec"], m["norb"], "parity"))
+    tap = reduce_to_sector(ham, reference_bits(m["nelec"], m["norb"], "parity"))
     res = run_optimize(
         **m,
         ansatz={"name": "hardware_efficient", "rounds": 1, "init_scale": 0.0},

@@ -13,7 +13,7 @@ from functools import cache
 import numpy as np
 from pyscf import ao2mo, gto, scf
 
-from eigensweep.qubit.pauli import PauliSum
+from eigensweep.qubit.pauli import PauliExpansion
 from eigensweep.vqe.detspace import DetSpace
 
 _ANGLE = math.radians(104.48 / 2.0)
@@ -53,7 +53,7 @@ def space_of(name: str) -> DetSpace:
     return DetSpace(m["norb"], m["nelec"], m["h1e"], m["eri"], m["e_core"])
 
 
-def h2_two_qubit() -> tuple[PauliSum, float]:
+def h2_two_qubit() -> tuple[PauliExpansion, float]:
     """H2/STO-3G in the 4-determinant (N=2, Sz=0) space as a 2-qubit Pauli sum.
 
     Qubit 0 = occupation of the alpha antibonding orbital, qubit 1 = beta antibonding; |00> is
@@ -75,4 +75,4 @@ def h2_two_qubit() -> tuple[PauliSum, float]:
             if abs(c) > 1e-12:
                 labels.append(a + b)
                 coeffs.append(c)
-    return PauliSum.from_labels(labels, coeffs), float(np.linalg.eigvalsh(mat)[0])
+    return PauliExpansion.from_strings(labels, coeffs), float(np.linalg.eigvalsh(mat)[0])

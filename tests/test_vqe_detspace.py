@@ -25,7 +25,7 @@ from eigensweep.vqe import (  # noqa: E402
     UCCSD,
     KUpCCGSD,
     from_qubit_state,
-    pool_terms,
+    pool_excitations,
     to_qubit_state,
 )
 
@@ -108,10 +108,10 @@ def test_pauli_rotations_reproduce_state_energy(mapping):
         op = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner").to_openfermion()
         fer = of.reverse_jordan_wigner(op, n)
         qop = of.binary_code_transform(fer, of.parity_code(n))
-        from eigensweep.qubit.pauli import PauliSum
+        from eigensweep.qubit.pauli import PauliExpansion
 
         qop.compress(1e-12)
-        ham = PauliSum.from_openfermion(qop, n)
+        ham = PauliExpansion.from_openfermion(qop, n)
     else:
         ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], mapping)
     assert abs(sv.expectation(psi, ham) - ansatz.energy(theta)) < 1e-9
@@ -165,7 +165,7 @@ def test_generator_paulis_equal_openfermion(mapping):
     # computed at test time; 10 spin orbitals (not a power of two) and an open shell
     norb, nelec = 5, (3, 2)
     n = 2 * norb
-    for term in pool_terms("generalised_singles_doubles", norb, nelec)[::3]:
+    for term in pool_excitations("generalised_singles_doubles", norb, nelec)[::3]:
         ours = [
             (tuple((int(q), "IXZY"[int(x[q]) + 2 * int(z[q])]) for q in np.flatnonzero(x | z)), c)
             for x, z, c in generator_paulis(term, mapping, n)

@@ -18,7 +18,7 @@ from study_helpers import run_plan
 from eigensweep.chem import compute_integrals
 from eigensweep.collect import collect
 from eigensweep.errors import StageFileError
-from eigensweep.qubit import map_hamiltonian, reference_bits, taper
+from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
 from eigensweep.vqe import run_optimize
 from eigensweep.vqe.detspace import DetSpace
 from eigensweep.vqe.reference import ExactReference, check_qubit_problem, state_moments
@@ -40,7 +40,7 @@ def integrals(atoms: str, multiplicity: int = 1, active: tuple | None = None):
 def tapering(atoms: str, mapping: str, multiplicity: int = 1, active: tuple | None = None):
     ints = integrals(atoms, multiplicity, active)
     ham = map_hamiltonian(ints.h1e, ints.eri, ints.e_core, mapping)
-    return ham, taper(ham, reference_bits(ints.nelec, ints.norb, mapping))
+    return ham, reduce_to_sector(ham, reference_bits(ints.nelec, ints.norb, mapping))
 
 
 def optimize(ints, tap=None, **kw):
@@ -77,7 +77,7 @@ def test_tapered_exact_state_is_the_tapered_ground_state(mapping):
     psi = ref.qubit_vectors(mapping, tap)[0]
     # reference: NumPy dense diagonalisation of the tapered Hamiltonian (its ground state is
     # the singlet for LiH at 1.6 Angstrom, PySCF CASCI energy)
-    vals, vecs = np.linalg.eigh(tap.hamiltonian.to_sparse().toarray())
+    vals, vecs = np.linalg.eigh(tap.hamiltonian.sparse_matrix().toarray())
     assert vals[0] == pytest.approx(ints.references["casci"], abs=1e-9)
     assert abs(np.vdot(vecs[:, 0], psi)) ** 2 == pytest.approx(1.0, abs=1e-9)
     # round trip back to the full encoded state (closed form: the tapering is unitary)
@@ -140,7 +140,7 @@ def test_o2_singlet_sector_vectors_span_the_tapered_ground_space():
     frame = ref.sector_vectors("jordan_wigner", tap)
     # reference: NumPy dense diagonalisation of the tapered Hamiltonian; its lowest level is
     # PySCF's singlet CASCI energy and its eigenspace is what the sector holds of the pair
-    vals, vecs = np.linalg.eigh(tap.hamiltonian.to_sparse().toarray())
+    vals, vecs = np.linalg.eigh(tap.hamiltonian.sparse_matrix().toarray())
     ground = vecs[:, np.abs(vals - vals[0]) < 1e-8]
     assert vals[0] == pytest.approx(ints.references["casci"], abs=1e-9)
     assert frame.shape[0] == ground.shape[1]
@@ -154,7 +154,7 @@ def test_o2_singlet_sector_vectors_span_the_tapered_ground_space():
 def openfermion_moments(psi: np.ndarray, norb: int, mapping: str, tap=None):
     import openfermion as of
 
-    from eigensweep.qubit.mapping import _from_qubit_operator  # PauliSum from OpenFermion
+    from eigensweep.qubit.mapping import _from_qubit_operator  # PauliExpansion from OpenFermion
 
     n_q = 2 * norb
     transform = {"jordan_wigner": of.jordan_wigner, "bravyi_kitaev": of.bravyi_kitaev}[mapping]
@@ -164,7 +164,7 @@ def openfermion_moments(psi: np.ndarray, norb: int, mapping: str, tap=None):
         if tap is None:
             mat = of.get_sparse_operator(qop, n_q)
         else:
-            mat = tap.taper_operator(_from_qubit_operator(qop, n_q)).to_sparse()
+            mat = tap.taper_operator(_from_qubit_operator(qop, n_q)).sparse_matrix()
         out.append(float(np.vdot(psi, mat @ psi).real))
     return out
 

@@ -3,7 +3,7 @@
 Integrals are built directly with PySCF (RHF/STO-3G, ``symmetry=True`` so the orbitals are
 symmetry-adapted and point-group parities become Z2 symmetries): ``h1e = C^T hcore C``,
 ``eri = ao2mo.restore(1, ao2mo.kernel(mol, C), norb)``, ``e_core = mol.energy_nuc()``; the qubit
-problem comes from :func:`eigensweep.qubit.map_hamiltonian`, ``reference_bits`` and ``taper``.
+problem comes from :func:`eigensweep.qubit.map_hamiltonian`, ``reference_bits`` and ``reduce_to_sector``.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ import pytest
 from pyscf import ao2mo, fci, gto, scf
 
 from eigensweep.errors import ConfigError
-from eigensweep.qubit import map_hamiltonian, no_taper, reference_bits, taper
+from eigensweep.qubit import identity_reduction, map_hamiltonian, reduce_to_sector, reference_bits
 from eigensweep.qubit.statevector import expectation, simulate
 from eigensweep.vqe import (
     UCCSD,
@@ -60,7 +60,7 @@ def problem(name: str) -> dict:
 def tapering(name: str, mapping: str):
     ints = problem(name)["ints"]
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], mapping)
-    return taper(ham, reference_bits(ints["nelec"], ints["norb"], mapping))
+    return reduce_to_sector(ham, reference_bits(ints["nelec"], ints["norb"], mapping))
 
 
 @cache
@@ -187,7 +187,7 @@ def test_untapered_mapping_sets_costs_and_taper_stage_identity():
     ints = problem(name)["ints"]
     base = untapered_uccsd(name)
     for mapping in ("bravyi_kitaev", "parity"):
-        ident = no_taper(
+        ident = identity_reduction(
             map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], mapping),
             reference_bits(ints["nelec"], ints["norb"], mapping),
         )
@@ -232,7 +232,7 @@ def test_tapering_of_another_mapping_is_rejected(name):
                     tapering=tapering(name, built),
                 )
         ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], built)
-        ident = no_taper(ham, reference_bits(ints["nelec"], ints["norb"], built))
+        ident = identity_reduction(ham, reference_bits(ints["nelec"], ints["norb"], built))
         with pytest.raises(ConfigError, match="mapping"):
             run_optimize(**ints, ansatz={"name": "uccsd"}, **EXACT, mapping=claimed, tapering=ident)
 

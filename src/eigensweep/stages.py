@@ -43,11 +43,11 @@ def load_integrals(path: str | Path):
 
 
 def load_taper(path: str | Path):
-    """The :class:`~eigensweep.qubit.TaperResult` stored in a taper stage file."""
-    from .qubit import TaperResult
+    """The :class:`~eigensweep.qubit.SectorReduction` stored in a taper stage file."""
+    from .qubit import SectorReduction
 
     sd = read_stage(path, stage="taper")
-    return TaperResult.from_store(sd.arrays, "taper/"), sd
+    return SectorReduction.from_store(sd.arrays, "taper/"), sd
 
 
 def run_integrals(
@@ -147,21 +147,28 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
     stored; writes the (tapered) problem, the tapered number and S_z operators, and the Z2
     generators with their sector (``z2/``, also when tapering is off) for later stages.
     """
-    from .qubit import PauliSum, no_taper, qwc_groups, shots_for_precision, taper, z2_symmetries
+    from .qubit import (
+        PauliExpansion,
+        diagonal_symmetries,
+        identity_reduction,
+        qwc_groups,
+        reduce_to_sector,
+        shots_for_precision,
+    )
     from .qubit.statevector import basis_state
 
     sd = read_stage(inputs["hamiltonian"], stage="hamiltonian")
-    ham = PauliSum.from_store(sd.arrays, "hamiltonian/")
+    ham = PauliExpansion.from_store(sd.arrays, "hamiltonian/")
     ref = sd.arrays["reference_bits"]
     with Timer() as t:
         if node.params["taper"]:
-            res = taper(ham, ref)
+            res = reduce_to_sector(ham, ref)
             z2, z2_sector = res.generators, res.sector
         else:
-            res = no_taper(ham, ref)
-            z2, _, z2_sector = z2_symmetries(ham, ref)
-        number = res.taper_operator(PauliSum.from_store(sd.arrays, "number/"))
-        spin_z = res.taper_operator(PauliSum.from_store(sd.arrays, "spin_z/"))
+            res = identity_reduction(ham, ref)
+            z2, _, z2_sector = diagonal_symmetries(ham, ref)
+        number = res.taper_operator(PauliExpansion.from_store(sd.arrays, "number/"))
+        spin_z = res.taper_operator(PauliExpansion.from_store(sd.arrays, "spin_z/"))
         # measurement cost of the problem the optimizer and the device will see
         tham = res.hamiltonian
         groups = qwc_groups(tham)
@@ -204,11 +211,11 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
     _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
-def load_z2_symmetries(sd):
+def load_diagonal_symmetries(sd):
     """The Z2 generators (on the untapered qubits) and sector a taper stage file stores."""
-    from .qubit import PauliSum
+    from .qubit import PauliExpansion
 
-    gens = PauliSum.from_store(sd.arrays, "z2/generators/")
+    gens = PauliExpansion.from_store(sd.arrays, "z2/generators/")
     return gens, np.asarray(sd.arrays["z2/sector"], dtype=np.int8)
 
 
@@ -372,7 +379,7 @@ def run_reconcile(
             counts = load_results(inputs["counts"], manifest)
         # the Z2 symmetries the taper stage stored: they verify an untapered job's counts; a
         # tapered job's were removed with their qubits (reconcile notes that and skips them)
-        generators, sector = load_z2_symmetries(tap_sd)
+        generators, sector = load_diagonal_symmetries(tap_sd)
         res = reconcile(
             manifest,
             counts,

@@ -9,12 +9,12 @@ in ``docs/counts-format.md``.
 """
 
 from eigensweep.device.compile import (
+    base_of_global_fold,
     circuit_from_rotations,
-    fold_circuit,
+    globally_folded_circuit,
     group_basis,
     measurement_circuit,
     state_circuit,
-    unfold_circuit,
 )
 from eigensweep.device.counts import (
     RESULTS_FORMAT,
@@ -40,8 +40,8 @@ from eigensweep.device.manifest import (
 )
 from eigensweep.device.qasm import QasmReadError, from_qasm2, from_qasm3, to_qasm2, to_qasm3
 from eigensweep.device.reconcile import (
+    BootstrapEnergy,
     CircuitDiagnostics,
-    EnergyEstimate,
     ReconcileResult,
     plot_histograms,
     reconcile,
@@ -58,13 +58,13 @@ __all__ = [
     "CircuitDiagnostics",
     "CircuitRecord",
     "DeviceJob",
-    "EnergyEstimate",
+    "BootstrapEnergy",
     "QasmReadError",
     "ReconcileResult",
     "allocate_shots",
     "build_job",
     "circuit_from_rotations",
-    "fold_circuit",
+    "globally_folded_circuit",
     "from_qasm2",
     "from_qasm3",
     "group_basis",
@@ -81,7 +81,7 @@ __all__ = [
     "state_circuit",
     "to_qasm2",
     "to_qasm3",
-    "unfold_circuit",
+    "base_of_global_fold",
     "validate_results",
     "write_job",
     "write_results",

@@ -22,9 +22,9 @@ __all__ = [
     "circuit_from_rotations",
     "group_basis",
     "measurement_circuit",
-    "fold_circuit",
+    "globally_folded_circuit",
     "state_circuit",
-    "unfold_circuit",
+    "base_of_global_fold",
 ]
 
 
@@ -84,7 +84,7 @@ def _check_scale(scale: int) -> int:
     return scale
 
 
-def fold_circuit(circuit: Circuit, scale: int) -> Circuit:
+def globally_folded_circuit(circuit: Circuit, scale: int) -> Circuit:
     """Global unitary folding ``G (G^dagger G)^((scale-1)/2)`` (Giurgica-Tiron et al. 2020).
 
     The folded circuit implements exactly the same unitary; on a noisy device it runs about
@@ -101,8 +101,8 @@ def fold_circuit(circuit: Circuit, scale: int) -> Circuit:
     return out
 
 
-def unfold_circuit(folded: Circuit, scale: int) -> Circuit:
-    """Recover ``G`` from ``fold_circuit(G, scale)``; raises ``ValueError`` if not such a fold."""
+def base_of_global_fold(folded: Circuit, scale: int) -> Circuit:
+    """Recover ``G`` from ``globally_folded_circuit(G, scale)``; raises ``ValueError`` if not such a fold."""
     k = (_check_scale(scale) - 1) // 2
     n_total = len(folded.gates)
     # len(fold) = m + k * (m + n_sx(m) + m) where m = len(G); n_sx counts gates inverted in two
@@ -113,7 +113,7 @@ def unfold_circuit(folded: Circuit, scale: int) -> Circuit:
         if m + k * (2 * m + n_sx) != n_total:
             continue
         base = Circuit(folded.n_qubits, list(folded.gates[:m]))
-        if fold_circuit(base, 2 * k + 1).gates == folded.gates:
+        if globally_folded_circuit(base, 2 * k + 1).gates == folded.gates:
             return base
     raise ValueError(f"circuit is not a global fold with scale {2 * k + 1}")
 

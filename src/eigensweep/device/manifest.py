@@ -6,7 +6,7 @@ A job holds, for one optimized circuit and one qubit Hamiltonian,
   (global unitary folding, Giurgica-Tiron et al., IEEE QCE 2020, arXiv:2005.10921, of the
   whole circuit including the basis change), and
 * two readout-calibration circuits (prepare all zeros / all ones and measure), which give
-  every qubit's 2x2 confusion matrix under the uncorrelated (tensored) readout-error model.
+  every qubit's 2x2 confusion matrix under the uncorrelated (per-qubit) readout-error model.
 
 Shots are split across measurement circuits in proportion to the group weight
 ``w_g = sum_{i in g} |c_i|`` (equally across scale factors), with a minimum per circuit. With
@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from eigensweep.circuit import Circuit
-from eigensweep.device.compile import fold_circuit, group_basis, measurement_circuit
+from eigensweep.device.compile import globally_folded_circuit, group_basis, measurement_circuit
 from eigensweep.device.qasm import to_qasm2, to_qasm3
 from eigensweep.errors import StageFileError
 from eigensweep.store import atomic_write_text
@@ -77,7 +77,7 @@ def sha256_text(text: str) -> str:
 
 
 def pauli_labels(ham) -> list[str]:
-    """Labels of a PauliSum-like object (``x``, ``z`` bool arrays): char ``k`` = qubit ``k``."""
+    """Labels of a PauliExpansion-like object (``x``, ``z`` bool arrays): char ``k`` = qubit ``k``."""
     x = np.asarray(ham.x, dtype=bool).reshape(-1, int(ham.n_qubits))
     z = np.asarray(ham.z, dtype=bool).reshape(-1, int(ham.n_qubits))
     table = np.array(["I", "X", "Z", "Y"])  # index x + 2 z
@@ -314,7 +314,7 @@ def build_job(
 ) -> DeviceJob:
     """Build the measurement and calibration circuits for ``circuit`` and Hamiltonian ``ham``.
 
-    ``ham`` is a PauliSum (``x``, ``z``, ``coeffs``, ``n_qubits``); ``groups`` (term indices,
+    ``ham`` is a PauliExpansion (``x``, ``z``, ``coeffs``, ``n_qubits``); ``groups`` (term indices,
     identity excluded) default to :func:`default_groups`. A fraction ``calibration_fraction``
     of ``shots_total`` goes to the two calibration circuits; the rest is split over groups in
     proportion to ``sum |c|`` and equally over ``scale_factors`` (odd, positive, distinct).
@@ -330,7 +330,7 @@ def build_job(
     if not scales or len(set(scales)) != len(scales):
         raise ValueError(f"scale_factors must be distinct odd positive integers, got {scales}")
     for s in scales:
-        fold_circuit(Circuit(n), s)  # validates oddness / positivity
+        globally_folded_circuit(Circuit(n), s)  # validates oddness / positivity
     meta = dict(meta or {})
     try:
         json.dumps(meta, allow_nan=False)
@@ -413,7 +413,7 @@ def build_job(
         ]
         for s in scales:
             cid = f"g{gi['group']:0{w}d}-fold{s}"
-            circ = fold_circuit(base, s)
+            circ = globally_folded_circuit(base, s)
             add(cid, "measure", gi["group"], s, gi["basis"], pterms, meas_shots[k], circ, ideal)
             k += 1
     if calibration:

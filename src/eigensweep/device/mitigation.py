@@ -1,13 +1,13 @@
 """Error-mitigation numerics for returned counts (all vectorised over bootstrap replicates).
 
-* **Readout mitigation by calibration matrices** (tensored / uncorrelated model): from the
+* **Readout mitigation by calibration matrices** (per-qubit / uncorrelated model): from the
   all-zeros and all-ones calibration circuits every qubit ``k`` gets a confusion matrix
   ``A_k = [[P(0|0), P(0|1)], [P(1|0), P(1|1)]]`` (columns: prepared value). The measured
-  distribution is ``p_meas = (A_0 (x) ... (x) A_{n-1}) p_true``; we apply the tensored inverse
+  distribution is ``p_meas = (A_0 (x) ... (x) A_{n-1}) p_true``; we apply the per-qubit inverse
   qubit by qubit and then project the result onto the probability simplex (the nearest
   probability vector in Euclidean distance, sort-based algorithm of Held, Wolfe & Crowder
   1974 / Duchi et al., ICML 2008), so the mitigated probabilities are >= 0 and sum to 1. This
-  is the constrained least-squares solution when the tensored inverse is well conditioned;
+  is the constrained least-squares solution when the per-qubit inverse is well conditioned;
   cost is ``O(n 2^n)`` per distribution, fine for up to ~16 qubits.
 * **Symmetry verification** (Bonet-Monroig, Sagastizabal, Singh, O'Brien, PRA 98, 062339
   (2018); McArdle, Yuan, Benjamin, PRL 122, 180501 (2019)): keep only the shots whose
@@ -32,14 +32,14 @@ __all__ = [
     "counts_to_vector",
     "z_parity_signs",
     "term_expectations",
-    "calibration_matrices",
-    "apply_tensored_inverse",
+    "per_qubit_confusion_matrices",
+    "invert_confusion_per_qubit",
     "project_to_simplex",
     "mitigate_readout",
     "symmetry_mask",
     "richardson_weights",
-    "extrapolate_linear",
-    "extrapolate_richardson",
+    "line_fit_zero_noise_value",
+    "richardson_zero_noise_value",
     "total_variation_distance",
 ]
 
@@ -76,7 +76,7 @@ def term_expectations(probs: np.ndarray, labels: Sequence[str]) -> np.ndarray:
     return probs @ signs
 
 
-def calibration_matrices(zeros: np.ndarray, ones: np.ndarray, n_qubits: int) -> np.ndarray:
+def per_qubit_confusion_matrices(zeros: np.ndarray, ones: np.ndarray, n_qubits: int) -> np.ndarray:
     """Per-qubit confusion matrices from all-zeros / all-ones calibration count vectors.
 
     ``zeros`` and ``ones`` have shape ``(..., 2**n)``; returns ``(..., n, 2, 2)`` with
@@ -95,7 +95,7 @@ def calibration_matrices(zeros: np.ndarray, ones: np.ndarray, n_qubits: int) -> 
     return a
 
 
-def apply_tensored_inverse(probs: np.ndarray, matrices: np.ndarray) -> np.ndarray:
+def invert_confusion_per_qubit(probs: np.ndarray, matrices: np.ndarray) -> np.ndarray:
     """Apply ``(A_0 (x) ... (x) A_{n-1})^{-1}`` to ``probs`` of shape ``(B, 2**n)``.
 
     ``matrices`` has shape ``(n, 2, 2)`` or ``(B, n, 2, 2)``. Raises ``numpy.linalg.LinAlgError``
@@ -128,8 +128,8 @@ def project_to_simplex(v: np.ndarray) -> np.ndarray:
 
 
 def mitigate_readout(probs: np.ndarray, matrices: np.ndarray) -> np.ndarray:
-    """Tensored-inverse readout mitigation followed by projection onto probabilities."""
-    return project_to_simplex(apply_tensored_inverse(probs, matrices))
+    """Per-qubit readout-error inversion followed by projection onto probabilities."""
+    return project_to_simplex(invert_confusion_per_qubit(probs, matrices))
 
 
 def symmetry_mask(
@@ -151,12 +151,12 @@ def richardson_weights(scales: Sequence[float]) -> np.ndarray:
     )
 
 
-def extrapolate_richardson(scales: Sequence[float], values: np.ndarray) -> np.ndarray:
+def richardson_zero_noise_value(scales: Sequence[float], values: np.ndarray) -> np.ndarray:
     """Richardson extrapolation to zero noise (Temme et al. 2017); ``values``: (..., m)."""
     return np.asarray(values, dtype=float) @ richardson_weights(scales)
 
 
-def extrapolate_linear(scales: Sequence[float], values: np.ndarray) -> np.ndarray:
+def line_fit_zero_noise_value(scales: Sequence[float], values: np.ndarray) -> np.ndarray:
     """Intercept at zero of the least-squares line through (scale, value); ``values``: (..., m)."""
     lam = np.asarray(scales, dtype=float)
     a = np.stack([np.ones_like(lam), lam], axis=1)

@@ -4,7 +4,7 @@ Estimates (all in hartree, each with a bootstrap 95% confidence interval):
 
 * ``raw`` -- sum of ``c_i <P_i>`` from the scale-1 measurement circuits' counts;
 * ``readout_mitigated`` -- the same after readout mitigation by per-qubit calibration
-  matrices (tensored inverse + projection onto probabilities, see
+  matrices (per-qubit inverse + projection onto probabilities, see
   :mod:`eigensweep.device.mitigation`);
 * ``symmetry_verified`` -- post-selection on known Z2 symmetries (Bonet-Monroig et al., PRA 98,
   062339 (2018); McArdle, Yuan, Benjamin, PRL 122, 180501 (2019)) for every group in whose
@@ -33,7 +33,7 @@ from eigensweep.device import mitigation as mit
 from eigensweep.device.manifest import as_manifest, pauli_labels
 
 __all__ = [
-    "EnergyEstimate",
+    "BootstrapEnergy",
     "CircuitDiagnostics",
     "ReconcileResult",
     "reconcile",
@@ -44,7 +44,7 @@ ESTIMATES = ("raw", "readout_mitigated", "symmetry_verified", "zne_linear", "zne
 
 
 @dataclass
-class EnergyEstimate:
+class BootstrapEnergy:
     """A point estimate with its bootstrap percentile 95% interval and standard error."""
 
     value: float
@@ -77,14 +77,14 @@ class ReconcileResult:
 
     job_id: str
     n_qubits: int
-    raw: EnergyEstimate
-    readout_mitigated: EnergyEstimate | None
-    symmetry_verified: EnergyEstimate | None
-    zne_linear: EnergyEstimate | None
-    zne_richardson: EnergyEstimate | None
+    raw: BootstrapEnergy
+    readout_mitigated: BootstrapEnergy | None
+    symmetry_verified: BootstrapEnergy | None
+    zne_linear: BootstrapEnergy | None
+    zne_richardson: BootstrapEnergy | None
     kept_fraction: float | None
     scale_factors: list[int]
-    scale_energies: list[EnergyEstimate]
+    scale_energies: list[BootstrapEnergy]
     zne_input: str
     calibration: np.ndarray | None
     circuits: list[CircuitDiagnostics]
@@ -95,7 +95,7 @@ class ReconcileResult:
     notes: list[str] = field(default_factory=list)
     samples: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
 
-    def estimates(self) -> dict[str, EnergyEstimate]:
+    def estimates(self) -> dict[str, BootstrapEnergy]:
         """The available estimates by name, in a fixed order."""
         return {k: getattr(self, k) for k in ESTIMATES if getattr(self, k) is not None}
 
@@ -185,26 +185,26 @@ class ReconcileResult:
         )
 
 
-def _est_dict(e: EnergyEstimate | None) -> dict | None:
+def _est_dict(e: BootstrapEnergy | None) -> dict | None:
     return None if e is None else asdict(e)
 
 
-def _est_from(d: Mapping | None) -> EnergyEstimate | None:
-    return None if d is None else EnergyEstimate(**{k: float(v) for k, v in d.items()})
+def _est_from(d: Mapping | None) -> BootstrapEnergy | None:
+    return None if d is None else BootstrapEnergy(**{k: float(v) for k, v in d.items()})
 
 
 # ----------------------------------------------------------------------------- core
 
 
-def _estimate(samples: np.ndarray) -> EnergyEstimate:
+def _estimate(samples: np.ndarray) -> BootstrapEnergy:
     """Replicate 0 is the point estimate; 1.. are bootstrap replicates."""
     point = float(samples[0])
     boot = samples[1:]
     boot = boot[np.isfinite(boot)]
     if boot.size < 2:
-        return EnergyEstimate(point, point, point, 0.0)
+        return BootstrapEnergy(point, point, point, 0.0)
     lo, hi = np.percentile(boot, [2.5, 97.5])
-    return EnergyEstimate(point, float(lo), float(hi), float(np.std(boot, ddof=1)))
+    return BootstrapEnergy(point, float(lo), float(hi), float(np.std(boot, ddof=1)))
 
 
 def _resample(counts: np.ndarray, n_boot: int, rng: np.random.Generator) -> np.ndarray:
@@ -332,7 +332,7 @@ def reconcile(
     matrices = None
     if "0" * n in cal and "1" * n in cal:
         z_id, o_id = cal["0" * n], cal["1" * n]
-        matrices = mit.calibration_matrices(
+        matrices = mit.per_qubit_confusion_matrices(
             _resample(vec[z_id], n_boot, streams[z_id]),
             _resample(vec[o_id], n_boot, streams[o_id]),
             n,
@@ -403,9 +403,9 @@ def reconcile(
     per_scale = e_mit if matrices is not None else e_raw
     if len(scales) >= 2:
         stack = np.stack([per_scale[s] for s in scales], axis=1)
-        samples["zne_linear"] = mit.extrapolate_linear(scales, stack)
+        samples["zne_linear"] = mit.line_fit_zero_noise_value(scales, stack)
         if len(scales) > 2:
-            samples["zne_richardson"] = mit.extrapolate_richardson(scales, stack)
+            samples["zne_richardson"] = mit.richardson_zero_noise_value(scales, stack)
         else:  # the polynomial of degree 1 through two points is the straight line
             notes.append(
                 "two noise-scale factors: Richardson extrapolation is the linear one, "

@@ -13,7 +13,7 @@ Noise model (all seeded, reproducible):
   folding scale factor as zero-noise extrapolation assumes.
 * **readout noise** -- each measured bit flips independently, ``0 -> 1`` with probability
   ``p0to1`` and ``1 -> 0`` with ``p1to0`` (scalars or per-qubit arrays); this is the
-  uncorrelated model that tensored readout mitigation corrects.
+  uncorrelated model that per-qubit readout-error inversion corrects.
 
 The trajectories run on eigensweep's one statevector simulator
 (:mod:`eigensweep.qubit.statevector`, batched gate kernels) with the project-wide conventions

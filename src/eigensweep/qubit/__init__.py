@@ -2,7 +2,7 @@
 
 One method family per module:
 
-- :mod:`.pauli` — :class:`PauliSum` in symplectic form;
+- :mod:`.pauli` — :class:`PauliExpansion` in symplectic form;
 - :mod:`.mapping` — Jordan–Wigner, Bravyi–Kitaev (Seeley, Richard, Love, J. Chem. Phys. 137,
   224109 (2012)) and parity mappings of molecular Hamiltonians;
 - :mod:`.taper` — Z2 tapering (Bravyi, Gambetta, Mezzacapo, Temme, arXiv:1701.08213);
@@ -25,36 +25,42 @@ from .mapping import (
     reference_bits,
     sz_operator,
 )
-from .pauli import PauliSum
+from .pauli import PauliExpansion
 from .statevector import (
     apply_gate,
     apply_pauli,
+    apply_pauli_expansion,
     apply_pauli_rotation,
-    apply_pauli_sum,
     basis_state,
     expectation,
     simulate,
 )
-from .taper import TaperResult, find_z2_symmetries, no_taper, taper, z2_symmetries
+from .taper import (
+    SectorReduction,
+    diagonal_symmetries,
+    identity_reduction,
+    reduce_to_sector,
+    symmetry_null_space,
+)
 
 __all__ = [
     "MAPPINGS",
-    "PauliSum",
-    "TaperResult",
+    "PauliExpansion",
+    "SectorReduction",
     "apply_gate",
     "apply_pauli",
     "apply_pauli_rotation",
-    "apply_pauli_sum",
+    "apply_pauli_expansion",
     "basis_state",
     "encode_linear",
     "encoding_matrix",
     "expectation",
-    "find_z2_symmetries",
+    "symmetry_null_space",
     "interaction_operator",
     "map_fermion_operator",
     "map_hamiltonian",
     "measurement_basis",
-    "no_taper",
+    "identity_reduction",
     "number_operator",
     "qwc_groups",
     "reference_bits",
@@ -63,6 +69,6 @@ __all__ = [
     "shots_for_precision",
     "simulate",
     "sz_operator",
-    "taper",
-    "z2_symmetries",
+    "reduce_to_sector",
+    "diagonal_symmetries",
 ]

@@ -16,7 +16,7 @@ it is an exact sub-block. That block is built directly from the x-mask groups (n
 and diagonalised with ``scipy.sparse.linalg.eigsh`` (dense ``eigh`` for small blocks).
 
 Tapered Hamiltonians: ``N`` and ``S_z`` commute with the Z2 generators, so
-:meth:`TaperResult.taper_operator` gives their tapered forms, again ``Z`` strings; the sector is
+:meth:`SectorReduction.taper_operator` gives their tapered forms, again ``Z`` strings; the sector is
 then restricted exactly as above. The tapering itself fixes only parities (N_alpha and N_beta mod
 2 and point-group parities), so without ``n_electrons``/``sz`` a tapered spectrum can still
 contain states with ``N +- 2`` electrons. Symmetry sectors beyond N and S_z (total spin ``S^2``,
@@ -34,8 +34,8 @@ import scipy.sparse.linalg
 
 from ..errors import ConfigError
 from .mapping import MAPPINGS, number_operator, sz_operator
-from .pauli import PauliSum
-from .taper import TaperResult
+from .pauli import PauliExpansion
+from .taper import SectorReduction
 
 __all__ = ["sector_ground_energy", "sector_basis_states", "sector_block"]
 
@@ -49,7 +49,7 @@ def sector_basis_states(
     n_electrons: int | None = None,
     sz: float | None = None,
     mapping: str | None = None,
-    taper: TaperResult | None = None,
+    taper: SectorReduction | None = None,
 ) -> np.ndarray:
     """Basis-state indices (qubit 0 = most significant bit) with the given ``N`` and ``S_z``.
 
@@ -86,7 +86,7 @@ def sector_basis_states(
     return states[keep]
 
 
-def sector_block(ham: PauliSum, states: np.ndarray) -> scipy.sparse.csr_matrix:
+def sector_block(ham: PauliExpansion, states: np.ndarray) -> scipy.sparse.csr_matrix:
     """Exact sub-block ``<b|H|c>`` for ``b, c`` in ``states`` (states closed under H assumed).
 
     Entries leading outside ``states`` are dropped, so the block is exact only when the sector
@@ -127,12 +127,12 @@ def sector_block(ham: PauliSum, states: np.ndarray) -> scipy.sparse.csr_matrix:
 
 
 def sector_ground_energy(
-    ham: PauliSum,
+    ham: PauliExpansion,
     *,
     n_electrons: int | None = None,
     sz: float | None = None,
     mapping: str | None = None,
-    taper: TaperResult | None = None,
+    taper: SectorReduction | None = None,
     k: int = 1,
 ) -> float | np.ndarray:
     """Lowest eigenvalue(s) of ``ham`` restricted to an electron-number / S_z sector.
@@ -142,7 +142,7 @@ def sector_ground_energy(
         n_electrons: electron number of the sector; None leaves N free.
         sz: ``S_z`` of the sector (e.g. 0 for a closed-shell singlet); None leaves it free.
         mapping: mapping that produced ``ham``; required when ``n_electrons`` or ``sz`` is given.
-        taper: the :class:`TaperResult` whose ``hamiltonian`` is ``ham`` (None if untapered).
+        taper: the :class:`SectorReduction` whose ``hamiltonian`` is ``ham`` (None if untapered).
         k: number of lowest eigenvalues wanted.
 
     Returns:
@@ -155,10 +155,10 @@ def sector_ground_energy(
     Example:
         H2/STO-3G at 0.74 Å, any mapping, ``n_electrons=2, sz=0``: -1.137270 Eh (PySCF FCI).
     """
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"sector_ground_energy accepts a PauliSum, got {type(ham).__name__}")
-    if taper is not None and not isinstance(taper, TaperResult):
-        raise TypeError(f"taper must be a TaperResult or None, got {type(taper).__name__}")
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"sector_ground_energy accepts a PauliExpansion, got {type(ham).__name__}")
+    if taper is not None and not isinstance(taper, SectorReduction):
+        raise TypeError(f"taper must be a SectorReduction or None, got {type(taper).__name__}")
     if isinstance(k, bool) or not isinstance(k, int | np.integer) or k < 1:
         raise ConfigError(f"k must be a positive int, got {k!r}")
     if taper is not None and taper.n_qubits != ham.n_qubits:

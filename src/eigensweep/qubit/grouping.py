@@ -23,13 +23,13 @@ import math
 import numpy as np
 
 from ..errors import ConfigError
-from .pauli import PauliSum
-from .statevector import apply_pauli_sum
+from .pauli import PauliExpansion
+from .statevector import apply_pauli_expansion
 
 __all__ = ["qwc_groups", "measurement_basis", "shots_for_precision"]
 
 
-def qwc_groups(ham: PauliSum) -> list[np.ndarray]:
+def qwc_groups(ham: PauliExpansion) -> list[np.ndarray]:
     """Qubit-wise commuting groups by sorted insertion (Crawford et al., Quantum 5, 385 (2021)).
 
     Args:
@@ -40,8 +40,8 @@ def qwc_groups(ham: PauliSum) -> list[np.ndarray]:
         insertion order (largest ``|c|`` first; ``|c|`` equal to 1e-10 count as ties, broken
         by term index, so round-off in the integrals does not change the groups).
     """
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"qwc_groups accepts a PauliSum, got {type(ham).__name__}")
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"qwc_groups accepts a PauliExpansion, got {type(ham).__name__}")
     candidates = np.flatnonzero(~ham.identity_mask)
     # |c| rounded to 1e-10 so that ties from exact symmetries (degenerate orbitals) are broken by
     # the canonical term order, not by floating-point noise in the integrals
@@ -74,7 +74,7 @@ def qwc_groups(ham: PauliSum) -> list[np.ndarray]:
     return [np.array(m, dtype=np.int64) for m in members]
 
 
-def measurement_basis(ham: PauliSum, group: np.ndarray) -> str:
+def measurement_basis(ham: PauliExpansion, group: np.ndarray) -> str:
     """Shared measurement basis of a QWC group as a letter string (``I`` = not measured).
 
     Args:
@@ -87,8 +87,8 @@ def measurement_basis(ham: PauliSum, group: np.ndarray) -> str:
     Raises:
         ValueError: the terms do not commute qubit-wise.
     """
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"measurement_basis accepts a PauliSum, got {type(ham).__name__}")
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"measurement_basis accepts a PauliExpansion, got {type(ham).__name__}")
     idx = np.asarray(group, dtype=np.int64)
     x, z = ham.x[idx], ham.z[idx]
     support = x | z
@@ -96,7 +96,7 @@ def measurement_basis(ham: PauliSum, group: np.ndarray) -> str:
     consistent = np.all(~support | ((x == gx) & (z == gz)), axis=0)
     if not consistent.all():
         raise ValueError("the terms of this group do not commute qubit-wise")
-    return PauliSum(gx[None, :], gz[None, :], np.ones(1), ham.n_qubits).labels()[0]
+    return PauliExpansion(gx[None, :], gz[None, :], np.ones(1), ham.n_qubits).labels()[0]
 
 
 def _ceil(value: float) -> int:
@@ -105,7 +105,7 @@ def _ceil(value: float) -> int:
 
 
 def shots_for_precision(
-    ham: PauliSum,
+    ham: PauliExpansion,
     target_se: float = 1.6e-3,
     state: np.ndarray | None = None,
     groups: list[np.ndarray] | None = None,
@@ -125,8 +125,8 @@ def shots_for_precision(
         ``group_std`` (float array or None, ``sqrt(Var_g)``), ``n_groups`` (int),
         ``one_norm_nonidentity`` (float) and ``target_se``.
     """
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"shots_for_precision accepts a PauliSum, got {type(ham).__name__}")
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"shots_for_precision accepts a PauliExpansion, got {type(ham).__name__}")
     if isinstance(target_se, bool) or not isinstance(target_se, int | float | np.floating):
         raise TypeError(f"target_se must be a float, got {type(target_se).__name__}")
     if not target_se > 0 or not math.isfinite(target_se):
@@ -156,7 +156,7 @@ def shots_for_precision(
     psi = psi / norm
     std = np.zeros(len(groups))
     for i, g in enumerate(groups):
-        hg_psi = apply_pauli_sum(psi, ham.subset(np.asarray(g, dtype=np.int64)))
+        hg_psi = apply_pauli_expansion(psi, ham.subset(np.asarray(g, dtype=np.int64)))
         mean = np.vdot(psi, hg_psi).real
         var = max(0.0, float(np.vdot(hg_psi, hg_psi).real - mean**2))
         std[i] = math.sqrt(var)

@@ -33,7 +33,7 @@ import numpy as np
 
 from ..errors import ConfigError
 from . import gf2
-from .pauli import PauliSum
+from .pauli import PauliExpansion
 
 if TYPE_CHECKING:  # OpenFermion takes seconds to import: only functions that need it load it
     from openfermion import FermionOperator, InteractionOperator
@@ -166,7 +166,7 @@ def encoding_matrices(n_qubits: int, mapping: str) -> tuple[np.ndarray, np.ndarr
     return a, a_inv_t
 
 
-def encode_linear(jw: PauliSum, matrix: np.ndarray) -> PauliSum:
+def encode_linear(jw: PauliExpansion, matrix: np.ndarray) -> PauliExpansion:
     """Re-express a Jordan–Wigner Pauli sum in the linear encoding ``b = A n (mod 2)``.
 
     ``U X^x Z^z U^dag = X^{A x} Z^{A^{-T} z}`` for the CNOT network ``U|n> = |A n>``; with the
@@ -180,8 +180,8 @@ def encode_linear(jw: PauliSum, matrix: np.ndarray) -> PauliSum:
     Returns:
         The same operator in the new encoding (canonical order).
     """
-    if not isinstance(jw, PauliSum):
-        raise TypeError(f"encode_linear accepts a PauliSum, got {type(jw).__name__}")
+    if not isinstance(jw, PauliExpansion):
+        raise TypeError(f"encode_linear accepts a PauliExpansion, got {type(jw).__name__}")
     a = np.asarray(matrix, dtype=np.int64) & 1
     n = jw.n_qubits
     if a.shape != (n, n):
@@ -195,14 +195,16 @@ def encode_linear(jw: PauliSum, matrix: np.ndarray) -> PauliSum:
     if np.any(diff % 2):
         raise AssertionError("encode_linear: Y-count parity changed (matrix not invertible?)")
     sign = np.where(diff % 4 == 0, 1.0, -1.0)
-    return PauliSum(x_new.astype(bool), z_new.astype(bool), jw.coeffs * sign, n).simplify(atol=0.0)
+    return PauliExpansion(
+        x_new.astype(bool), z_new.astype(bool), jw.coeffs * sign, n
+    ).combine_like_terms(atol=0.0)
 
 
-def _from_qubit_operator(op, n_qubits: int) -> PauliSum:
-    return PauliSum.from_openfermion(op, n_qubits).simplify(atol=_DROP_TOL)
+def _from_qubit_operator(op, n_qubits: int) -> PauliExpansion:
+    return PauliExpansion.from_openfermion(op, n_qubits).combine_like_terms(atol=_DROP_TOL)
 
 
-def map_fermion_operator(op: FermionOperator, n_qubits: int, mapping: str) -> PauliSum:
+def map_fermion_operator(op: FermionOperator, n_qubits: int, mapping: str) -> PauliExpansion:
     """Map a Hermitian fermionic operator (number, S_z, ``i (T - T^dag)``, ...) to qubits.
 
     Args:
@@ -242,10 +244,12 @@ def map_fermion_operator(op: FermionOperator, n_qubits: int, mapping: str) -> Pa
     jw = _from_qubit_operator(openfermion.jordan_wigner(op), n)
     if mapping == "jordan_wigner":
         return jw
-    return encode_linear(jw, encoding_matrix(n, "parity")).simplify(atol=_DROP_TOL)
+    return encode_linear(jw, encoding_matrix(n, "parity")).combine_like_terms(atol=_DROP_TOL)
 
 
-def map_hamiltonian(h1e: np.ndarray, eri: np.ndarray, e_core: float, mapping: str) -> PauliSum:
+def map_hamiltonian(
+    h1e: np.ndarray, eri: np.ndarray, e_core: float, mapping: str
+) -> PauliExpansion:
     """Qubit Hamiltonian of a molecule from its orbital integrals.
 
     Args:
@@ -265,7 +269,7 @@ def map_hamiltonian(h1e: np.ndarray, eri: np.ndarray, e_core: float, mapping: st
     return map_fermion_operator(io, io.n_qubits, mapping)
 
 
-def number_operator(n_qubits: int, mapping: str) -> PauliSum:
+def number_operator(n_qubits: int, mapping: str) -> PauliExpansion:
     """Total electron number ``N = sum_k a+_k a_k`` under ``mapping`` (diagonal: Z strings).
 
     Args:
@@ -284,7 +288,7 @@ def number_operator(n_qubits: int, mapping: str) -> PauliSum:
     return map_fermion_operator(op, n, mapping)
 
 
-def sz_operator(n_qubits: int, mapping: str) -> PauliSum:
+def sz_operator(n_qubits: int, mapping: str) -> PauliExpansion:
     """``S_z = 1/2 sum_p (n_{2p} - n_{2p+1})`` (interleaved alpha/beta) under ``mapping``.
 
     Args:

@@ -14,14 +14,14 @@ arXiv:quant-ph/9705052). Qubit ``k`` carries the letter
     ========  =====  =====
 
 and the string is the Hermitian tensor product of those letters, ``P(x, z) = i^{x.z} X^x Z^z``
-(``x.z`` counted as an integer, the number of ``Y`` letters). A :class:`PauliSum` is
+(``x.z`` counted as an integer, the number of ``Y`` letters). A :class:`PauliExpansion` is
 ``sum_t coeffs[t] * P(x[t], z[t])`` with real ``coeffs``, i.e. a Hermitian operator.
 
 Conventions follow :mod:`eigensweep.circuit`: qubit ``k`` is spin orbital ``k`` (interleaved
 alpha/beta), in a statevector qubit 0 is the most significant bit of the basis-state index (the
 order of OpenFermion's ``get_sparse_operator``), and character ``k`` of a label is qubit ``k``.
 
-Treat the arrays of a :class:`PauliSum` as immutable: methods return new objects.
+Treat the arrays of a :class:`PauliExpansion` as immutable: methods return new objects.
 """
 
 from __future__ import annotations
@@ -39,7 +39,7 @@ if TYPE_CHECKING:
 from ..errors import ConfigError, StageFileError
 
 __all__ = [
-    "PauliSum",
+    "PauliExpansion",
     "XMaskGroups",
     "pauli_product",
     "symplectic_inner",
@@ -123,7 +123,7 @@ def _sign_matrix(zmasks: np.ndarray, n_bits: int) -> np.ndarray:
 
 @dataclass(eq=False)
 class XMaskGroups:
-    """Terms of a :class:`PauliSum` grouped by their ``x`` pattern (the key of fast kernels).
+    """Terms of a :class:`PauliExpansion` grouped by their ``x`` pattern (the key of fast kernels).
 
     All strings with the same ``x`` row map basis state ``|b>`` to ``|b ^ m>``; only their
     diagonal phases differ. For the group with mask ``m`` the matrix elements are
@@ -269,7 +269,7 @@ class XMaskGroups:
 
 
 @dataclass(eq=False)
-class PauliSum:
+class PauliExpansion:
     """Hermitian operator ``sum_t coeffs[t] P(x[t], z[t])`` in symplectic form.
 
     Attributes:
@@ -279,7 +279,7 @@ class PauliSum:
         n_qubits: number of qubits.
 
     Example:
-        >>> h = PauliSum.from_labels(["II", "ZI", "XX"], [-0.5, 0.25, 0.1])
+        >>> h = PauliExpansion.from_strings(["II", "ZI", "XX"], [-0.5, 0.25, 0.1])
         >>> h.labels(), h.one_norm_nonidentity
         (['II', 'XX', 'ZI'], 0.35)
     """
@@ -299,13 +299,15 @@ class PauliSum:
         for name in ("x", "z", "coeffs"):
             if not isinstance(getattr(self, name), np.ndarray | list | tuple):
                 raise TypeError(
-                    f"PauliSum.{name} must be a numpy array, list or tuple, "
+                    f"PauliExpansion.{name} must be a numpy array, list or tuple, "
                     f"got {type(getattr(self, name)).__name__}"
                 )
         coeffs = np.asarray(self.coeffs)
         if np.iscomplexobj(coeffs):
             if coeffs.size and np.max(np.abs(coeffs.imag)) >= _IMAG_TOL:
-                raise ValueError("PauliSum coefficients must be real (the operator is Hermitian)")
+                raise ValueError(
+                    "PauliExpansion coefficients must be real (the operator is Hermitian)"
+                )
             coeffs = coeffs.real
         self.coeffs = np.ascontiguousarray(coeffs, dtype=np.float64).reshape(-1)
         shape = (self.coeffs.shape[0], self.n_qubits)
@@ -313,18 +315,18 @@ class PauliSum:
         z = np.ascontiguousarray(self.z, dtype=bool)
         for name, arr in (("x", x), ("z", z)):
             if arr.shape != shape and not (arr.size == 0 and shape[0] * shape[1] == 0):
-                raise ConfigError(f"PauliSum.{name} has shape {arr.shape}, expected {shape}")
+                raise ConfigError(f"PauliExpansion.{name} has shape {arr.shape}, expected {shape}")
         self.x, self.z = x.reshape(shape), z.reshape(shape)
 
     # ------------------------------------------------------------------ constructors
     @classmethod
-    def zero(cls, n_qubits: int) -> PauliSum:
+    def zero(cls, n_qubits: int) -> PauliExpansion:
         """The zero operator (no terms) on ``n_qubits`` qubits."""
         empty = np.zeros((0, n_qubits), dtype=bool)
         return cls(empty, empty.copy(), np.zeros(0), n_qubits)
 
     @classmethod
-    def from_labels(cls, labels: list[str] | tuple[str, ...], coeffs) -> PauliSum:
+    def from_strings(cls, labels: list[str] | tuple[str, ...], coeffs) -> PauliExpansion:
         """Build from letter strings such as ``"IXZY"`` (character ``k`` is qubit ``k``).
 
         Args:
@@ -337,7 +339,9 @@ class PauliSum:
         if isinstance(labels, str) or not isinstance(labels, list | tuple):
             raise TypeError(f"labels must be a list or tuple of str, got {type(labels).__name__}")
         if not labels:
-            raise ConfigError("labels is empty; use PauliSum.zero(n_qubits) for the zero operator")
+            raise ConfigError(
+                "labels is empty; use PauliExpansion.zero(n_qubits) for the zero operator"
+            )
         n = len(labels[0])
         if any(len(s) != n for s in labels):
             raise ConfigError("all Pauli labels must have the same length")
@@ -349,11 +353,11 @@ class PauliSum:
             raise ConfigError(f"{len(labels)} labels but {values.size} coefficients")
         x = (chars == "X") | (chars == "Y")
         z = (chars == "Z") | (chars == "Y")
-        return cls(x, z, values, n).simplify(atol=0.0)
+        return cls(x, z, values, n).combine_like_terms(atol=0.0)
 
     @classmethod
-    def from_openfermion(cls, op: QubitOperator, n_qubits: int) -> PauliSum:
-        """Convert an OpenFermion ``QubitOperator`` (Hermitian) to a :class:`PauliSum`.
+    def from_openfermion(cls, op: QubitOperator, n_qubits: int) -> PauliExpansion:
+        """Convert an OpenFermion ``QubitOperator`` (Hermitian) to a :class:`PauliExpansion`.
 
         Args:
             op: the operator; coefficients must be real up to ``|imag| < 1e-12``.
@@ -392,7 +396,7 @@ class PauliSum:
                     raise ConfigError(f"term {term} acts on qubit {q} but n_qubits is {n_qubits}")
                 x[t, q] = letter in ("X", "Y")
                 z[t, q] = letter in ("Z", "Y")
-        return cls(x, z, coeffs, int(n_qubits)).simplify(atol=0.0)
+        return cls(x, z, coeffs, int(n_qubits)).combine_like_terms(atol=0.0)
 
     # ------------------------------------------------------------------ conversions
     def to_openfermion(self) -> QubitOperator:
@@ -434,7 +438,7 @@ class PauliSum:
         }
 
     @classmethod
-    def from_store(cls, arrays: dict[str, np.ndarray], prefix: str) -> PauliSum:
+    def from_store(cls, arrays: dict[str, np.ndarray], prefix: str) -> PauliExpansion:
         """Inverse of :meth:`to_store`.
 
         Raises:
@@ -459,7 +463,7 @@ class PauliSum:
             )
         return cls(x.astype(bool), z.astype(bool), coeffs, n_qubits)
 
-    def to_sparse(self) -> scipy.sparse.csr_matrix:
+    def sparse_matrix(self) -> scipy.sparse.csr_matrix:
         """Sparse complex ``2**n x 2**n`` matrix in OpenFermion's ``get_sparse_operator`` order.
 
         Built row-block by row-block from the x-mask groups (one shifted diagonal per distinct
@@ -467,12 +471,12 @@ class PauliSum:
         """
         if self.n_qubits > 26:
             raise ConfigError(
-                f"to_sparse on {self.n_qubits} qubits would not fit in memory; use apply_pauli_sum"
+                f"sparse_matrix on {self.n_qubits} qubits would not fit in memory; use apply_pauli_expansion"
             )
         return self.compile().to_csr().astype(np.complex128)
 
     # ------------------------------------------------------------------ algebra
-    def simplify(self, atol: float = 1e-12) -> PauliSum:
+    def combine_like_terms(self, atol: float = 1e-12) -> PauliExpansion:
         """Merge equal strings, drop terms with ``|coeff| <= atol``, sort canonically.
 
         Canonical order: identity first, then lexicographic by letters ``I < X < Y < Z`` with
@@ -483,10 +487,10 @@ class PauliSum:
                 only exact zeros).
 
         Returns:
-            A new :class:`PauliSum`.
+            A new :class:`PauliExpansion`.
         """
         if self.n_terms == 0:
-            return PauliSum.zero(self.n_qubits)
+            return PauliExpansion.zero(self.n_qubits)
         codes = _letter_codes(self.x, self.z)
         uniq, inverse = np.unique(codes, axis=0, return_inverse=True)
         summed = np.zeros(uniq.shape[0])
@@ -498,42 +502,44 @@ class PauliSum:
             uniq, summed = uniq[order], summed[order]
         x = (uniq == 1) | (uniq == 2)
         z = (uniq == 2) | (uniq == 3)
-        return PauliSum(x, z, summed, self.n_qubits)
+        return PauliExpansion(x, z, summed, self.n_qubits)
 
-    def __add__(self, other: PauliSum) -> PauliSum:
-        if not isinstance(other, PauliSum):
+    def __add__(self, other: PauliExpansion) -> PauliExpansion:
+        if not isinstance(other, PauliExpansion):
             return NotImplemented
         if other.n_qubits != self.n_qubits:
             raise ConfigError(
                 f"cannot add Pauli sums on {self.n_qubits} and {other.n_qubits} qubits"
             )
-        return PauliSum(
+        return PauliExpansion(
             np.vstack([self.x, other.x]),
             np.vstack([self.z, other.z]),
             np.concatenate([self.coeffs, other.coeffs]),
             self.n_qubits,
-        ).simplify(atol=0.0)
+        ).combine_like_terms(atol=0.0)
 
-    def __mul__(self, scalar: float) -> PauliSum:
+    def __mul__(self, scalar: float) -> PauliExpansion:
         if isinstance(scalar, bool) or not isinstance(
             scalar, int | float | np.integer | np.floating
         ):
             return NotImplemented
-        return PauliSum(self.x.copy(), self.z.copy(), self.coeffs * float(scalar), self.n_qubits)
+        return PauliExpansion(
+            self.x.copy(), self.z.copy(), self.coeffs * float(scalar), self.n_qubits
+        )
 
     __rmul__ = __mul__
 
-    def subset(self, index: np.ndarray) -> PauliSum:
+    def subset(self, index: np.ndarray) -> PauliExpansion:
         """The terms selected by an index or boolean array, order kept."""
-        return PauliSum(self.x[index], self.z[index], self.coeffs[index], self.n_qubits)
+        return PauliExpansion(self.x[index], self.z[index], self.coeffs[index], self.n_qubits)
 
-    def allclose(self, other: PauliSum, atol: float = 1e-10) -> bool:
+    def allclose(self, other: PauliExpansion, atol: float = 1e-10) -> bool:
         """True when both sums are the same operator up to ``atol`` per coefficient."""
-        if not isinstance(other, PauliSum):
-            raise TypeError(f"allclose compares with a PauliSum, got {type(other).__name__}")
+        if not isinstance(other, PauliExpansion):
+            raise TypeError(f"allclose compares with a PauliExpansion, got {type(other).__name__}")
         if other.n_qubits != self.n_qubits:
             return False
-        diff = (self + other * -1.0).simplify(atol=atol)
+        diff = (self + other * -1.0).combine_like_terms(atol=atol)
         return diff.n_terms == 0
 
     def commutes_with(self, x_row: np.ndarray, z_row: np.ndarray) -> np.ndarray:

@@ -5,7 +5,7 @@ index, i.e. qubit 0 is the most significant bit, as in OpenFermion's ``get_spars
 
 A Pauli string ``P(x, z) = i^{x.z} X^x Z^z`` acts on a basis state as
 ``P|b> = i^{ny} (-1)^{popcount(b & zmask)} |b ^ xmask>`` (``ny`` = number of ``Y`` letters).
-:func:`apply_pauli_sum` groups the terms of a Hamiltonian by ``xmask`` (one permutation per
+:func:`apply_pauli_expansion` groups the terms of a Hamiltonian by ``xmask`` (one permutation per
 group, see :class:`eigensweep.qubit.pauli.XMaskGroups`); each group's diagonal phase vector
 factorises over a high/low split of the qubits into short sums of outer products of sign tables.
 Up to ``2**24`` (group, basis state) pairs the groups are compiled once into a cached CSR matrix;
@@ -22,13 +22,13 @@ import numpy as np
 
 from ..circuit import KNOWN_GATES, Circuit, Gate
 from ..errors import ConfigError
-from .pauli import PauliSum, XMaskGroups, bits_to_mask
+from .pauli import PauliExpansion, XMaskGroups, bits_to_mask
 
 __all__ = [
     "basis_state",
     "apply_pauli",
     "apply_pauli_rotation",
-    "apply_pauli_sum",
+    "apply_pauli_expansion",
     "expectation",
     "apply_cx",
     "apply_gate",
@@ -230,8 +230,8 @@ def _apply_groups_large(grp: XMaskGroups, psi: np.ndarray) -> np.ndarray:
     return out.reshape(-1)
 
 
-def apply_pauli_sum(state: np.ndarray, ham: PauliSum) -> np.ndarray:
-    """Return ``H|state>`` for a :class:`PauliSum` ``H``.
+def apply_pauli_expansion(state: np.ndarray, ham: PauliExpansion) -> np.ndarray:
+    """Return ``H|state>`` for a :class:`PauliExpansion` ``H``.
 
     Terms are grouped by their ``x`` pattern (same permutation of basis states), so the cost is
     ``O(n_groups * 2**n)`` rather than ``O(n_terms * 2**n)``; the grouping is cached on ``ham``.
@@ -246,8 +246,8 @@ def apply_pauli_sum(state: np.ndarray, ham: PauliSum) -> np.ndarray:
     Returns:
         A new complex128 vector.
     """
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"apply_pauli_sum accepts a PauliSum, got {type(ham).__name__}")
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"apply_pauli_expansion accepts a PauliExpansion, got {type(ham).__name__}")
     psi, _ = _check_state(state, ham.n_qubits)
     grp = ham.compile()
     if grp.n_groups == 0:
@@ -257,7 +257,7 @@ def apply_pauli_sum(state: np.ndarray, ham: PauliSum) -> np.ndarray:
     return _apply_groups_large(grp, psi)
 
 
-def expectation(state: np.ndarray, ham: PauliSum) -> float:
+def expectation(state: np.ndarray, ham: PauliExpansion) -> float:
     """``<state|H|state>`` (real part) for a normalised ``state``.
 
     Args:
@@ -268,7 +268,7 @@ def expectation(state: np.ndarray, ham: PauliSum) -> float:
         The expectation value as a float.
     """
     psi, _ = _check_state(state, getattr(ham, "n_qubits", None))
-    return float(np.vdot(psi, apply_pauli_sum(psi, ham)).real)
+    return float(np.vdot(psi, apply_pauli_expansion(psi, ham)).real)
 
 
 def apply_matrix_1q(states: np.ndarray, qubit: int, matrix: np.ndarray) -> np.ndarray:

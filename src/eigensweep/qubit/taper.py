@@ -6,17 +6,17 @@ form the condition for ``tau = (x_s, z_s)`` is ``x_t . z_s + z_t . x_s = 0 (mod 
 
 Choice of generators (deterministic):
 
-1. the Z-only symmetries (``x_s = 0``) form the null space of the ``x`` rows alone; a basis is
+1. the diagonal symmetries (``x_s = 0``) form the null space of the ``x`` rows alone; a basis is
    put in reduced row-echelon form with pivots taken from the *highest* qubit index down, so
    generator ``i`` is the only one with a ``Z`` on its pivot qubit ``q_i``;
 2. symmetries that need ``X``/``Y`` letters complete the basis of the full null space. They are
-   reported by :func:`find_z2_symmetries` but not tapered by :func:`taper`: their eigenvalue is not
+   reported by :func:`symmetry_null_space` but not tapered by :func:`reduce_to_sector`: their eigenvalue is not
    fixed by a computational-basis reference determinant (the sector would need an extra
    diagonalisation). For molecular Hamiltonians with real orbitals all symmetries found under the
-   three mappings are Z-only (electron-number parities per spin and point-group parities), so
+   three mappings are diagonal (electron-number parities per spin and point-group parities), so
    nothing is lost there; a warning is issued if it happens.
 
-Tapering (section VII of the paper): for each Z-only generator ``tau_i`` with pivot ``q_i`` the
+Tapering (section VII of the paper): for each diagonal generator ``tau_i`` with pivot ``q_i`` the
 Clifford ``U_i = (X_{q_i} + tau_i)/sqrt(2)`` maps ``tau_i`` to ``X_{q_i}``; the ``U_i`` commute,
 ``U = prod_i U_i`` is Hermitian and unitary. ``U H U`` acts on qubit ``q_i`` only with ``I`` or
 ``X``; replacing ``X_{q_i}`` by the sector eigenvalue ``s_i`` and deleting the qubit gives the
@@ -34,38 +34,44 @@ import numpy as np
 
 from ..errors import ConfigError, StageFileError
 from . import gf2
-from .pauli import PauliSum, pauli_product, symplectic_inner
+from .pauli import PauliExpansion, pauli_product, symplectic_inner
 
 _I_POWERS = np.array([1.0, 1j, -1.0, -1j])  # i^k, exact
 
-__all__ = ["TaperResult", "find_z2_symmetries", "no_taper", "taper", "z2_symmetries"]
+__all__ = [
+    "SectorReduction",
+    "symmetry_null_space",
+    "identity_reduction",
+    "reduce_to_sector",
+    "diagonal_symmetries",
+]
 
 
-def find_z2_symmetries(ham: PauliSum) -> PauliSum:
+def symmetry_null_space(ham: PauliExpansion) -> PauliExpansion:
     """Independent Z2 symmetry generators of ``ham`` (arXiv:1701.08213, section VII).
 
     Args:
         ham: the qubit Hamiltonian.
 
     Returns:
-        Pauli sum with coefficients 1: first the Z-only generators in reduced row-echelon form
+        Pauli sum with coefficients 1: first the diagonal generators in reduced row-echelon form
         (generator ``i`` alone has a ``Z`` on its pivot qubit, pivots taken from the highest
         qubit down), then any generators with ``X``/``Y`` letters needed to span the full group.
     """
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"find_z2_symmetries accepts a PauliSum, got {type(ham).__name__}")
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"symmetry_null_space accepts a PauliExpansion, got {type(ham).__name__}")
     n = ham.n_qubits
     keep = ~ham.identity_mask & (ham.coeffs != 0)
     x, z = ham.x[keep], ham.z[keep]
-    # Z-only symmetries: x_t . z_s = 0 for all terms
-    z_only = gf2.null_space(x) if x.shape[0] else np.eye(n, dtype=bool)
-    if z_only.shape[0]:
-        z_only, _ = gf2.rref(z_only, col_order=np.arange(n - 1, -1, -1))
+    # diagonal symmetries: x_t . z_s = 0 for all terms
+    diagonal = gf2.null_space(x) if x.shape[0] else np.eye(n, dtype=bool)
+    if diagonal.shape[0]:
+        diagonal, _ = gf2.rref(diagonal, col_order=np.arange(n - 1, -1, -1))
     # full group: rows (z_t | x_t) acting on (x_s | z_s)
     full = gf2.null_space(np.hstack([z, x])) if x.shape[0] else np.eye(2 * n, dtype=bool)
-    gens_x = [np.zeros(n, dtype=bool)] * z_only.shape[0]
-    gens_z = list(z_only)
-    current = np.hstack([np.zeros((z_only.shape[0], n), dtype=bool), z_only])
+    gens_x = [np.zeros(n, dtype=bool)] * diagonal.shape[0]
+    gens_z = list(diagonal)
+    current = np.hstack([np.zeros((diagonal.shape[0], n), dtype=bool), diagonal])
     rank = gf2.rank(current)
     for v in full:
         trial = np.vstack([current, v[None, :]])
@@ -76,12 +82,14 @@ def find_z2_symmetries(ham: PauliSum) -> PauliSum:
             gens_z.append(v[n:])
     k = len(gens_z)
     if k == 0:
-        return PauliSum.zero(n)
-    return PauliSum(np.array(gens_x).reshape(k, n), np.array(gens_z).reshape(k, n), np.ones(k), n)
+        return PauliExpansion.zero(n)
+    return PauliExpansion(
+        np.array(gens_x).reshape(k, n), np.array(gens_z).reshape(k, n), np.ones(k), n
+    )
 
 
 @dataclass(eq=False)
-class TaperResult:
+class SectorReduction:
     """A tapered problem and what is needed to taper further operators the same way.
 
     Attributes:
@@ -93,10 +101,10 @@ class TaperResult:
         n_qubits_before: number of qubits before tapering.
     """
 
-    generators: PauliSum
+    generators: PauliExpansion
     sector: np.ndarray
     qubits_removed: np.ndarray
-    hamiltonian: PauliSum
+    hamiltonian: PauliExpansion
     reference_bits: np.ndarray
     n_qubits_before: int
 
@@ -110,7 +118,7 @@ class TaperResult:
         """Original indices of the remaining qubits, in order (tapered qubit ``j`` = entry j)."""
         return np.setdiff1d(np.arange(self.n_qubits_before), self.qubits_removed)
 
-    def taper_operator(self, op: PauliSum) -> PauliSum:
+    def taper_operator(self, op: PauliExpansion) -> PauliExpansion:
         """Apply the same Clifford rotation and sector projection to another operator.
 
         Args:
@@ -124,8 +132,8 @@ class TaperResult:
             ValueError: some term anticommutes with a generator (the operator would leave the
                 sector and cannot be tapered).
         """
-        if not isinstance(op, PauliSum):
-            raise TypeError(f"taper_operator accepts a PauliSum, got {type(op).__name__}")
+        if not isinstance(op, PauliExpansion):
+            raise TypeError(f"taper_operator accepts a PauliExpansion, got {type(op).__name__}")
         if op.n_qubits != self.n_qubits_before:
             raise ConfigError(
                 f"operator acts on {op.n_qubits} qubits, the tapering on {self.n_qubits_before}"
@@ -190,7 +198,7 @@ class TaperResult:
         return out
 
     @classmethod
-    def from_store(cls, arrays: dict[str, np.ndarray], prefix: str = "taper_") -> TaperResult:
+    def from_store(cls, arrays: dict[str, np.ndarray], prefix: str = "taper_") -> SectorReduction:
         """Inverse of :meth:`to_store`.
 
         Raises:
@@ -202,8 +210,8 @@ class TaperResult:
         missing = [f"{prefix}{k}" for k in names if f"{prefix}{k}" not in arrays]
         if missing:
             raise StageFileError(f"stored tapering lacks arrays {missing}; recompute the stage")
-        gens = PauliSum.from_store(arrays, f"{prefix}generators_")
-        ham = PauliSum.from_store(arrays, f"{prefix}hamiltonian_")
+        gens = PauliExpansion.from_store(arrays, f"{prefix}generators_")
+        ham = PauliExpansion.from_store(arrays, f"{prefix}hamiltonian_")
         result = cls(
             generators=gens,
             sector=np.asarray(arrays[f"{prefix}sector"], dtype=np.int8).reshape(-1),
@@ -229,11 +237,11 @@ class TaperResult:
 
 
 def _rotate_and_project(
-    op: PauliSum, generators: PauliSum, pivots: np.ndarray, sector: np.ndarray
-) -> PauliSum:
+    op: PauliExpansion, generators: PauliExpansion, pivots: np.ndarray, sector: np.ndarray
+) -> PauliExpansion:
     n = op.n_qubits
     if generators.n_terms == 0:
-        return op.simplify(atol=0.0)
+        return op.combine_like_terms(atol=0.0)
     anti = symplectic_inner(
         op.x[:, None, :], op.z[:, None, :], generators.x[None], generators.z[None]
     )
@@ -261,12 +269,14 @@ def _rotate_and_project(
         raise AssertionError("tapering rotation produced a non-Hermitian or non-X pivot term")
     signs = np.where(x[:, pivots], sector[None, :].astype(float), 1.0).prod(axis=1)
     kept = np.setdiff1d(np.arange(n), pivots)
-    return PauliSum(x[:, kept], z[:, kept], coeffs.real * signs, len(kept)).simplify(atol=1e-12)
+    return PauliExpansion(
+        x[:, kept], z[:, kept], coeffs.real * signs, len(kept)
+    ).combine_like_terms(atol=1e-12)
 
 
-def _check_reference(ham: PauliSum, bits: np.ndarray) -> np.ndarray:
-    if not isinstance(ham, PauliSum):
-        raise TypeError(f"taper accepts a PauliSum Hamiltonian, got {type(ham).__name__}")
+def _check_reference(ham: PauliExpansion, bits: np.ndarray) -> np.ndarray:
+    if not isinstance(ham, PauliExpansion):
+        raise TypeError(f"the Hamiltonian must be a PauliExpansion, got {type(ham).__name__}")
     if not isinstance(bits, np.ndarray | list | tuple):
         raise TypeError(f"reference_bits must be a numpy array, got {type(bits).__name__}")
     b = np.asarray(bits).reshape(-1)
@@ -277,12 +287,12 @@ def _check_reference(ham: PauliSum, bits: np.ndarray) -> np.ndarray:
     return b.astype(np.uint8)
 
 
-def z2_symmetries(
-    ham: PauliSum, reference_bits: np.ndarray
-) -> tuple[PauliSum, np.ndarray, np.ndarray]:
-    """The Z-only Z2 symmetry generators of ``ham``, their pivot qubits and their sector.
+def diagonal_symmetries(
+    ham: PauliExpansion, reference_bits: np.ndarray
+) -> tuple[PauliExpansion, np.ndarray, np.ndarray]:
+    """The diagonal Z2 symmetry generators of ``ham``, their pivot qubits and their sector.
 
-    These are what :func:`taper` removes; the taper stage stores them also when tapering is
+    These are what :func:`reduce_to_sector` removes; the taper stage stores them also when tapering is
     off, so that symmetry verification of device counts reads them instead of recomputing.
 
     Args:
@@ -291,20 +301,20 @@ def z2_symmetries(
 
     Returns:
         ``(generators, pivots, sector)``: coefficient-1 Z strings in reduced row-echelon form
-        (:func:`find_z2_symmetries`), the pivot (highest) qubit of each, and the int8
+        (:func:`symmetry_null_space`), the pivot (highest) qubit of each, and the int8
         eigenvalue ``(-1)^{b . z_i}`` of each on the reference. Symmetries with ``X``/``Y``
         letters are left out (warning).
     """
     bits = _check_reference(ham, reference_bits)
-    gens = find_z2_symmetries(ham)
-    z_only = ~gens.x.any(axis=1)
-    if not z_only.all():
+    gens = symmetry_null_space(ham)
+    diagonal = ~gens.x.any(axis=1)
+    if not diagonal.all():
         warnings.warn(
-            f"{int((~z_only).sum())} Z2 symmetry generator(s) contain X/Y letters; their sector "
+            f"{int((~diagonal).sum())} Z2 symmetry generator(s) contain X/Y letters; their sector "
             "is not fixed by the reference determinant and they are not tapered",
             stacklevel=2,
         )
-    gens = gens.subset(z_only)
+    gens = gens.subset(diagonal)
     k = gens.n_terms
     pivots = np.array([int(np.flatnonzero(gens.z[i])[-1]) for i in range(k)], dtype=np.int64)
     # RREF from the highest qubit: the pivot of generator i is its highest Z and is unique to it
@@ -313,8 +323,8 @@ def z2_symmetries(
     return gens, pivots, sector
 
 
-def taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
-    """Taper off one qubit per Z-only Z2 symmetry (arXiv:1701.08213).
+def reduce_to_sector(ham: PauliExpansion, reference_bits: np.ndarray) -> SectorReduction:
+    """Taper off one qubit per diagonal Z2 symmetry (arXiv:1701.08213).
 
     Args:
         ham: qubit Hamiltonian.
@@ -322,16 +332,16 @@ def taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
             whose symmetry eigenvalues fix the sector.
 
     Returns:
-        :class:`TaperResult`. Symmetries with ``X``/``Y`` letters are not tapered (warning).
+        :class:`SectorReduction`. Symmetries with ``X``/``Y`` letters are not tapered (warning).
 
     Example:
         H2/STO-3G, Jordan–Wigner: 3 generators, 4 qubits -> 1.
     """
     bits = _check_reference(ham, reference_bits)
-    gens, pivots, sector = z2_symmetries(ham, bits)
+    gens, pivots, sector = diagonal_symmetries(ham, bits)
     tapered = _rotate_and_project(ham, gens, pivots, sector)
     kept = np.setdiff1d(np.arange(ham.n_qubits), pivots)
-    return TaperResult(
+    return SectorReduction(
         generators=gens,
         sector=sector,
         qubits_removed=pivots,
@@ -341,7 +351,7 @@ def taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
     )
 
 
-def no_taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
+def identity_reduction(ham: PauliExpansion, reference_bits: np.ndarray) -> SectorReduction:
     """Identity tapering stage: no generators, the Hamiltonian and reference passed through.
 
     Args:
@@ -349,14 +359,14 @@ def no_taper(ham: PauliSum, reference_bits: np.ndarray) -> TaperResult:
         reference_bits: 0/1 reference basis state.
 
     Returns:
-        :class:`TaperResult` with zero generators.
+        :class:`SectorReduction` with zero generators.
     """
     bits = _check_reference(ham, reference_bits)
-    return TaperResult(
-        generators=PauliSum.zero(ham.n_qubits),
+    return SectorReduction(
+        generators=PauliExpansion.zero(ham.n_qubits),
         sector=np.zeros(0, dtype=np.int8),
         qubits_removed=np.zeros(0, dtype=np.int64),
-        hamiltonian=ham.simplify(atol=0.0),
+        hamiltonian=ham.combine_like_terms(atol=0.0),
         reference_bits=bits.copy(),
         n_qubits_before=ham.n_qubits,
     )

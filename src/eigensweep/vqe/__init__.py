@@ -27,7 +27,7 @@ from .methods import (
 _LAZY: dict[str, str] = {
     "AdaptAnsatz": "adapt",
     "AdaptResult": "adapt",
-    "pool_terms": "adapt",
+    "pool_excitations": "adapt",
     "run_adapt": "adapt",
     "Excitation": "fermionic",
     "FermionicAnsatz": "fermionic",
@@ -42,7 +42,7 @@ _LAZY: dict[str, str] = {
     "to_qubit_state": "detspace",
     "OptimizeResult": "engine",
     "run_optimize": "engine",
-    "Estimate": "estimators",
+    "MeasuredEnergy": "estimators",
     "Estimator": "estimators",
     "MeasurementPlan": "estimators",
     "NoisyEstimator": "estimators",
@@ -58,7 +58,7 @@ _LAZY: dict[str, str] = {
 }
 
 if TYPE_CHECKING:  # for type checkers and IDEs; at run time these load lazily
-    from .adapt import AdaptAnsatz, AdaptResult, pool_terms, run_adapt
+    from .adapt import AdaptAnsatz, AdaptResult, pool_excitations, run_adapt
     from .circuits import circuit_from_meta, rotations_from_meta
     from .detspace import (
         DetSpace,
@@ -69,8 +69,8 @@ if TYPE_CHECKING:  # for type checkers and IDEs; at run time these load lazily
     )
     from .engine import OptimizeResult, run_optimize
     from .estimators import (
-        Estimate,
         Estimator,
+        MeasuredEnergy,
         MeasurementPlan,
         NoisyEstimator,
         ShotEstimator,
@@ -93,7 +93,7 @@ __all__ = [
     "AdaptAnsatz",
     "AdaptResult",
     "DetSpace",
-    "Estimate",
+    "MeasuredEnergy",
     "Estimator",
     "Excitation",
     "ExcitationGate",
@@ -114,7 +114,7 @@ __all__ = [
     "from_qubit_state",
     "make_estimator",
     "minimize",
-    "pool_terms",
+    "pool_excitations",
     "rotations_from_meta",
     "run_adapt",
     "run_optimize",

@@ -53,8 +53,8 @@ from .pauli_rotation import PauliGate, PauliRotationAnsatz
 from .tapered import TaperedFermionicAnsatz, TaperedString, taper_excitation
 
 if TYPE_CHECKING:
-    from ..qubit.pauli import PauliSum
-    from ..qubit.taper import TaperResult
+    from ..qubit.pauli import PauliExpansion
+    from ..qubit.taper import SectorReduction
 
 __all__ = [
     "POOLS",
@@ -62,13 +62,13 @@ __all__ = [
     "AdaptResult",
     "QubitAdaptAnsatz",
     "TaperedAdaptAnsatz",
-    "pool_terms",
-    "qubit_pool",
+    "pool_excitations",
+    "z_stripped_generator_strings",
     "run_adapt",
 ]
 
 
-def pool_terms(pool: str, norb: int, nelec: tuple[int, int]) -> list[FermionTerm]:
+def pool_excitations(pool: str, norb: int, nelec: tuple[int, int]) -> list[FermionTerm]:
     """Excitation operators ``T`` of a pool (see module docstring)."""
     if pool == "singles_doubles":
         doubles, singles = sd_excitation_terms(norb, nelec)
@@ -92,7 +92,9 @@ def pool_terms(pool: str, norb: int, nelec: tuple[int, int]) -> list[FermionTerm
     raise ConfigError(f"ansatz.pool: unknown pool {pool!r}; allowed: {', '.join(POOLS)}")
 
 
-def qubit_pool(norb: int, nelec: tuple[int, int]) -> list[tuple[np.ndarray, np.ndarray]]:
+def z_stripped_generator_strings(
+    norb: int, nelec: tuple[int, int]
+) -> list[tuple[np.ndarray, np.ndarray]]:
     """Distinct Z-stripped Pauli strings ``(x, z)`` of the JW ``singles_doubles`` generators."""
     n = 2 * norb
     doubles, singles = sd_excitation_terms(norb, nelec)
@@ -112,7 +114,7 @@ class QubitAdaptAnsatz(PauliRotationAnsatz):
     name = "adapt"
 
     def __init__(
-        self, hamiltonian: PauliSum, reference: np.ndarray, strings: list, pool: str = "qubit"
+        self, hamiltonian: PauliExpansion, reference: np.ndarray, strings: list, pool: str = "qubit"
     ) -> None:
         self.pool = pool
         gates = [PauliGate(x, z, k) for k, (x, z) in enumerate(strings)]
@@ -146,7 +148,7 @@ class TaperedAdaptAnsatz(TaperedFermionicAnsatz):
         self,
         terms: list[FermionTerm],
         mapping: str,
-        tapering: TaperResult,
+        tapering: SectorReduction,
         *,
         pool: str,
         space: DetSpace,
@@ -200,9 +202,9 @@ def run_adapt(
     optimizer: dict | None = None,
     seed: int = 0,
     progress: Callable[[int, float], None] | None = None,
-    hamiltonian: PauliSum | None = None,
+    hamiltonian: PauliExpansion | None = None,
     reference: np.ndarray | None = None,
-    tapering: TaperResult | None = None,
+    tapering: SectorReduction | None = None,
     mapping: str = "jordan_wigner",
 ) -> AdaptResult:
     """Run ADAPT-VQE in determinant space, or on tapered qubits (module docstring).
@@ -224,12 +226,12 @@ def run_adapt(
             )
         if hamiltonian is None or reference is None:
             raise ValueError("the qubit pool needs the JW Hamiltonian and reference bits")
-        strings = qubit_pool(space.norb, space.nelec)
+        strings = z_stripped_generator_strings(space.norb, space.nelec)
     elif tapered:
         assert tapering is not None
         cache: dict[FermionTerm, list[TaperedString] | None] = {}
         terms = []
-        for t in pool_terms(pool, space.norb, space.nelec):
+        for t in pool_excitations(pool, space.norb, space.nelec):
             cache[t] = taper_excitation(t, mapping, tapering)
             if cache[t]:
                 terms.append(t)
@@ -237,7 +239,7 @@ def run_adapt(
         pool_dropped = len(cache) - len(terms)
         t_ham = tapering.hamiltonian
     else:
-        terms = pool_terms(pool, space.norb, space.nelec)
+        terms = pool_excitations(pool, space.norb, space.nelec)
         pool_gates = [space.cached_gate(t) for t in terms]
     selected: list = []
     params = np.zeros(0)
@@ -275,10 +277,10 @@ def run_adapt(
     while True:
         psi = ansatz.state(params)
         if qubit:
-            lam = sv.apply_pauli_sum(psi, hamiltonian)
+            lam = sv.apply_pauli_expansion(psi, hamiltonian)
             grads = np.array([np.vdot(lam, sv.apply_pauli(psi, x, z)).imag for x, z in strings])
         elif tapered:
-            lam = sv.apply_pauli_sum(psi, t_ham)
+            lam = sv.apply_pauli_expansion(psi, t_ham)
             grads = np.array(
                 [
                     sum(w * np.vdot(lam, sv.apply_pauli(psi, x, z)).imag for x, z, w in op)

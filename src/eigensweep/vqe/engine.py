@@ -78,9 +78,9 @@ from .reference import ExactReference, state_moments
 from .uccsd import UCCSD
 
 if TYPE_CHECKING:
-    from ..qubit.pauli import PauliSum
-    from ..qubit.taper import TaperResult
-    from .estimators import Estimate
+    from ..qubit.pauli import PauliExpansion
+    from ..qubit.taper import SectorReduction
+    from .estimators import MeasuredEnergy
 
 __all__ = [
     "ANSATZ_DEFAULTS",
@@ -188,7 +188,7 @@ class OptimizeResult:
 
 def _mapped_hamiltonian(
     h1e: np.ndarray, eri: np.ndarray, e_core: float, norb: int, mapping: str
-) -> PauliSum:
+) -> PauliExpansion:
     """The qubit Hamiltonian of the integrals under ``mapping`` (OpenFermion, imported there)."""
     from ..qubit.mapping import map_hamiltonian
 
@@ -204,8 +204,8 @@ def _basis_index(bits: np.ndarray) -> int:
 
 
 def _check_tapering(
-    tapering: TaperResult,
-    qubit_hamiltonian: PauliSum | None,
+    tapering: SectorReduction,
+    qubit_hamiltonian: PauliExpansion | None,
     space: DetSpace,
     mapping: str,
 ) -> None:
@@ -239,7 +239,7 @@ _FRAME_CHECK_MAX_QUBITS = 16
 
 def _check_mapping_frame(
     ans: Any,
-    tapering: TaperResult,
+    tapering: SectorReduction,
     space: DetSpace,
     mapping: str,
     exact: ExactReference,
@@ -300,7 +300,7 @@ class _Problem:
     e_core: float
     space: DetSpace
 
-    def mapped_hamiltonian(self, mapping: str) -> PauliSum:
+    def mapped_hamiltonian(self, mapping: str) -> PauliExpansion:
         return _mapped_hamiltonian(self.h1e, self.eri, self.e_core, self.space.norb, mapping)
 
 
@@ -351,7 +351,7 @@ def _stop_reason(converged: bool, moved: bool, message: str, budget: bool = Fals
 
 
 def _resolve_methods(
-    ansatz: dict, optimizer: dict, estimator: dict, mapping: str, tapering: TaperResult | None
+    ansatz: dict, optimizer: dict, estimator: dict, mapping: str, tapering: SectorReduction | None
 ) -> _Methods:
     a_cfg = validate_method("ansatz", ansatz)
     o_cfg = validate_method("optimizer", optimizer)
@@ -363,13 +363,13 @@ def _resolve_methods(
 
 
 def _build_adapt(
-    m: _Methods, prob: _Problem, tapering: TaperResult | None, seed: int, progress
+    m: _Methods, prob: _Problem, tapering: SectorReduction | None, seed: int, progress
 ) -> _Built:
     from .adapt import run_adapt
 
     space = prob.space
     a_cfg, norb, nelec = m.ansatz, space.norb, space.nelec
-    qubit_pool = a_cfg["pool"] == "qubit"
+    z_stripped_generator_strings = a_cfg["pool"] == "qubit"
     res = run_adapt(
         space,
         pool=a_cfg["pool"],
@@ -378,15 +378,17 @@ def _build_adapt(
         optimizer=m.optimizer,
         seed=seed,
         progress=progress,
-        hamiltonian=prob.mapped_hamiltonian(m.mapping) if qubit_pool else None,
-        reference=mapped_reference_bits(nelec, norb, m.mapping) if qubit_pool else None,
+        hamiltonian=prob.mapped_hamiltonian(m.mapping) if z_stripped_generator_strings else None,
+        reference=mapped_reference_bits(nelec, norb, m.mapping)
+        if z_stripped_generator_strings
+        else None,
         tapering=tapering if m.tapered else None,
         mapping=m.mapping,
     )
-    return _Built(res.ansatz, adapt=res, jw_statevector=qubit_pool)
+    return _Built(res.ansatz, adapt=res, jw_statevector=z_stripped_generator_strings)
 
 
-def _build_fermionic(m: _Methods, space: DetSpace, tapering: TaperResult | None, seed: int):
+def _build_fermionic(m: _Methods, space: DetSpace, tapering: SectorReduction | None, seed: int):
     a_cfg = m.ansatz
     if a_cfg["name"] == "uccsd":
         ans: Any = UCCSD(space, spin_adapted=a_cfg["spin_flip_tied"])
@@ -408,8 +410,8 @@ def _build_fermionic(m: _Methods, space: DetSpace, tapering: TaperResult | None,
 def _build_hardware_efficient(
     m: _Methods,
     prob: _Problem,
-    tapering: TaperResult | None,
-    qubit_hamiltonian: PauliSum | None,
+    tapering: SectorReduction | None,
+    qubit_hamiltonian: PauliExpansion | None,
     reference_bits: np.ndarray | None,
     seed: int,
 ) -> _Built:
@@ -464,7 +466,7 @@ def _to_qubit_fn(built: _Built, space: DetSpace, mapping: str) -> Callable:
     return lambda psi: psi
 
 
-def _measured_operator(est: Any, ans: Any, prob: _Problem, m: _Methods) -> PauliSum:
+def _measured_operator(est: Any, ans: Any, prob: _Problem, m: _Methods) -> PauliExpansion:
     """The qubit operator the job measures (mapped from the integrals for an exact
     determinant-space job)."""
     if est is not None:
@@ -502,8 +504,8 @@ def _make_sampler(
     m: _Methods,
     built: _Built,
     prob: _Problem,
-    tapering: TaperResult | None,
-    qubit_hamiltonian: PauliSum | None,
+    tapering: SectorReduction | None,
+    qubit_hamiltonian: PauliExpansion | None,
     seed: int,
     n_cnot: int,
 ):
@@ -699,7 +701,7 @@ def _final_energy(
     if est is None:
         return e_exact_params, 0.0, e_exact_params
     final_shots = m.estimator["final_shots"] or m.estimator["shots"]
-    final: Estimate = est.estimate(
+    final: MeasuredEnergy = est.estimate(
         qubit_state(params), shots=final_shots, purpose="final", reserved=True
     )
     return final.value, final.stderr, e_exact_params
@@ -710,7 +712,7 @@ def _state_report(
     built: _Built,
     space: DetSpace,
     exact: ExactReference,
-    tapering: TaperResult | None,
+    tapering: SectorReduction | None,
     params: np.ndarray,
 ) -> dict:
     """Overlap with the exact ground space and ``<N>``, ``<S^2>`` of the optimized state."""
@@ -753,10 +755,10 @@ def run_optimize(
     ansatz: dict,
     optimizer: dict,
     estimator: dict,
-    qubit_hamiltonian: PauliSum | None = None,
+    qubit_hamiltonian: PauliExpansion | None = None,
     reference_bits: np.ndarray | None = None,
     mapping: str = "jordan_wigner",
-    tapering: TaperResult | None = None,
+    tapering: SectorReduction | None = None,
     initial_params: np.ndarray | None = None,
     seed: int = 0,
     progress: Callable[[int, float], None] | None = None,
@@ -774,8 +776,8 @@ def run_optimize(
             ``tapering`` is given: ``tapering.reference_bits`` is used).
         mapping: fermion-to-qubit mapping (``jordan_wigner``, ``bravyi_kitaev``, ``parity``) of
             the problem: circuit costs, sampled Hamiltonians and tapering use it.
-        tapering: the taper stage's :class:`~eigensweep.qubit.TaperResult` of the Hamiltonian
-            under ``mapping`` (``no_taper`` results, with zero generators, mean untapered).
+        tapering: the taper stage's :class:`~eigensweep.qubit.SectorReduction` of the Hamiltonian
+            under ``mapping`` (``identity_reduction`` results, with zero generators, mean untapered).
         initial_params: starting parameters (default: the ansatz's ``initial_params()``; for
             a tapered fermionic ansatz only the kept parameters).
         seed: seed for optimizer, estimator (if it has no own seed) and random inits.

@@ -39,14 +39,14 @@ import numpy as np
 
 from ..errors import ConfigError
 from ..qubit.grouping import qwc_groups
-from ..qubit.pauli import PauliSum, bits_to_mask
+from ..qubit.pauli import PauliExpansion, bits_to_mask
 from ..qubit.statevector import GATE_MATRICES, apply_matrix_1q
 from ..qubit.statevector import expectation as sv_expectation
 from .methods import ESTIMATOR_DEFAULTS, validate_estimator
 
 __all__ = [
     "ESTIMATOR_DEFAULTS",
-    "Estimate",
+    "MeasuredEnergy",
     "Estimator",
     "MeasurementPlan",
     "NoisyEstimator",
@@ -59,7 +59,7 @@ __all__ = [
 
 
 @dataclass
-class Estimate:
+class MeasuredEnergy:
     """One energy estimate: ``value`` (hartree), its standard error and the shots spent."""
 
     value: float
@@ -107,7 +107,7 @@ _HSDG = GATE_MATRICES["h"] @ GATE_MATRICES["sdg"]  # sdg, then h
 class MeasurementPlan:
     """QWC groups of a Hamiltonian with their measurement bases and shot weights."""
 
-    def __init__(self, ham: PauliSum) -> None:
+    def __init__(self, ham: PauliExpansion) -> None:
         self.ham = ham
         self.n_qubits = ham.n_qubits
         self.constant = ham.identity_coeff
@@ -196,12 +196,12 @@ class MeasurementPlan:
 
 
 class Estimator:
-    """Base: ``estimate(psi) -> Estimate`` for a qubit statevector ``psi``."""
+    """Base: ``estimate(psi) -> MeasuredEnergy`` for a qubit statevector ``psi``."""
 
     name = "exact"
     shots = 0
 
-    def __init__(self, ham: PauliSum | None = None) -> None:
+    def __init__(self, ham: PauliExpansion | None = None) -> None:
         self.ham = ham
         self.ledger = ShotLedger()
 
@@ -216,10 +216,10 @@ class Estimator:
         purpose: str = "energy",
         *,
         reserved: bool = False,
-    ) -> Estimate:
+    ) -> MeasuredEnergy:
         if self.ham is None:
             raise RuntimeError("exact estimator has no qubit Hamiltonian")
-        return Estimate(sv_expectation(psi, self.ham), 0.0, 0)
+        return MeasuredEnergy(sv_expectation(psi, self.ham), 0.0, 0)
 
 
 class ShotEstimator(Estimator):
@@ -227,7 +227,7 @@ class ShotEstimator(Estimator):
 
     name = "shots"
 
-    def __init__(self, ham: PauliSum, shots: int, rng: np.random.Generator) -> None:
+    def __init__(self, ham: PauliExpansion, shots: int, rng: np.random.Generator) -> None:
         super().__init__(ham)
         self.plan = MeasurementPlan(ham)
         self.shots = int(shots)
@@ -247,7 +247,7 @@ class ShotEstimator(Estimator):
         purpose: str = "energy",
         *,
         reserved: bool = False,
-    ) -> Estimate:
+    ) -> MeasuredEnergy:
         """Sample ``psi`` with ``shots`` (default the estimator's), booked under ``purpose``."""
         alloc = self.plan.allocate(self.shots if shots is None else int(shots))
         self.ledger.charge(int(alloc.sum()), purpose, reserved=reserved)
@@ -267,12 +267,14 @@ class ShotEstimator(Estimator):
             s2 = float(w @ (y - mean) ** 2) / (n_g - 1.0)
             value += mean
             var += s2 / n_g
-        return Estimate(float(value), math.sqrt(var), int(alloc.sum()))
+        return MeasuredEnergy(float(value), math.sqrt(var), int(alloc.sum()))
 
     def _distributions(self, psi: np.ndarray) -> np.ndarray:
         return self.plan.all_probabilities(psi)
 
-    def _estimate_batched(self, psi: np.ndarray, alloc: np.ndarray, table: np.ndarray) -> Estimate:
+    def _estimate_batched(
+        self, psi: np.ndarray, alloc: np.ndarray, table: np.ndarray
+    ) -> MeasuredEnergy:
         """All groups at once: the same draws as the per-group loop (one multinomial per
         group, in group order), the values read from :meth:`MeasurementPlan.value_table`."""
         p = self._distributions(psi)
@@ -281,7 +283,7 @@ class ShotEstimator(Estimator):
         means = np.einsum("gb,gb->g", counts, table) / n_g
         s2 = np.einsum("gb,gb->g", counts, (table - means[:, None]) ** 2) / (n_g - 1.0)
         value = self.plan.constant + float(means.sum())
-        return Estimate(value, math.sqrt(float((s2 / n_g).sum())), int(alloc.sum()))
+        return MeasuredEnergy(value, math.sqrt(float((s2 / n_g).sum())), int(alloc.sum()))
 
 
 class NoisyEstimator(ShotEstimator):
@@ -291,7 +293,7 @@ class NoisyEstimator(ShotEstimator):
 
     def __init__(
         self,
-        ham: PauliSum,
+        ham: PauliExpansion,
         shots: int,
         rng: np.random.Generator,
         *,
@@ -324,7 +326,7 @@ class NoisyEstimator(ShotEstimator):
 
 
 def make_estimator(
-    cfg: dict[str, Any], ham: PauliSum | None, *, seed: int, n_cnot: int = 0
+    cfg: dict[str, Any], ham: PauliExpansion | None, *, seed: int, n_cnot: int = 0
 ) -> Estimator:
     """Build the estimator of a validated config (``seed`` used if the config has none)."""
     name = cfg["name"]

@@ -29,7 +29,7 @@ from .methods import ROTATION_AXES
 from .pauli_rotation import PauliGate, PauliRotationAnsatz
 
 if TYPE_CHECKING:
-    from ..qubit.pauli import PauliSum
+    from ..qubit.pauli import PauliExpansion
 
 __all__ = ["ROTATION_AXES", "HardwareEfficientAnsatz", "prepared_bits"]
 
@@ -59,7 +59,7 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
 
     def __init__(
         self,
-        hamiltonian: PauliSum | None,
+        hamiltonian: PauliExpansion | None,
         reference: np.ndarray,
         rounds: int = 2,
         axes: str = "yz",

@@ -20,7 +20,7 @@ from ..qubit import statevector as sv
 from .parameter_shift import PAULI_RULE, ShiftUnit
 
 if TYPE_CHECKING:
-    from ..qubit.pauli import PauliSum
+    from ..qubit.pauli import PauliExpansion
 
 __all__ = ["PauliGate", "PauliRotationAnsatz", "pauli_label"]
 
@@ -45,7 +45,7 @@ class PauliRotationAnsatz:
     """Product of Pauli rotations on a computational-basis reference, on statevectors.
 
     State ``prod_k exp(-i a_k/2 P_k)|ref>`` (``gates[0]`` first); energies are expectation
-    values of a :class:`~eigensweep.qubit.pauli.PauliSum` (possibly tapered). The gradient is
+    values of a :class:`~eigensweep.qubit.pauli.PauliExpansion` (possibly tapered). The gradient is
     the adjoint one (Jones & Gacon, arXiv:2009.02823): with ``dU_k/da_k = -i/2 P_k U_k``,
     ``dE/da_k = Im <lambda_k|P_k|psi_k>``.
     """
@@ -54,7 +54,7 @@ class PauliRotationAnsatz:
 
     def __init__(
         self,
-        hamiltonian: PauliSum | None,
+        hamiltonian: PauliExpansion | None,
         reference: np.ndarray,
         gates: Sequence[PauliGate],
         n_params: int,
@@ -138,7 +138,7 @@ class PauliRotationAnsatz:
 
     qubit_state = state
 
-    def _ham(self) -> PauliSum:
+    def _ham(self) -> PauliExpansion:
         if self.hamiltonian is None:
             raise RuntimeError("this ansatz was built without a Hamiltonian")
         return self.hamiltonian
@@ -151,7 +151,7 @@ class PauliRotationAnsatz:
         ham = self._ham()
         angles = self.angles(theta)
         psi = self.state(theta)
-        lam = sv.apply_pauli_sum(psi, ham)
+        lam = sv.apply_pauli_expansion(psi, ham)
         energy = float(np.vdot(psi, lam).real)
         da = np.zeros(len(self.gates))
         for k in range(len(self.gates) - 1, -1, -1):

@@ -8,7 +8,7 @@ the ansatz lives in, never recomputed:
 * determinant space: the CI vectors themselves;
 * the qubit encoding of ``mapping``: :func:`~eigensweep.qubit.mapping.encode_state`;
 * a tapered problem: the encoded vectors tapered with the taper stage's own Clifford and sector
-  (:meth:`~eigensweep.qubit.TaperResult.taper_state`, Bravyi et al. 2017, arXiv:1701.08213),
+  (:meth:`~eigensweep.qubit.SectorReduction.taper_state`, Bravyi et al. 2017, arXiv:1701.08213),
   then an orthonormal basis of their span (:meth:`ExactReference.sector_vectors`): a
   degenerate ground space may lie partly in other Z2 sectors (O2 1Delta_g).
 
@@ -33,8 +33,8 @@ import numpy as np
 from ..chem.exact import DEGENERACY_TOL, civec_spin_square, solve_sector
 
 if TYPE_CHECKING:
-    from ..qubit.pauli import PauliSum
-    from ..qubit.taper import TaperResult
+    from ..qubit.pauli import PauliExpansion
+    from ..qubit.taper import SectorReduction
 
 __all__ = [
     "ExactReference",
@@ -90,7 +90,7 @@ class ExactReference:
         """Whether the energy and the ground space are available."""
         return self.vectors.size > 0 and math.isfinite(self.energy)
 
-    def qubit_vectors(self, mapping: str, tapering: TaperResult | None = None) -> np.ndarray:
+    def qubit_vectors(self, mapping: str, tapering: SectorReduction | None = None) -> np.ndarray:
         """Ground-space vectors as statevectors of ``mapping`` (tapered when ``tapering`` has
         generators); shape ``(k, 2**n_qubits)``."""
         from ..qubit.mapping import encode_state
@@ -104,7 +104,7 @@ class ExactReference:
             out.append(psi)
         return np.array(out)
 
-    def sector_vectors(self, mapping: str, tapering: TaperResult | None = None) -> np.ndarray:
+    def sector_vectors(self, mapping: str, tapering: SectorReduction | None = None) -> np.ndarray:
         """Orthonormal basis of the ground space's part in the problem's symmetry sector.
 
         Untapered, these are :meth:`qubit_vectors`. Tapering keeps one Z2 sector (chosen from
@@ -139,7 +139,7 @@ class ExactReference:
         amp = basis.conj() @ np.asarray(state).reshape(-1)
         return float(np.sum(np.abs(amp) ** 2))
 
-    def operator_overlap(self, state: np.ndarray, ham: PauliSum) -> float:
+    def operator_overlap(self, state: np.ndarray, ham: PauliExpansion) -> float:
         """Overlap for a user-given qubit operator whose frame is unknown.
 
         The operator is diagonalised densely (deterministic; up to
@@ -148,7 +148,7 @@ class ExactReference:
         """
         if not math.isfinite(self.energy) or ham.n_qubits > OPERATOR_OVERLAP_MAX_QUBITS:
             return math.nan
-        vals, vecs = np.linalg.eigh(ham.to_sparse().toarray())
+        vals, vecs = np.linalg.eigh(ham.sparse_matrix().toarray())
         if abs(vals[0] - self.energy) > 1e-6:
             return math.nan
         ground = vecs[:, np.abs(vals - vals[0]) < DEGENERACY_TOL]
@@ -161,7 +161,7 @@ def state_moments(
     nelec: tuple[int, int],
     *,
     mapping: str | None = None,
-    tapering: TaperResult | None = None,
+    tapering: SectorReduction | None = None,
 ) -> tuple[float, float]:
     """``(<N>, <S^2>)`` of a normalised state.
 
@@ -223,11 +223,11 @@ SECTOR_CHECK_TOL = 1e-6
 
 
 def check_qubit_problem(
-    ham: PauliSum,
+    ham: PauliExpansion,
     exact: ExactReference,
     mapping: str,
     key: str,
-    tapering: TaperResult | None = None,
+    tapering: SectorReduction | None = None,
 ) -> dict:
     """Check that the exact state, carried into the qubit problem, is an eigenstate there.
 
@@ -246,7 +246,7 @@ def check_qubit_problem(
         StageFileError: the residual is too large, or the sector holds no ground state.
     """
     from ..errors import StageFileError
-    from ..qubit.statevector import apply_pauli_sum
+    from ..qubit.statevector import apply_pauli_expansion
 
     if ham.n_qubits > SECTOR_CHECK_MAX_QUBITS or not exact.known:
         return {
@@ -268,7 +268,7 @@ def check_qubit_problem(
         )
     energy, residual = math.nan, 0.0
     for psi in frame:  # every ground state in the sector: H psi = E psi
-        h_psi = apply_pauli_sum(psi, ham)
+        h_psi = apply_pauli_expansion(psi, ham)
         e = float(np.vdot(psi, h_psi).real)
         energy = e if not math.isfinite(energy) else min(energy, e)
         residual = max(residual, float(np.linalg.norm(h_psi - exact.energy * psi)))

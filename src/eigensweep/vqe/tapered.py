@@ -3,7 +3,7 @@
 Tapering (:mod:`eigensweep.qubit.taper`) conjugates the mapped Hamiltonian with a Clifford
 ``U`` that turns each Z2 symmetry generator ``tau_i`` into ``X`` on a pivot qubit, replaces that
 ``X`` by the reference state's eigenvalue ``s_i`` and deletes the qubit. An operator ``P`` that
-commutes with every ``tau_i`` goes through the same map (``TaperResult.taper_operator``): ``U P U``
+commutes with every ``tau_i`` goes through the same map (``SectorReduction.taper_operator``): ``U P U``
 has only ``I``/``X`` on the pivots, so on the sector ``U P U = s P'`` with ``P'`` one Pauli
 string on the remaining qubits and ``s = +-1``. Hence a rotation ``exp(-i a/2 P)`` acting on a
 state of the sector equals ``exp(-i (s a)/2 P')`` on the tapered state: the sign multiplies
@@ -17,7 +17,7 @@ whose merged angle vanishes are removed.
 
 Symmetry-forbidden excitations
 ------------------------------
-With Z-only generators the strings of one excitation share their ``X`` part, so either all
+With diagonal generators the strings of one excitation share their ``X`` part, so either all
 of them commute with a generator or all anticommute. An anticommuting excitation (one that
 changes a point-group irrep or a spin parity, e.g. an ``a_1 -> b_1`` single) maps the sector of
 the reference onto the other sector: ``G`` is block off-diagonal. Such excitations are dropped,
@@ -48,7 +48,7 @@ from .parameter_shift import EXCITATION_RULE, ShiftUnit
 from .pauli_rotation import PauliGate, PauliRotationAnsatz
 
 if TYPE_CHECKING:
-    from ..qubit.taper import TaperResult
+    from ..qubit.taper import SectorReduction
 
 __all__ = [
     "TaperedFermionicAnsatz",
@@ -63,14 +63,14 @@ _ZERO = 1e-12
 
 
 def taper_excitation(
-    term: FermionTerm, mapping: str, tapering: TaperResult
+    term: FermionTerm, mapping: str, tapering: SectorReduction
 ) -> list[TaperedString] | None:
     """Tapered rotations of the excitation ``exp(phi (T - T^dagger))`` (module docstring).
 
     Args:
         term: ``T`` as ``((spin_orbital, 1 = creation), ...)``.
         mapping: the mapping of ``tapering``'s Hamiltonian.
-        tapering: a :class:`~eigensweep.qubit.TaperResult` of that Hamiltonian.
+        tapering: a :class:`~eigensweep.qubit.SectorReduction` of that Hamiltonian.
 
     Returns:
         ``[(x, z, w), ...]`` in the order of the mapped strings (merged duplicates at their first
@@ -79,15 +79,15 @@ def taper_excitation(
 
     Raises:
         ValueError: some strings of the excitation commute with the generators and others do
-            not (impossible for Z-only generators).
+            not (impossible for diagonal generators).
     """
-    from ..qubit.pauli import PauliSum
+    from ..qubit.pauli import PauliExpansion
 
     n = int(tapering.n_qubits_before)
     merged: dict[bytes, list[Any]] = {}
     n_ok = n_bad = 0
     for x, z, c in generator_paulis(tuple(term), check_mapping(mapping), n):
-        single = PauliSum(x[None, :].copy(), z[None, :].copy(), np.ones(1), n)
+        single = PauliExpansion(x[None, :].copy(), z[None, :].copy(), np.ones(1), n)
         try:
             tapered = tapering.taper_operator(single)
         except ValueError:
@@ -126,7 +126,7 @@ def _plan(
     excitations: Sequence[Excitation],
     n_params: int,
     mapping: str,
-    tapering: TaperResult,
+    tapering: SectorReduction,
     cache: dict[FermionTerm, list[TaperedString] | None] | None,
 ) -> _Plan:
     cache = {} if cache is None else cache
@@ -204,7 +204,7 @@ class TaperedFermionicAnsatz(PauliRotationAnsatz):
         excitations: Sequence[Excitation],
         n_params: int,
         mapping: str,
-        tapering: TaperResult,
+        tapering: SectorReduction,
         *,
         name: str = "fermionic",
         initial: np.ndarray | None = None,
@@ -233,7 +233,7 @@ class TaperedFermionicAnsatz(PauliRotationAnsatz):
 
     @classmethod
     def from_ansatz(
-        cls, ansatz: FermionicAnsatz, mapping: str, tapering: TaperResult
+        cls, ansatz: FermionicAnsatz, mapping: str, tapering: SectorReduction
     ) -> TaperedFermionicAnsatz:
         """Taper a determinant-space ansatz (UCCSD, k-UpCCGSD, ADAPT), keeping its meta."""
         extra = {
