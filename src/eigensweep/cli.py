@@ -336,21 +336,25 @@ def _run_locked(args, path: Path, plan, locked: bool, store: Path | None = None)
         # plan knows which stage files are missing or damaged, so ask for exactly those.
         cmd += ["--forcerun", *sorted(f"results/{n.stage}/{n.key}.h5" for n in pending)]
     t0 = time.perf_counter()
-    proc = subprocess.run(cmd)
+    if args.dry_run:
+        return subprocess.run(cmd).returncode  # the dry run's listing is the point: shown as is
+    from .display import RunDisplay, run_engine, run_log_path
+
+    display = RunDisplay(plan, pending, results, run_log_path(), verbose=args.verbose)
+    returncode = run_engine(cmd, display)
     dt = time.perf_counter() - t0
-    if proc.returncode != 0:
+    if returncode != 0:
         print(
-            f"eigensweep: the sweep stopped with errors after {dt:.1f} s; see the lines above and "
-            "logs/<stage>/<key>.log; finished stages are kept, rerun to resume",
+            f"eigensweep: the sweep stopped with errors after {dt:.1f} s; finished stages are "
+            "kept, rerun to resume",
             file=sys.stderr,
         )
-        return proc.returncode
-    if not args.dry_run:
-        print(
-            f"eigensweep: done in {dt:.1f} s; summary: results/{plan.study}/summary.csv, "
-            f"plots: results/{plan.study}/plots/"
-        )
-        _print_waiting(plan)
+        return returncode
+    print(
+        f"eigensweep: done in {dt:.1f} s; summary: results/{plan.study}/summary.csv, "
+        f"plots: results/{plan.study}/plots/"
+    )
+    _print_waiting(plan)
     return 0
 
 
@@ -663,6 +667,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
     p.add_argument("--force", action="store_true", help="run problems above the config's limits")
     p.add_argument("--store", help=STORE_HELP)
+    p.add_argument(
+        "-v",
+        "--verbose",
+        action="store_true",
+        help="show Snakemake's full log live (default: one progress line; the log goes to "
+        "logs/run-<time>.log)",
+    )
     p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
     p.set_defaults(func=cmd_run)
 
