@@ -127,10 +127,15 @@ class RunDisplay:
     def n_done(self) -> int:
         return sum(self.done.values())
 
-    def _stages_text(self) -> str:
+    def _counts_text(self) -> str:
         return ", ".join(
             f"{s} {self.done[s]}/{self.total[s]}" for s in STAGE_NAMES if self.total[s]
         )
+
+    def _stages_text(self) -> str:
+        if self.n_total and self.n_done + self._n_settled >= self.n_total:
+            return self._counts_text() + "; writing tables and plots"
+        return self._counts_text()
 
     @property
     def _n_settled(self) -> int:
@@ -276,7 +281,7 @@ class RunDisplay:
                 f"eigensweep: {len(self.failed)} stage job(s) failed, {self.n_done} done, "
                 f"{not_run} not run in {elapsed}"
             )
-        stages = f" ({self._stages_text()})" if self.n_total else ""
+        stages = f" ({self._counts_text()})" if self.n_total else ""
         lines = [f"{line}{stages}; engine log: {self.log_path}"]
         for line in lines:
             print(line, file=self.out, flush=True)
