@@ -133,7 +133,7 @@ class RunDisplay:
         )
 
     def _stages_text(self) -> str:
-        if self.n_total and self.n_done + self._n_settled >= self.n_total:
+        if self.n_total and not self.failed and self.n_done >= self.n_total:
             return self._counts_text() + "; writing tables and plots"
         return self._counts_text()
 
