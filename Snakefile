@@ -31,6 +31,11 @@ include: "workflow/rules/reconcile.smk"
 include: "workflow/rules/collect.smk"
 
 
+# On a cluster, collect (tables and plots from small files) runs in the submitting Snakemake.
+localrules:
+    collect,
+
+
 rule all:
     default_target: True
     input:

@@ -99,7 +99,7 @@ def test_archive_carries_workflow_config_and_environment(two_sweeps):
         "workflow/rules/common.smk",
         "workflow/rules/optimize.smk",
         "workflow/schemas/config.schema.yaml",
-        "profiles/local/config.yaml",
+        "profiles/default/config.yaml",
         "envs/eigensweep.yaml",
         "config/config.yaml",
         "environment.lock",

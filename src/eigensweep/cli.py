@@ -22,7 +22,7 @@ EXIT_CODES = """exit status:
   0    success
   1    the sweep stopped with errors (see the lines above and logs/<stage>/<key>.log)
   2    bad input: a one-line message names the file or key and what to do
-  130  interrupted (Ctrl-C); finished stages are kept, rerun to resume
+  130  interrupted (Ctrl-C or SIGTERM); finished stages are kept, rerun to resume
   141  the output pipe was closed (e.g. eigensweep plan | head)
 """
 
@@ -175,9 +175,39 @@ def cmd_plan(args) -> int:
     _print_sizes(plan)
     _print_costs(plan, results)
     _print_waiting(plan)
+    if args.profile and _profile_groups(_profile_dir(args.profile)):
+        pending = {
+            n.key
+            for n in plan.nodes.values()
+            if _status(n, results, store) not in ("cached", "stored")
+        }
+        _print_batches(plan, args.batch_minutes, pending, args.cores or os.cpu_count() or 1)
     if args.verbose:
         print("\n".join(lines))
     return 0
+
+
+def _print_batches(plan, target_minutes: float, pending: set[str], cores: int) -> None:
+    """Scheduler jobs of a grouped (cluster) run, with the estimates of each batch."""
+    from .resources import batch_plan
+
+    bp = batch_plan(plan, target_minutes, pending, cores=cores)
+    batches = bp["batches"]
+    print(
+        f"\nscheduler jobs (job groups, target {target_minutes:g} min each): {len(batches)} "
+        f"for {len(pending)} stage jobs ({bp['per_batch']} point chain(s) per job), "
+        "plus collect on the submitting host"
+    )
+    if batches:
+        print(
+            f"{'batch':>5} {'stage jobs':>10} {'est. minutes':>12} {'request: MB':>12} "
+            f"{'minutes':>8} {'cores':>6}"
+        )
+    for i, b in enumerate(batches, 1):
+        print(
+            f"{i:>5} {b['jobs']:>10} {b['expected_min']:>12.1f} {b['mem_mb']:>12} "
+            f"{b['runtime_min']:>8} {b['threads']:>6}"
+        )
 
 
 def _print_waiting(plan) -> None:
@@ -246,7 +276,34 @@ def _print_costs(plan, results: Path) -> None:
         print(f"({unknown} problem(s) not yet mapped: costs appear once their taper stage has run)")
 
 
-def _snakemake_cmd(args, config: Path, store: Path | None = None) -> list[str]:
+PROFILE_ALIASES = {"local": "default"}  # the local profile's name before Snakemake's own
+#: The job group of every stage rule in a grouped profile (profiles/slurm/config.yaml).
+GROUP = "point"
+
+
+def _profile_dir(profile: str | None) -> Path:
+    from .paths import repo_root
+
+    profile = PROFILE_ALIASES.get(profile or "default", profile or "default")
+    prof_dir = Path(profile) if Path(profile).is_dir() else repo_root() / "profiles" / profile
+    if not (prof_dir / "config.yaml").is_file():
+        raise EigensweepError(
+            f"--profile {profile}: no such profile; use default, slurm or a folder with config.yaml"
+        )
+    return prof_dir
+
+
+def _profile_groups(prof_dir: Path) -> bool:
+    """True when the profile puts stage rules into job groups (a cluster profile)."""
+    import yaml
+
+    doc = yaml.safe_load((prof_dir / "config.yaml").read_text()) or {}
+    return bool(doc.get("groups"))
+
+
+def _snakemake_cmd(
+    args, config: Path, store: Path | None = None, unlock: bool = False, extra=()
+) -> list[str]:
     from .paths import repo_root
 
     root = repo_root()
@@ -262,46 +319,46 @@ def _snakemake_cmd(args, config: Path, store: Path | None = None) -> list[str]:
         "--directory",
         str(Path.cwd()),
     ]
-    profile = args.profile or "local"
-    prof_dir = Path(profile) if Path(profile).is_dir() else root / "profiles" / profile
-    if not prof_dir.is_dir():
-        raise EigensweepError(
-            f"--profile {profile}: no such profile; use local, slurm or a folder with config.yaml"
-        )
+    prof_dir = _profile_dir(args.profile)
     cmd += ["--workflow-profile", str(prof_dir)]
+    if unlock:
+        return [*cmd, "--unlock"]
     cmd += ["--cores", str(args.cores or os.cpu_count() or 1)]
     if args.dry_run:
         cmd.append("--dry-run")
-    return cmd + list(args.snakemake_args or [])
+    return cmd + list(extra) + list(args.snakemake_args or [])
 
 
 def cmd_run(args) -> int:
+    from . import runguard
     from .store import store_in_use, store_root
 
     path, cfg, plan = _load_plan(args.config, force=args.force)
     store = _store_of(args, cfg)
     if store is not None:
         store = store_root(store)
-    lock = None if args.dry_run else _folder_lock()
-    in_use = store_in_use(store) if store is not None and lock is not None else None
+    if args.dry_run:
+        return _run_snakemake(args, path, plan, None, store)
+    # The folder lock (src/eigensweep/runguard.py), held from here until Snakemake has ended;
+    # a second run waits for the first.
+    lock = runguard.acquire(say=lambda m: print(m, flush=True))
+    in_use = store_in_use(store) if store is not None else None
     try:
-        return _run_locked(args, path, plan, lock is not None, store)
+        return _run_snakemake(args, path, plan, lock, store)
     finally:
-        for held in (in_use, lock):
-            if held is not None:
-                held.close()
+        if in_use is not None:
+            in_use.close()
+        runguard.release(lock)
 
 
-def _run_locked(args, path: Path, plan, locked: bool, store: Path | None = None) -> int:
+def _run_snakemake(args, path: Path, plan, lock, store: Path | None = None) -> int:
+    from . import runguard
     from .stage_table import stage_path
     from .store import link_stored, register_study
 
     results = Path("results")
-    if locked:
-        # Under the folder lock no other writer exists: temporary files are leftovers of
-        # killed jobs (never stage files, which appear only by an atomic rename).
-        for tmp in results.rglob(".*.tmp"):
-            tmp.unlink(missing_ok=True)
+    if lock is not None:
+        runguard.clean_tmp(results)
     status = {key: _status(node, results, store) for key, node in plan.nodes.items()}
     stored = [plan.nodes[k] for k, st in status.items() if st == "stored"]
     pending = [plan.nodes[k] for k, st in status.items() if st not in ("cached", "stored")]
@@ -313,8 +370,7 @@ def _run_locked(args, path: Path, plan, locked: bool, store: Path | None = None)
         f"{len(pending)} to run",
         flush=True,
     )
-    if store is not None and not args.dry_run:
-        # parents first (plan order), so no link is older than a link it depends on
+    if store is not None and lock is not None:
         for node in stored:
             link_stored(store, node.stage, node.key, results)
         for node in pending:  # a link into a store that no longer holds the key
@@ -322,34 +378,63 @@ def _run_locked(args, path: Path, plan, locked: bool, store: Path | None = None)
             if f.is_symlink() and not f.exists():
                 f.unlink()
         register_study(store, results)
-    if damaged and not args.dry_run:
-        moved = _quarantine(damaged, results, store)
+    if damaged and lock is not None:
+        moved = runguard.quarantine(damaged, results, store)
         print(
-            f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be recomputed",
+            f"eigensweep: {len(damaged)} damaged stage file(s) moved to {moved} and will be "
+            "recomputed",
             flush=True,
         )
-    cmd = _snakemake_cmd(args, path, store)
-    if locked:
-        cmd.append("--nolock")
-    if pending:
-        # Snakemake does not rebuild a missing intermediate file whose descendants exist; the
-        # plan knows which stage files are missing or damaged, so ask for exactly those.
-        cmd += ["--forcerun", *sorted(f"results/{n.stage}/{n.key}.h5" for n in pending)]
+    env = dict(os.environ)
+    # one BLAS/OpenMP thread per stage job (jobs run in threads of one Snakemake process)
+    for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+        env.setdefault(var, "1")
+    if lock is None:
+        env[runguard.DRY_RUN_ENV] = "1"
+    else:
+        env[runguard.LOCK_FD_ENV] = str(lock.fileno())
+        env[runguard.VERIFIED_ENV] = "1"
+        if runguard.stale_snakemake_lock():
+            # Under the folder lock no Snakemake can be running here: the lock is a leftover
+            # of a killed run. Snakemake's own --unlock removes it.
+            print("eigensweep: removing the stale Snakemake lock of a killed run", flush=True)
+            subprocess.run(
+                _snakemake_cmd(args, path, store, unlock=True),
+                env=env,
+                pass_fds=(lock.fileno(),),
+                capture_output=True,
+            )
+    extra: list[str] = []
+    if _profile_groups(_profile_dir(args.profile)):
+        from .resources import batch_plan
+
+        todo = {n.key for n in pending}
+        bp = batch_plan(plan, args.batch_minutes, todo, cores=args.cores or os.cpu_count() or 1)
+        print(
+            f"eigensweep: {len(bp['batches'])} scheduler job(s) for {len(todo)} stage jobs "
+            f"({bp['per_batch']} point chain(s) each, target {args.batch_minutes:g} min)",
+            flush=True,
+        )
+        extra = ["--group-components", f"{GROUP}={bp['per_batch']}"]
+    cmd = _snakemake_cmd(args, path, store, extra=extra)
     t0 = time.perf_counter()
     if args.dry_run:
-        return subprocess.run(cmd).returncode  # the dry run's listing is the point: shown as is
-    from .display import RunDisplay, run_engine, run_log_path
+        # the dry run's listing is the point: shown as is
+        return subprocess.run(cmd, env=env).returncode
+    from .display import RunDisplay, run_log_path
 
     display = RunDisplay(plan, pending, results, run_log_path(), verbose=args.verbose)
-    returncode = run_engine(cmd, display)
+    rc, interrupted = _supervise(cmd, env, lock, display)
     dt = time.perf_counter() - t0
-    if returncode != 0:
+    if interrupted:
+        raise KeyboardInterrupt
+    if rc != 0:
         print(
             f"eigensweep: the sweep stopped with errors after {dt:.1f} s; finished stages are "
             "kept, rerun to resume",
             file=sys.stderr,
         )
-        return returncode
+        return rc
     print(
         f"eigensweep: done in {dt:.1f} s; summary: results/{plan.study}/summary.csv, "
         f"plots: results/{plan.study}/plots/"
@@ -358,56 +443,58 @@ def _run_locked(args, path: Path, plan, locked: bool, store: Path | None = None)
     return 0
 
 
-def _folder_lock():
-    """One sweep at a time per folder: an OS file lock, released even if the process is killed.
+def _die_with_parent(parent: int) -> None:
+    """preexec_fn of the Snakemake child: the kernel kills it when this process dies (Linux
+    PR_SET_PDEATHSIG), so a SIGKILL of ``eigensweep run`` leaves no Snakemake behind."""
+    import ctypes
+    import signal
 
-    A second `eigensweep run` in the same folder waits for the first, then finds the shared
-    stages cached. Snakemake's own lock is turned off under it (it survives a SIGKILL and would
-    block the resume).
-    """
-    import fcntl
-
-    Path(".snakemake").mkdir(exist_ok=True)
-    fh = open(".snakemake/eigensweep-run.lock", "w")  # noqa: SIM115 (held for the whole run)
     try:
-        fcntl.flock(fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
-    except BlockingIOError:
-        print(
-            "eigensweep: another sweep is running in this folder; waiting for it to finish",
-            flush=True,
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, signal.SIGKILL)  # PR_SET_PDEATHSIG = 1
+    except (OSError, AttributeError):  # not Linux: no parent-death signal
+        return
+    if os.getppid() != parent:  # the parent died before prctl took effect
+        os._exit(1)
+
+
+def _supervise(cmd: list[str], env: dict, lock, display) -> tuple[int, bool]:
+    """Run Snakemake as a child that dies with this process, its output through the run
+    display; SIGINT and SIGTERM are forwarded to it and waited for. Returns (exit status,
+    interrupted)."""
+    import signal
+
+    from .display import run_engine
+
+    parent = os.getpid()
+    procs: list[subprocess.Popen] = []
+    got: list[int] = []
+
+    def start(args, **kw):
+        proc = subprocess.Popen(
+            args,
+            env=env,
+            pass_fds=() if lock is None else (lock.fileno(),),
+            # its own session: a terminal's Ctrl-C reaches it once, forwarded from here
+            start_new_session=True,
+            preexec_fn=lambda: _die_with_parent(parent),
+            **kw,
         )
-        fcntl.flock(fh, fcntl.LOCK_EX)
-    return fh
+        procs.append(proc)
+        return proc
 
+    def forward(signum, frame):
+        got.append(signum)
+        for proc in procs:
+            proc.send_signal(signum)
 
-def _quarantine(nodes, results: Path, store: Path | None = None) -> Path:
-    """Move damaged stage files aside (never delete evidence), return the folder.
-
-    A damaged file of the shared store is moved inside the store (``DIR/.damaged/``, under the
-    key's lock) and the study's link to it removed."""
-    from .stage_table import stage_path
-    from .store import key_lock
-
-    stamp = time.strftime("%Y%m%d-%H%M%S")
-    folder = results / ".damaged" / stamp
-    for node in nodes:
-        src = stage_path(node.stage, node.key, results)
-        if store is not None:
-            target = stage_path(node.stage, node.key, store)
-            if not src.exists() or (src.is_symlink() and src.resolve() == target):
-                with key_lock(store, node.stage, node.key):
-                    if target.is_file():
-                        folder = store / ".damaged" / stamp
-                        dst = folder / node.stage / target.name
-                        dst.parent.mkdir(parents=True, exist_ok=True)
-                        os.replace(target, dst)
-                if src.is_symlink():
-                    src.unlink()
-                continue
-        dst = folder / node.stage / src.name
-        dst.parent.mkdir(parents=True, exist_ok=True)
-        os.replace(src, dst)
-    return folder
+    old = {s: signal.signal(s, forward) for s in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        rc = run_engine(cmd, display, start=start)
+    finally:
+        for s, h in old.items():
+            signal.signal(s, h)
+    return rc, bool(got)
 
 
 def cmd_show(args) -> int:
@@ -460,7 +547,7 @@ def cmd_report(args) -> int:
     print(f"eigensweep: report of the sweep of {path}", flush=True)
     args.output = args.output or f"results/{plan.study}/report.html"
     args.profile, args.cores, args.dry_run, args.snakemake_args = (
-        "local",
+        "default",
         1,
         False,
         ["--report", args.output],
@@ -663,7 +750,9 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("run", help="run the sweep (Snakemake), computing only what is not cached")
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("--cores", type=int, help="cores to use (default: all)")
-    p.add_argument("--profile", help="Snakemake profile: local (default), slurm, or a folder")
+    p.add_argument(
+        "--profile", help="Snakemake profile: default (local machine), slurm, or a folder"
+    )
     p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
     p.add_argument("--force", action="store_true", help="run problems above the config's limits")
     p.add_argument("--store", help=STORE_HELP)
@@ -674,6 +763,12 @@ def build_parser() -> argparse.ArgumentParser:
         help="show Snakemake's full log live (default: one progress line; the log goes to "
         "logs/run-<time>.log)",
     )
+    p.add_argument(
+        "--batch-minutes",
+        type=float,
+        default=30.0,
+        help="grouped (cluster) profiles: target run time of one scheduler job (default 30)",
+    )
     p.add_argument("snakemake_args", nargs=argparse.REMAINDER, help="after --: passed to Snakemake")
     p.set_defaults(func=cmd_run)
 
@@ -683,6 +778,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--force", action="store_true", help="accept problems above the limits")
     p.add_argument("--json", action="store_true", help="print the plan as JSON")
     p.add_argument("--store", help=STORE_HELP)
+    p.add_argument(
+        "--profile", help="with a grouped profile (slurm): the scheduler jobs it would submit"
+    )
+    p.add_argument("--cores", type=int, help="cores per scheduler job (default: this host's)")
+    p.add_argument(
+        "--batch-minutes",
+        type=float,
+        default=30.0,
+        help="target run time of one scheduler job (default 30)",
+    )
     p.set_defaults(func=cmd_plan)
 
     p = add(

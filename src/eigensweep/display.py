@@ -288,13 +288,16 @@ class RunDisplay:
         return lines
 
 
-def run_engine(cmd: list[str], display: RunDisplay, poll_s: float = 0.5) -> int:
+def run_engine(
+    cmd: list[str], display: RunDisplay, poll_s: float = 0.5, start=subprocess.Popen
+) -> int:
     """Run the engine command, its output through ``display``; returns its exit status.
 
     The output is read on a thread; the progress line is redrawn every ``poll_s`` seconds.
     On Ctrl-C the engine (in the same process group) gets the signal too; it is waited for.
+    ``start`` starts the engine (``subprocess.Popen`` or the CLI's supervised start).
     """
-    proc = subprocess.Popen(
+    proc = start(
         cmd,
         stdout=subprocess.PIPE,
         stderr=subprocess.STDOUT,

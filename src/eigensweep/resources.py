@@ -214,3 +214,144 @@ def _integrals_params(node: Node, plan: Plan) -> dict | None:
             return None
         cur = plan.nodes[parent]
     return None
+
+
+# ---------------------------------------------------------------- batches of scheduler jobs
+#: Seconds a stage job takes on top of its science when it runs inside a scheduler job: the
+#: Slurm plugin starts each stage job of a group as its own `srun` step (a Snakemake process
+#: that parses the Snakefile and imports the stage's libraries). Measured on the one-node test
+#: cluster for H2/STO-3G chains (tests/cluster/run-slurm-test.sh): about 5 s per stage job.
+STEP_OVERHEAD_S = 5.0
+#: Seconds one scheduler job spends before its first stage job (Snakemake start and DAG).
+BATCH_START_S = 20.0
+
+
+def expected_seconds(node: Node, plan: Plan) -> float:
+    """Expected wall seconds of one stage job's science (not a request: no safety margin).
+
+    Scales as the request model above; the constants are H2/LiH STO-3G times of the stage
+    functions in one process (``benchmarks/bench_jobs.py``: integrals about 0.1-1 s, hamiltonian
+    and taper below 0.1 s, optimize below 1 s).
+    """
+    norb, na, nb = estimate_size(
+        _integrals_params(node, plan)
+        or {"atoms": "H", "charge": 0, "basis": "sto-3g", "multiplicity": 2}
+    )
+    dets = float(_determinants(norb, na, nb))
+    if node.stage == "integrals":
+        return 1.0 + 60.0 * dets / 200_000
+    if node.stage in ("hamiltonian", "taper"):
+        return 0.5 + 2.0 ** min(2 * norb, 60) / 2**20
+    if node.stage == "optimize":
+        size = optimize_size(node, plan)
+        return 1.0 + 60.0 * (float(size["runtime_min"]) - 15.0)
+    return 5.0
+
+
+def point_components(plan: Plan) -> list[list[str]]:
+    """Connected components of the plan's stage graph (parents linked to children).
+
+    Each is the stage chain of one molecule point (more than one point when a scan starts each
+    point from its neighbour). Snakemake's job groups run one component per group job, and
+    ``group-components`` packs several components into one scheduler job.
+    """
+    root = {k: k for k in plan.nodes}
+
+    def find(k: str) -> str:
+        while root[k] != k:
+            root[k] = root[root[k]]
+            k = root[k]
+        return k
+
+    for key, node in plan.nodes.items():
+        for parent in node.parents.values():
+            if parent in root:
+                root[find(key)] = find(parent)
+    comps: dict[str, list[str]] = {}
+    for key in plan.nodes:
+        comps.setdefault(find(key), []).append(key)
+    return list(comps.values())
+
+
+def _depths(plan: Plan, keys: list[str]) -> dict[str, int]:
+    """Level of each stage job in the DAG (0 for jobs without parents in ``keys``)."""
+    inside = set(keys)
+    depth: dict[str, int] = {}
+    for key in plan.nodes:  # insertion order is parents first
+        if key in inside:
+            ps = [p for p in plan.nodes[key].parents.values() if p in inside]
+            depth[key] = 1 + max((depth[p] for p in ps), default=-1)
+    return depth
+
+
+def group_request(plan: Plan, keys: list[str], cores: int, mem_cap_mb: int) -> dict[str, int]:
+    """What Snakemake requests for a group job of ``keys`` (its layered rule, one thread each):
+    each DAG level is cut into layers of at most ``cores`` jobs side by side and at most
+    ``mem_cap_mb`` of memory (longest runtimes first); a layer's memory is the sum and its
+    runtime the longest; the group asks for the widest layer and the sum of layer runtimes."""
+    req = {k: stage_resources(plan.nodes[k], plan) for k in keys}
+    levels: dict[int, list[str]] = {}
+    for key, d in _depths(plan, keys).items():
+        levels.setdefault(d, []).append(key)
+    mem = runtime = width = 0
+    for level in levels.values():
+        layer: list[str] = []
+        for key in sorted(level, key=lambda k: -req[k]["runtime"]) + [None]:
+            full = (
+                key is None
+                or len(layer) >= max(cores, 1)
+                or (
+                    layer and sum(req[k]["mem_mb"] for k in layer) + req[key]["mem_mb"] > mem_cap_mb
+                )
+            )
+            if full and layer:
+                mem = max(mem, sum(req[k]["mem_mb"] for k in layer))
+                width = max(width, len(layer))
+                runtime += max(req[k]["runtime"] for k in layer)
+                layer = []
+            if key is not None:
+                layer.append(key)
+    return {"mem_mb": mem, "runtime": min(MAX_RUNTIME_MIN, runtime), "threads": width}
+
+
+def batch_plan(
+    plan: Plan,
+    target_minutes: float,
+    pending: set[str] | None = None,
+    cores: int = 1,
+    mem_cap_mb: int = 8000,
+) -> dict:
+    """Scheduler jobs for the plan's stage jobs with Snakemake job groups.
+
+    Components (:func:`point_components`) of the stage jobs still to run (``pending``; all if
+    None) are packed ``per_batch`` at a time, ``per_batch`` chosen so that one scheduler job is
+    expected to run about ``target_minutes``. Each batch's requests follow Snakemake's rules for
+    a group job (:func:`group_request`, ``cores`` and ``mem_cap_mb`` as in the profile).
+    Returns ``per_batch`` and ``batches``: a list of dicts with ``jobs``, ``expected_min``,
+    ``mem_mb``, ``runtime_min`` and ``threads`` (the request).
+    """
+    todo = set(plan.nodes) if pending is None else set(pending)
+    comps = [[k for k in c if k in todo] for c in point_components(plan)]
+    comps = [c for c in comps if c]
+
+    def cost(c: list[str]) -> float:
+        return sum(expected_seconds(plan.nodes[k], plan) + STEP_OVERHEAD_S for k in c)
+
+    if not comps:
+        return {"per_batch": 1, "batches": []}
+    mean = sum(cost(c) for c in comps) / len(comps)
+    per_batch = max(1, int((target_minutes * 60 - BATCH_START_S) // max(mean, 1e-9)))
+    batches = []
+    for i in range(0, len(comps), per_batch):
+        keys = [k for c in comps[i : i + per_batch] for k in c]
+        req = group_request(plan, keys, cores, mem_cap_mb)
+        batches.append(
+            {
+                "jobs": len(keys),
+                "expected_min": (BATCH_START_S + sum(cost([k]) for k in keys)) / 60,
+                "mem_mb": req["mem_mb"],
+                "runtime_min": req["runtime"],
+                "threads": req["threads"],
+            }
+        )
+    return {"per_batch": per_batch, "batches": batches}

@@ -22,7 +22,7 @@ from contextlib import contextmanager
 from typing import TextIO
 
 from .errors import EigensweepError
-from .plan import Node
+from .plan import Node, parent_files
 
 
 class StageJobError(Exception):
@@ -124,7 +124,9 @@ def stage_job(stage: str, input, output, params, log, store: str | None = None) 
     """One keyed stage job: the ``run:`` block of ``workflow/rules/<stage>.smk``."""
     node_d = params.node
     node = Node(node_d["stage"], node_d["key"], node_d["params"], node_d["parents"])
-    inputs = {name: str(path) for name, path in input.items()}
+    # a verified stage file names no inputs (workflow/rules/common.smk); forced to rerun
+    # anyway (snakemake --forcerun), it reads its parents from the plan
+    inputs = {name: str(path) for name, path in input.items()} or parent_files(node)
     what = f"{stage} {node.key}"
     with job_log(_log_path(log)) as fh:
         wall0, cpu0 = time.perf_counter(), time.thread_time()

@@ -11,6 +11,7 @@ from pathlib import Path
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
+from eigensweep import runguard
 from eigensweep.config import DEFAULT_CONFIG, SWEEP_KEY, workflow_config
 from eigensweep.errors import EigensweepError
 from eigensweep.paths import STORE_KEY, sweep_store
@@ -37,9 +38,28 @@ try:
     if STORE is not None:
         config[STORE_KEY] = str(store_root(STORE))
         STORE_IN_USE = store_in_use(STORE)
+    if workflow.is_main_process and not os.environ.get(runguard.DRY_RUN_ENV):
+        # One sweep per folder (src/eigensweep/runguard.py): `eigensweep run` passes its lock
+        # down; a plain `snakemake` takes it here, or refuses in one line while another runs.
+        runguard.workflow_lock()
+        if not os.environ.get(runguard.VERIFIED_ENV):
+            # Plain `snakemake`: check every stage file before the DAG is built and move
+            # damaged ones aside, so Snakemake rebuilds exactly those.
+            runguard.clean_tmp()
+            runguard.verify_and_quarantine(
+                PLAN, say=lambda m: print(m, file=sys.stderr), store=STORE
+            )
 except EigensweepError as exc:
     sys.stderr.write(f"eigensweep: {exc}\n")
     sys.exit(1)
+
+# Stage files present now are verified (above, or by `eigensweep run` just before): their
+# keys are the hash of everything that defines them, so nothing upstream can make them stale.
+DONE = {
+    key
+    for key, node in PLAN.nodes.items()
+    if Path(f"results/{node.stage}/{key}.h5").is_file()
+}
 
 
 def get_store():
@@ -53,8 +73,16 @@ def get_node(wildcards):
 
 
 def get_parent_files(wildcards):
-    """Parent stage files of one stage job, by role."""
-    return parent_files(PLAN.node(wildcards.key))
+    """Parent stage files of one stage job, by role; none for a verified stage file.
+
+    Reruns are decided by content keys, not by Snakemake's view of the files: a stage file
+    that exists (and was verified) is done whatever its parents' state, so it names no inputs
+    and a rebuilt parent (a damaged file, a restore from backup) never reruns its valid
+    descendants. Only missing stage files depend on their parents."""
+    node = PLAN.node(wildcards.key)
+    if node.key in DONE:
+        return {}
+    return parent_files(node)
 
 
 def get_mem_mb(wildcards, attempt):
@@ -121,6 +149,12 @@ def get_device_histogram_dirs():
     return [get_study_file(f"plots/{DEVICE_HISTOGRAM_FOLDER}")]
 
 
+def get_stage_files():
+    """Every stage file of the plan: a missing one is rebuilt even when its children exist
+    (Snakemake rebuilds a missing intermediate file only if it is a target)."""
+    return [f"results/{node.stage}/{key}.h5" for key, node in PLAN.nodes.items()]
+
+
 def get_final_outputs():
     return (
         [
@@ -135,4 +169,5 @@ def get_final_outputs():
         + get_plot_files()
         + get_device_histogram_dirs()
         + get_export_files()
+        + get_stage_files()
     )
