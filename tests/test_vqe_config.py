@@ -49,7 +49,7 @@ def _run(**kw):
         ("ansatz", {"name": "adapt", "gradient_tolerance": 0}, "ansatz.gradient_tolerance"),
         ("ansatz", {"name": "hardware_efficient", "axes": "x"}, "ansatz.axes"),
         ("ansatz", {"name": "hardware_efficient", "rounds": -1}, "ansatz.rounds"),
-        ("optimizer", {"name": "adam"}, "optimizer.name"),
+        ("optimizer", {"name": "simulated_annealing"}, "optimizer.name"),
         ("optimizer", {"name": "lbfgs", "gtol": 1e-6}, "optimizer.gtol"),
         ("optimizer", {"name": "lbfgs", "maxiter": 0}, "optimizer.maxiter"),
         ("optimizer", {"name": "spsa", "c": -0.1}, "optimizer.c"),
