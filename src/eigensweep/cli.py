@@ -427,6 +427,15 @@ def _run_snakemake(args, path: Path, plan, lock, store: Path | None = None) -> i
     rc, interrupted = _supervise(cmd, env, lock, display)
     dt = time.perf_counter() - t0
     if interrupted:
+        if lock is not None and runguard.stale_snakemake_lock():
+            # a Snakemake killed after the grace period leaves its lock; we still hold the
+            # folder lock, so it is stale: Snakemake's own --unlock removes it
+            subprocess.run(
+                _snakemake_cmd(args, path, store, unlock=True),
+                env=env,
+                pass_fds=(lock.fileno(),),
+                capture_output=True,
+            )
         raise KeyboardInterrupt
     if rc != 0:
         print(
@@ -458,11 +467,16 @@ def _die_with_parent(parent: int) -> None:
         os._exit(1)
 
 
+#: seconds Snakemake gets to stop after a forwarded SIGINT/SIGTERM before it is killed
+STOP_GRACE_S = 60
+
+
 def _supervise(cmd: list[str], env: dict, lock, display) -> tuple[int, bool]:
     """Run Snakemake as a child that dies with this process, its output through the run
     display; SIGINT and SIGTERM are forwarded to it and waited for. Returns (exit status,
     interrupted)."""
     import signal
+    import threading
 
     from .display import run_engine
 
@@ -483,10 +497,24 @@ def _supervise(cmd: list[str], env: dict, lock, display) -> tuple[int, bool]:
         procs.append(proc)
         return proc
 
+    def kill_after_grace():
+        # Snakemake normally stops within seconds of a forwarded signal; if it does not,
+        # its whole session is killed (stage writes are atomic, so nothing partial is kept)
+        for proc in procs:
+            if proc.poll() is None:
+                try:
+                    os.killpg(proc.pid, signal.SIGKILL)
+                except ProcessLookupError:
+                    pass
+
     def forward(signum, frame):
         got.append(signum)
         for proc in procs:
             proc.send_signal(signum)
+        if len(got) == 1:
+            timer = threading.Timer(STOP_GRACE_S, kill_after_grace)
+            timer.daemon = True
+            timer.start()
 
     old = {s: signal.signal(s, forward) for s in (signal.SIGINT, signal.SIGTERM)}
     try:
