@@ -409,7 +409,14 @@ def collect(
     files.append(readme)
     for w in warnings:
         print(f"eigensweep: collect: {w}")
-    files += study_figures(summary, exports or [], results, folder / "plots", accuracy_mha)
+    files += study_figures(
+        summary,
+        exports or [],
+        results,
+        folder / "plots",
+        accuracy_mha,
+        seeds=seed_rows(summary, accuracy_mha),
+    )
     return files
 
 

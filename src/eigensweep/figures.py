@@ -601,9 +601,15 @@ def device_figures(
 
 
 def study_figures(
-    summary: list[dict], exports: list[dict], results: Path, folder: Path, accuracy_mha: float = 1.6
+    summary: list[dict],
+    exports: list[dict],
+    results: Path,
+    folder: Path,
+    accuracy_mha: float = 1.6,
+    seeds: list[dict] | None = None,
 ) -> list[Path]:
-    """All figures of a study; returns the written files."""
+    """All figures of a study; returns the written files. ``seeds``: the study's
+    ``seeds.csv`` rows (:func:`eigensweep.collect.seed_rows`), passed in by collect."""
     files: list[Path] = []
     for mol in dict.fromkeys(r["molecule"] for r in summary):
         rows = [r for r in summary if r["molecule"] == mol]
@@ -612,10 +618,6 @@ def study_figures(
         files += plot_convergence(rows, folder / f"{mol}_convergence", Path(results), accuracy_mha)
     if summary:
         files += plot_resources(summary, folder / "resources")
-    from .collect import seed_rows
-
-    files += plot_shots_error(
-        seed_rows(summary, accuracy_mha), folder / "shots_error", accuracy_mha
-    )
+    files += plot_shots_error(seeds or [], folder / "shots_error", accuracy_mha)
     files += device_figures(exports, Path(results), folder)
     return files
