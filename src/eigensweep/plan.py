@@ -266,7 +266,7 @@ def build_plan(
                         "key_taper": k_tap,
                     }
                 )
-    exports = _plan_device(cfg, rows, add, Path(results_dir))
+    exports = _plan_device(cfg, rows, add, Path(results_dir), base_dir)
     return Plan(
         nodes=nodes,
         rows=rows,
@@ -280,16 +280,48 @@ def _row_matches(sel: dict, row: dict) -> bool:
     return all(str(row.get(k)) == str(v) for k, v in sel.items())
 
 
-def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[dict]:
+def export_targets(cfg: dict, base_dir: str | Path = ".") -> list[tuple[str, dict | str]]:
+    """``(name, export parameter)`` of every ``export.targets`` entry, in config order.
+
+    The parameter is ``"generic"`` for the built-in all-to-all target, else the target file's
+    canonical content (:meth:`eigensweep.target.Target.to_dict`): the export key covers what
+    the target says, not where the file lies, so editing a target re-runs only its exports.
+    """
+    from .target import GENERIC, resolve_target
+
+    out: list[tuple[str, dict | str]] = []
+    names: dict[str, str] = {}
+    for i, entry in enumerate(cfg["export"].get("targets", [GENERIC])):
+        try:
+            target = resolve_target(entry, base_dir)
+        except ConfigError as exc:
+            raise ConfigError(f"export.targets[{i}]: {exc}") from None
+        name = GENERIC if target is None else target.name
+        if name in names:
+            raise ConfigError(
+                f"export.targets[{i}]: target name {name!r} is used by {names[name]!r} too; "
+                "give each target its own name"
+            )
+        names[name] = entry
+        out.append((name, GENERIC if target is None else target.to_dict()))
+    return out
+
+
+def _plan_device(
+    cfg: dict, rows: list[dict], add, results_dir: Path, base_dir: str | Path = "."
+) -> list[dict]:
     """Export and reconcile nodes for the optimize rows chosen by ``export.select``.
 
-    With ``device.kind: synthetic`` the reconcile stage samples the built-in noisy device
-    itself; with ``external`` a reconcile node exists only once returned counts were imported
-    to ``results/returned/<export key>.json``, and the file's SHA-256 is part of its key.
+    Targets (``export.targets``) are a planning axis: each selected row gets one export node
+    (and folder) per target. With ``device.kind: synthetic`` the reconcile stage samples the
+    built-in noisy device itself; with ``external`` a reconcile node exists only once returned
+    counts were imported to ``results/returned/<export key>.json``, and the file's SHA-256 is
+    part of its key.
     """
     exp, dev = cfg["export"], cfg["device"]
     out: list[dict] = []
-    seen: set[str] = set()
+    seen: set[tuple[str, str]] = set()
+    targets = export_targets(cfg, base_dir) if exp["select"] else []
     for i, sel in enumerate(exp["select"]):
         matched = [row for row in rows if _row_matches(sel, row)]
         if not matched:
@@ -298,13 +330,16 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
                 "sweep; check its values against the summary columns (molecule, point, mapping, "
                 "tapered, ansatz, optimizer, estimator)"
             )
-        for row in matched:
-            if row["key"] in seen:
+        for row, (target_name, target) in itertools.product(matched, targets):
+            if (row["key"], target_name) in seen:
                 continue
-            seen.add(row["key"])
+            seen.add((row["key"], target_name))
             k_exp = add(
                 "export",
-                {k: exp[k] for k in ("shots", "scale_factors", "calibration", "target_mha")},
+                {
+                    **{k: exp[k] for k in ("shots", "scale_factors", "calibration", "target_mha")},
+                    "target": target,
+                },
                 {
                     "optimize": row["key"],
                     "taper": row["key_taper"],
@@ -328,12 +363,14 @@ def _plan_device(cfg: dict, rows: list[dict], add, results_dir: Path) -> list[di
             else:
                 counts = returned_path(k_exp, results_dir)
                 if not counts.is_file():
-                    out.append({**row, "key_export": k_exp, "key_reconcile": None})
+                    out.append(
+                        {**row, "target": target_name, "key_export": k_exp, "key_reconcile": None}
+                    )
                     continue
                 rec_params["counts_sha256"] = hashlib.sha256(counts.read_bytes()).hexdigest()
                 parents["counts"] = k_exp
             k_rec = add("reconcile", rec_params, parents)
-            out.append({**row, "key_export": k_exp, "key_reconcile": k_rec})
+            out.append({**row, "target": target_name, "key_export": k_exp, "key_reconcile": k_rec})
     return out
 
 
