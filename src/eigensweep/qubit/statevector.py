@@ -33,6 +33,7 @@ __all__ = [
     "apply_cx",
     "apply_gate",
     "apply_gate_batch",
+    "apply_gate_density",
     "apply_matrix_1q",
     "gate_matrix",
     "probabilities_to_distribution",
@@ -324,6 +325,24 @@ def apply_gate_batch(states: np.ndarray, gate: Gate) -> np.ndarray:
     if gate.name == "cx":
         return apply_cx(states, gate.qubits[0], gate.qubits[1])
     return apply_matrix_1q(states, gate.qubits[0], gate_matrix(gate))
+
+
+def apply_gate_density(rho: np.ndarray, gate: Gate, n_qubits: int) -> np.ndarray:
+    """``U rho U^dagger`` for a density matrix stored as a vector of ``4**n_qubits`` entries.
+
+    The vector is ``rho.reshape(-1)`` (row index in the high bits), i.e. a state of
+    ``2 n_qubits`` qubits whose qubit ``q`` is the row's and qubit ``n_qubits + q`` the column's
+    qubit ``q``: ``U rho U^dagger`` is the gate's kernel with ``U`` on ``q`` and ``conj(U)`` on
+    ``n_qubits + q`` (a batch ``(..., 4**n)`` works the same way). Used by the noise
+    simulator (:mod:`eigensweep.qubit.noise`); no input checks.
+    """
+    n = int(n_qubits)
+    if gate.name == "cx":
+        c, t = gate.qubits
+        return apply_cx(apply_cx(rho, c, t), n + c, n + t)
+    m = gate_matrix(gate)
+    q = gate.qubits[0]
+    return apply_matrix_1q(apply_matrix_1q(rho, q, m), n + q, m.conj())
 
 
 def apply_gate(state: np.ndarray, gate: Gate, n_qubits: int) -> np.ndarray:
