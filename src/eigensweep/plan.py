@@ -220,6 +220,7 @@ def build_plan(
                 "frozen_core": mol["frozen_core"],
                 "active": mol["active"],
                 "fci_max_determinants": refs["fci_max_determinants"],
+                "nroots": refs["nroots"],
                 "stability": refs["stability"],
                 "neighbour_start": mol["neighbour_start"] and prev_int is not None,
             }

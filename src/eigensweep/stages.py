@@ -55,6 +55,7 @@ def run_integrals(
 ) -> None:
     """SCF, active-space integrals and the classical reference ladder for one geometry point."""
     from .chem import compute_integrals
+    from .chem.result import ARRAY_UNITS
 
     p = node.params
     guess, neighbour_orbsym = None, None
@@ -66,6 +67,7 @@ def run_integrals(
             **molecule_kwargs(p),
             symmetry=p["symmetry"],
             fci_max_determinants=p["fci_max_determinants"],
+            nroots=p["nroots"],
             stability=p["stability"],
             guess=guess,
             label=f"integrals {node.key} ({p['atoms']})",
@@ -81,7 +83,7 @@ def run_integrals(
         output,
         arrays=arrays,
         meta=meta,
-        units={"h1e": "hartree", "eri": "hartree", "mo_energy": "hartree", "exact_vectors": "1"},
+        units=ARRAY_UNITS,
         wall_s=t.seconds,
     )
 

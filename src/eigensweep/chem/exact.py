@@ -22,12 +22,18 @@ degenerate orbital occupation) are kept whole: every state within :data:`DEGENER
 lowest spin-``S`` energy is returned, spin-purified by diagonalising ``S^2`` inside each
 cluster of degenerate eigenvalues, as an orthonormal set. Overlaps are then taken with the
 projector onto that space, so they are basis-independent and never above 1.
+
+Excited roots (``nroots > 1``): the lowest ``nroots`` spin-``S`` eigenstates (degenerate
+partners counted one by one, spin-purified the same way), energies ascending, in
+:attr:`SectorSolution.roots` / :attr:`SectorSolution.root_vectors`. With ``all_spins`` also
+the lowest ``nroots`` eigenstates of the whole ``M_s`` sector, whatever their spin (each still
+an ``S^2`` eigenstate), in the ``sector_*`` fields; the ground space stays the spin-``S`` one.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from pyscf import fci
@@ -63,12 +69,24 @@ class SectorSolution:
         spin_square: ``<S^2>`` of the ground space (``S(S+1)`` to :data:`SPIN_TOL`).
         vectors: ``(k, n_alpha_strings * n_beta_strings)`` orthonormal flat CI vectors (PySCF
             string order) spanning the degenerate ground space, ``k >= 1``.
+        roots: the lowest ``nroots`` eigenvalues asked for (hartree, ``ecore`` included),
+            ascending; of spin ``spin`` unless ``all_spins`` was asked.
+        root_vectors: ``(nroots, ndet)`` their orthonormal CI vectors.
+        root_spin_squares: ``<S^2>`` of each root.
+        sector_roots, sector_root_vectors, sector_root_spin_squares: the same for the lowest
+            states of the whole ``M_s`` sector, any spin (only with ``all_spins``; else empty).
     """
 
     energy: float
     spin: float
     spin_square: float
     vectors: np.ndarray
+    roots: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    root_vectors: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    root_spin_squares: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    sector_roots: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    sector_root_vectors: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    sector_root_spin_squares: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def degeneracy(self) -> int:
@@ -106,19 +124,26 @@ def _check_spin(nelec: tuple[int, int], spin: float | None) -> float:
     return s
 
 
-def _spin_resolved(
-    energies: np.ndarray, vectors: np.ndarray, norb: int, nelec: tuple[int, int], target: float
-) -> tuple[float, np.ndarray] | None:
-    """Lowest cluster of degenerate eigenpairs that holds spin-``target`` states.
+def _spin_clusters(
+    energies: np.ndarray,
+    vectors: np.ndarray,
+    norb: int,
+    nelec: tuple[int, int],
+    target: float | None,
+    count: int,
+) -> list[tuple[float, np.ndarray, np.ndarray]] | None:
+    """Lowest clusters of degenerate eigenpairs holding spin-``target`` states.
 
     ``energies`` ascending, ``vectors`` ``(k, ndet)`` orthonormal. Inside each cluster ``S^2``
-    is diagonalised, so an accidental degeneracy of two spins is separated. Returns
-    ``(energy, spin-pure vectors)`` or None; None also when the cluster may continue past the
-    last computed root (its partners might be missing).
+    is diagonalised, so an accidental degeneracy of two spins is separated. Clusters are
+    collected until they hold ``count`` states of spin ``target`` (any spin when ``target`` is
+    None), or fewer when ``vectors`` span the whole sector. Returns ``[(energy, spin-pure
+    vectors, their <S^2>)]`` or None; None also when the last cluster needed may continue past
+    the last computed root (partners might be missing).
     """
     k = len(energies)
-    start = 0
-    while start < k:
+    start, found, out = 0, 0, []
+    while start < k and found < count:
         stop = start + 1
         while stop < k and energies[stop] - energies[start] < DEGENERACY_TOL:
             stop += 1
@@ -126,15 +151,26 @@ def _spin_resolved(
         ss_block = np.array([fci.spin_op.contract_ss(v, norb, nelec).reshape(-1) for v in block])
         s2 = block @ ss_block.T
         w, u = np.linalg.eigh(0.5 * (s2 + s2.T))
-        keep = np.abs(w - target) < SPIN_TOL
+        keep = np.ones(len(w), bool) if target is None else np.abs(w - target) < SPIN_TOL
         if keep.any():
             if stop == k and k < vectors.shape[1]:
                 return None  # the degenerate set may be cut off at the last root
             pure = u[:, keep].T @ block
             q, _ = np.linalg.qr(pure.T)
-            return float(np.mean(energies[start:stop])), np.ascontiguousarray(q.T)
+            out.append((float(np.mean(energies[start:stop])), np.ascontiguousarray(q.T), w[keep]))
+            found += int(keep.sum())
         start = stop
-    return None
+    complete = k == vectors.shape[1]  # the whole sector: fewer states may exist
+    return out if out and (found >= count or complete) else None
+
+
+def _spin_resolved(
+    energies: np.ndarray, vectors: np.ndarray, norb: int, nelec: tuple[int, int], target: float
+) -> tuple[float, np.ndarray] | None:
+    """Lowest cluster of degenerate eigenpairs that holds spin-``target`` states
+    (:func:`_spin_clusters` with one state): ``(energy, spin-pure vectors)`` or None."""
+    found = _spin_clusters(energies, vectors, norb, nelec, target, 1)
+    return None if found is None else (found[0][0], found[0][1])
 
 
 def _dense(h1e, eri, norb, nelec, ndet):
@@ -155,27 +191,41 @@ def _make_solver() -> fci.direct_spin1.FCISolver:
     return solver
 
 
-def _davidson(h1e, eri, norb, nelec, ndet, target):
+def _flat_vectors(vectors, nroots: int) -> np.ndarray:
+    return np.array([np.asarray(c).reshape(-1) for c in np.reshape(vectors, (nroots, -1))])
+
+
+def _davidson(h1e, eri, norb, nelec, ndet, target, count=1):
+    """Davidson clusters holding ``count`` spin-``target`` states (any spin for None)."""
     solver = _make_solver()
-    for nroots in _DAVIDSON_ROOTS:
-        nroots = min(nroots, ndet)
+    for nroots in _DAVIDSON_ROOTS + (count + 2,) * (count + 2 > _DAVIDSON_ROOTS[-1]):
+        nroots = min(max(nroots, count + 1), ndet)
         energies, vectors = solver.kernel(h1e, eri, norb, nelec, nroots=nroots)
         energies = np.atleast_1d(np.asarray(energies, dtype=float))
-        vectors = np.array([np.asarray(c).reshape(-1) for c in np.reshape(vectors, (nroots, -1))])
-        found = _spin_resolved(energies, vectors, norb, nelec, target)
+        found = _spin_clusters(energies, _flat_vectors(vectors, nroots), norb, nelec, target, count)
         if found is not None:
             return found
         if nroots == ndet:
             break
+    if target is None:
+        return None
     # spin penalty: steer the solver to S(S+1), then re-evaluate energies without it
     solver = fci.addons.fix_spin_(_make_solver(), shift=0.5, ss=target)
-    nroots = min(4, ndet)
+    nroots = min(max(4, count + 2), ndet)
     _, vectors = solver.kernel(h1e, eri, norb, nelec, nroots=nroots)
-    vectors = np.array([np.asarray(c).reshape(-1) for c in np.reshape(vectors, (nroots, -1))])
+    vectors = _flat_vectors(vectors, nroots)
     h2 = fci.direct_spin1.absorb_h1e(h1e, eri, norb, nelec, 0.5)
     hv = np.array([fci.direct_spin1.contract_2e(h2, v, norb, nelec).reshape(-1) for v in vectors])
     w, u = np.linalg.eigh(vectors @ hv.T)
-    return _spin_resolved(w, u.T @ vectors, norb, nelec, target) or (None, None)
+    return _spin_clusters(w, u.T @ vectors, norb, nelec, target, min(count, nroots))
+
+
+def _roots(clusters, nroots: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The first ``nroots`` states of a cluster list as (energies, vectors, <S^2>)."""
+    e = [c[0] for c in clusters for _ in range(len(c[1]))][:nroots]
+    v = np.concatenate([c[1] for c in clusters])[:nroots]
+    s2 = np.concatenate([c[2] for c in clusters])[:nroots]
+    return np.asarray(e, dtype=np.float64), _fix_phase(v), np.asarray(s2, dtype=np.float64)
 
 
 def solve_sector(
@@ -186,6 +236,8 @@ def solve_sector(
     *,
     ecore: float = 0.0,
     spin: float | None = None,
+    nroots: int = 1,
+    all_spins: bool = False,
 ) -> SectorSolution:
     """Lowest eigenstate(s) of the Hamiltonian with fixed ``(n_alpha, n_beta)`` and total spin.
 
@@ -199,6 +251,10 @@ def solve_sector(
         nelec: (n_alpha, n_beta).
         ecore: constant added to the energy.
         spin: target S; default |Ms| = |n_alpha - n_beta| / 2 (the high-spin component).
+        nroots: how many of the lowest states to return in ``roots`` (fewer when the sector
+            holds fewer); the ground space is returned either way.
+        all_spins: also return the lowest ``nroots`` states of the whole ``M_s`` sector, any
+            spin, in the ``sector_*`` fields.
 
     Returns:
         :class:`SectorSolution`; it also unpacks as ``(energy, <S^2>, first vector)``.
@@ -217,20 +273,38 @@ def solve_sector(
     ndet = n_determinants(norb, nelec)
     h1e = np.asarray(h1e, dtype=np.float64)
     eri = np.asarray(eri, dtype=np.float64)
+    anyspin = None
     if ndet <= DENSE_MAX_DETERMINANTS:
         w, u = _dense(h1e, eri, norb, nelec, ndet)
-        found = _spin_resolved(w, u.T, norb, nelec, target)
-        e, vecs = found if found is not None else (None, None)
+        roots = _spin_clusters(w, u.T, norb, nelec, target, nroots)
+        if all_spins:
+            anyspin = _spin_clusters(w, u.T, norb, nelec, None, nroots)
     else:
-        e, vecs = _davidson(h1e, eri, norb, nelec, ndet, target)
-    if e is None:
+        roots = _davidson(h1e, eri, norb, nelec, ndet, target, nroots)
+        if all_spins:
+            anyspin = _davidson(h1e, eri, norb, nelec, ndet, None, nroots)
+    ground = roots
+    if ground is None or (all_spins and anyspin is None):
         raise ChemistryError(
             f"no eigenstate with S={s:g} found in the (n_alpha, n_beta)={nelec} sector; "
             "check the multiplicity"
         )
-    vecs = _fix_phase(vecs)
+    e, vecs = ground[0][0], _fix_phase(ground[0][1])
     ss = float(np.mean([civec_spin_square(v, norb, nelec) for v in vecs]))
-    return SectorSolution(energy=float(e) + float(ecore), spin=s, spin_square=ss, vectors=vecs)
+    root_e, root_v, root_s2 = _roots(roots, nroots)
+    sol = SectorSolution(
+        energy=float(e) + float(ecore),
+        spin=s,
+        spin_square=ss,
+        vectors=vecs,
+        roots=root_e + float(ecore),
+        root_vectors=root_v,
+        root_spin_squares=root_s2,
+    )
+    if anyspin is not None:
+        sec_e, sol.sector_root_vectors, sol.sector_root_spin_squares = _roots(anyspin, nroots)
+        sol.sector_roots = sec_e + float(ecore)
+    return sol
 
 
 def _fix_phase(vectors: np.ndarray) -> np.ndarray:

@@ -41,7 +41,12 @@ from typing import Any
 import numpy as np
 from pyscf import ao2mo, gto, lib, mcscf, symm
 
-from eigensweep.chem.exact import SectorSolution, n_determinants, solve_sector
+from eigensweep.chem.exact import (
+    DENSE_MAX_DETERMINANTS,
+    SectorSolution,
+    n_determinants,
+    solve_sector,
+)
 from eigensweep.chem.ladder import (
     LARGE_CI,
     correlated_references,
@@ -49,6 +54,7 @@ from eigensweep.chem.ladder import (
     label_ladder,
 )
 from eigensweep.chem.notes import add_note, one_line, reason
+from eigensweep.chem.properties import dipole_from_rdm1, transition_dipole
 from eigensweep.chem.result import REFERENCE_KEYS, IntegralsResult
 from eigensweep.chem.scf import aufbau_order, build_mol, orbsym_ids, run_scf
 from eigensweep.chem.space import (
@@ -87,6 +93,7 @@ def compute_integrals(
     frozen_core: str | int = "none",
     active: dict | None = None,
     fci_max_determinants: int = 2_000_000,
+    nroots: int = 1,
     stability: bool = True,
     guess: tuple[np.ndarray, np.ndarray] | None = None,
     label: str = "molecule",
@@ -118,6 +125,10 @@ def compute_integrals(
         active: ``{"electrons": int, "orbitals": int}``; ``None`` = all orbitals above the core.
         fci_max_determinants: CASCI and full FCI are skipped (``nan`` plus a note) when their
             determinant count exceeds this.
+        nroots: exact roots stored besides the ground space: the lowest ``nroots`` states of
+            the requested spin (``exact_roots``) and of the whole S_z sector
+            (``exact_sz_roots``), with ``<S^2>``, dipoles and transition dipoles from the
+            lowest root (PySCF ``make_rdm1`` / ``trans_rdm1``).
         stability: run the internal stability analysis and re-optimise when unstable.
         guess: ``(mo_coeff, mo_occ)`` of a neighbouring geometry (same atoms, order and basis)
             to start the SCF from, keeping a scan on one solution.
@@ -170,6 +181,7 @@ def compute_integrals(
             label,
             threads,
             neighbour_orbsym,
+            int(nroots),
         )
 
 
@@ -183,6 +195,7 @@ def _compute(
     label: str,
     threads: int,
     neighbour_orbsym: list[str] | None = None,
+    nroots: int = 1,
 ) -> IntegralsResult:
     mf = run_scf(mol, guess, bool(stability), label, notes)
     mol = mf.mol  # a C1 copy when the lowest solution breaks the point-group symmetry
@@ -204,9 +217,15 @@ def _compute(
     refs = {key: float("nan") for key in REFERENCE_KEYS}
     refs["hf"] = float(mf.e_tot)
     correlated_references(mf, ncore, ncas, refs, notes)
-    spin_square, exact_vectors = _exact_rung(
-        h1e, eri, e_core, ncas, nelecas, fci_max_determinants, threads, refs, notes
+    dip = _dipole_integrals(mol, mo_coeff, ncore, ncas)
+    dip["dipole_hf"] = dipole_from_rdm1(
+        np.diag(np.asarray(mf.mo_occ, float)[ncore : ncore + ncas]), **dip
     )
+    sol = _exact_rung(
+        h1e, eri, e_core, ncas, nelecas, fci_max_determinants, threads, refs, notes, nroots
+    )
+    spin_square, exact_vectors = _ground_space(sol, notes)
+    roots = _root_properties(sol, ncas, nelecas, dip)
     nelec_full = ((plan.nelectron + plan.spin) // 2, (plan.nelectron - plan.spin) // 2)
     if ncore == 0 and ncas == nmo:
         refs["fci"] = refs["casci"]
@@ -242,6 +261,8 @@ def _compute(
         reference_notes=notes,
         spin_square=float(spin_square),
         exact_vectors=exact_vectors,
+        **dip,
+        **roots,
     )
 
 
@@ -260,6 +281,77 @@ def _active_hamiltonian(
     )
 
 
+def _dipole_integrals(mol: gto.Mole, mo_coeff: np.ndarray, ncore: int, ncas: int) -> dict:
+    """Dipole integrals about the frame's origin (see :mod:`eigensweep.chem.properties`):
+    active-MO ``<p|r|q>``, frozen-core electronic and nuclear parts (bohr, e a0)."""
+    with mol.with_common_orig((0.0, 0.0, 0.0)):
+        ao = mol.intor_symmetric("int1e_r", comp=3)
+    c = np.asarray(mo_coeff, dtype=np.float64)
+    act, core = c[:, ncore : ncore + ncas], c[:, :ncore]
+    nuclear = np.einsum("a,ax->x", mol.atom_charges().astype(float), mol.atom_coords())
+    return {
+        "dipole_active": np.ascontiguousarray(np.einsum("ui,xuv,vj->xij", act, ao, act)),
+        "dipole_core": 2.0 * np.einsum("ui,xuv,vi->x", core, ao, core),
+        "dipole_nuclear": np.asarray(nuclear, dtype=np.float64),
+    }
+
+
+def _root_properties(
+    sol: SectorSolution | None,
+    ncas: int,
+    nelecas: tuple[int, int],
+    dip: dict,
+) -> dict:
+    """Energies, <S^2>, dipoles and transition dipoles (from the lowest root) of the stored
+    spin-fixed roots and of the all-spin S_z-sector roots (empty when CASCI was skipped)."""
+    from pyscf.fci import direct_spin1
+
+    out: dict = {}
+    sets = {"exact_roots": None, "exact_sz_roots": None}
+    if sol is not None:
+        sets["exact_roots"] = (sol.roots, sol.root_vectors, sol.root_spin_squares)
+        sets["exact_sz_roots"] = (
+            sol.sector_roots,
+            sol.sector_root_vectors,
+            sol.sector_root_spin_squares,
+        )
+    for name, found in sets.items():
+        if found is None:
+            out[name] = np.zeros(0)
+            out[f"{name}_spin_square"] = np.zeros(0)
+            out[f"{name}_dipole"] = np.zeros((0, 3))
+            out[f"{name}_transition_dipole"] = np.zeros((0, 3))
+            continue
+        energies, vectors, s2 = found
+        dipoles, tdms = [], []
+        for i, v in enumerate(vectors):
+            dm = direct_spin1.make_rdm1(v, ncas, nelecas)
+            dipoles.append(dipole_from_rdm1(dm, *(dip[part] for part in _DIPOLE_PARTS)))
+            t = direct_spin1.trans_rdm1(vectors[0], v, ncas, nelecas)
+            tdms.append(transition_dipole(t, dip["dipole_active"]) if i else np.zeros(3))
+        out[name] = np.asarray(energies, dtype=np.float64)
+        out[f"{name}_spin_square"] = np.asarray(s2, dtype=np.float64)
+        out[f"{name}_dipole"] = np.array(dipoles).reshape(-1, 3)
+        out[f"{name}_transition_dipole"] = np.array(tdms).reshape(-1, 3)
+    return out
+
+
+_DIPOLE_PARTS = ("dipole_active", "dipole_core", "dipole_nuclear")
+
+
+def _ground_space(sol: SectorSolution | None, notes: dict) -> tuple[float, np.ndarray]:
+    """``(<S^2>, ground-space vectors)`` of the CASCI solution, as stored."""
+    if sol is None:
+        return float("nan"), np.zeros((0, 0))
+    vectors = sol.vectors
+    if vectors.size > MAX_STORED_EXACT:
+        add_note(notes, "casci", "ground-state vectors too large to store")
+        vectors = np.zeros((0, 0))
+    if sol.degeneracy > 1:
+        add_note(notes, "casci", f"{sol.degeneracy}-fold degenerate ground state")
+    return sol.spin_square, vectors
+
+
 def _exact_rung(
     h1e: np.ndarray,
     eri: np.ndarray,
@@ -270,25 +362,27 @@ def _exact_rung(
     threads: int,
     refs: dict,
     notes: dict,
-) -> tuple[float, np.ndarray]:
-    """CASCI with the one exact solver; returns ``(<S^2>, ground-space vectors)``."""
+    nroots: int = 1,
+) -> SectorSolution | None:
+    """CASCI with the one exact solver: ground space, ``nroots`` spin-fixed roots and the
+    ``nroots`` lowest roots of the whole S_z sector (empty for one root above the dense
+    size); None when skipped or failed."""
     ndet = n_determinants(ncas, nelecas)
     if ndet > fci_max_determinants:
         notes["casci"] = (
             f"skipped: {ndet:.3g} determinants > fci_max_determinants={fci_max_determinants:.3g}"
         )
-        return float("nan"), np.zeros((0, 0))
+        return None
     try:
         with lib.with_omp_threads(threads if ndet > LARGE_CI else None):
-            sol: SectorSolution = solve_sector(h1e, eri, ncas, nelecas, ecore=e_core)
+            # S_z-sector roots cost a second Davidson run: only when excited roots are asked
+            # for or the sector is diagonalised densely anyway
+            all_spins = nroots > 1 or ndet <= DENSE_MAX_DETERMINANTS
+            sol: SectorSolution = solve_sector(
+                h1e, eri, ncas, nelecas, ecore=e_core, nroots=nroots, all_spins=all_spins
+            )
     except Exception as err:
         notes["casci"] = f"failed: {reason(err)}"
-        return float("nan"), np.zeros((0, 0))
+        return None
     refs["casci"] = sol.energy
-    vectors = sol.vectors
-    if vectors.size > MAX_STORED_EXACT:
-        add_note(notes, "casci", "ground-state vectors too large to store")
-        vectors = np.zeros((0, 0))
-    if sol.degeneracy > 1:
-        add_note(notes, "casci", f"{sol.degeneracy}-fold degenerate ground state")
-    return sol.spin_square, vectors
+    return sol

@@ -11,14 +11,42 @@ import numpy as np
 
 from eigensweep.errors import StageFileError
 
-__all__ = ["REFERENCE_KEYS", "IntegralsResult"]
+__all__ = ["ARRAY_UNITS", "REFERENCE_KEYS", "ROOT_SETS", "IntegralsResult"]
 
 #: Keys of ``IntegralsResult.references``, cheapest to exact.
 REFERENCE_KEYS: tuple[str, ...] = ("hf", "mp2", "ccsd", "ccsd_t", "casci", "fci")
 
 _STORE_FORMAT = "eigensweep.integrals"
-_STORE_VERSION = 2
-_ARRAY_KEYS = ("h1e", "eri", "mo_energy", "mo_occ", "mo_coeff", "exact_vectors")
+_STORE_VERSION = 3
+#: Exact-root arrays: spin-fixed roots and the roots of the whole S_z sector (any spin).
+ROOT_SETS = ("exact_roots", "exact_sz_roots")
+_ROOT_SUFFIXES = ("", "_spin_square", "_dipole", "_transition_dipole")
+_ARRAY_KEYS = (
+    "h1e",
+    "eri",
+    "mo_energy",
+    "mo_occ",
+    "mo_coeff",
+    "exact_vectors",
+    "dipole_active",
+    "dipole_core",
+    "dipole_nuclear",
+    "dipole_hf",
+) + tuple(f"{r}{x}" for r in ROOT_SETS for x in _ROOT_SUFFIXES)
+#: Units of the stored arrays (stage-file ``units`` attributes).
+ARRAY_UNITS = {
+    "h1e": "hartree",
+    "eri": "hartree",
+    "mo_energy": "hartree",
+    "exact_vectors": "1",
+    "dipole_active": "bohr",
+    "dipole_core": "e*bohr",
+    "dipole_nuclear": "e*bohr",
+    "dipole_hf": "e*bohr",
+    **{r: "hartree" for r in ROOT_SETS},
+    **{f"{r}_dipole": "e*bohr" for r in ROOT_SETS},
+    **{f"{r}_transition_dipole": "e*bohr" for r in ROOT_SETS},
+}
 _META_KEYS = (
     "norb",
     "nelec",
@@ -67,6 +95,16 @@ class IntegralsResult:
             spanning the degenerate CASCI ground space of ``references["casci"]`` (the one exact
             reference, :func:`eigensweep.chem.exact.solve_sector`); ``(0, 0)`` when CASCI was
             skipped or failed, or the vectors exceed :data:`MAX_STORED_EXACT`.
+        dipole_active: (3, norb, norb) dipole integrals ``<p|r|q>`` of the active MOs (bohr),
+            about the origin of the molecule's frame (see :mod:`eigensweep.chem.properties`).
+        dipole_core: (3,) electronic dipole sum ``2 sum_i <i|r|i>`` of the inactive orbitals.
+        dipole_nuclear: (3,) nuclear dipole ``sum_A Z_A R_A``.
+        dipole_hf: (3,) total dipole of the SCF determinant (e a0).
+        exact_roots: lowest ``nroots`` CASCI energies of the requested spin (hartree), with
+            ``exact_roots_spin_square``, ``exact_roots_dipole`` (nroots, 3) and
+            ``exact_roots_transition_dipole`` (nroots, 3) ``<root 0|mu|root k>`` (sign
+            arbitrary; row 0 is zero: no transition); empty when CASCI was skipped.
+        exact_sz_roots: the same four for the lowest roots of the whole S_z sector (any spin).
     """
 
     norb: int
@@ -86,6 +124,18 @@ class IntegralsResult:
     reference_notes: dict[str, str] = field(default_factory=dict)
     spin_square: float = float("nan")
     exact_vectors: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    dipole_active: np.ndarray = field(default_factory=lambda: np.zeros((3, 0, 0)))
+    dipole_core: np.ndarray = field(default_factory=lambda: np.zeros(3))
+    dipole_nuclear: np.ndarray = field(default_factory=lambda: np.zeros(3))
+    dipole_hf: np.ndarray = field(default_factory=lambda: np.full(3, np.nan))
+    exact_roots: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    exact_roots_spin_square: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    exact_roots_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    exact_roots_transition_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    exact_sz_roots: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    exact_sz_roots_spin_square: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    exact_sz_roots_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    exact_sz_roots_transition_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
 
     @property
     def has_exact_vectors(self) -> bool:
@@ -175,4 +225,9 @@ class IntegralsResult:
             reference_notes={str(k): str(v) for k, v in meta["reference_notes"].items()},
             spin_square=num(meta["spin_square"]),
             exact_vectors=np.atleast_2d(np.asarray(arrays["exact_vectors"], dtype=np.float64)),
+            **{
+                k: np.asarray(arrays[k], dtype=np.float64)
+                for k in _ARRAY_KEYS
+                if k.startswith(("dipole_", "exact_roots", "exact_sz_roots"))
+            },
         )
