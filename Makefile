@@ -23,8 +23,11 @@ run: $(STAMP)
 	$(BIN)/eigensweep run --config config/config.yaml --cores $(or $(CORES),$(shell nproc 2>/dev/null || echo 2))
 
 # pytest exits 5 when it collects no test: treat that as a failure, deliberately.
+# One pytest-xdist worker per core (TEST_WORKERS=0: one process); a test file stays on one
+# worker (--dist loadfile), so module-scoped sweeps are computed once.
+TEST_WORKERS ?= $(shell nproc 2>/dev/null || echo 2)
 test: $(STAMP)
-	@$(BIN)/python -m pytest -q $(PYTEST_ARGS); rc=$$?; \
+	@$(BIN)/python -m pytest -q -n $(TEST_WORKERS) --dist loadfile $(PYTEST_ARGS); rc=$$?; \
 	if [ $$rc -eq 5 ]; then echo "make test: no tests were collected" >&2; exit 1; fi; exit $$rc
 
 lint: $(STAMP)

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 import pytest
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.analysis import ISOTOPE_MASS_U, analyse_study, fit_minimum, harmonic_wavenumber
 from eigensweep.collect import collect, summary_rows

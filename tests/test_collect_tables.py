@@ -7,7 +7,7 @@ import math
 from pathlib import Path
 
 import pytest
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.collect import (
     DEVICE_COLUMNS,

@@ -6,7 +6,7 @@ import csv
 import statistics
 
 import pytest
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.collect import collect
 from eigensweep.config import validate_config

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 import yaml
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.collect import collect
 

@@ -9,7 +9,7 @@ import sys
 
 import pytest
 import yaml
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.collect import collect
 from eigensweep.config import validate_config

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import yaml
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.analysis import NO_WAVENUMBER_NOTE, analyse_study
 from eigensweep.collect import collect, summary_rows

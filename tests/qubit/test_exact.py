@@ -7,8 +7,8 @@ import functools
 import numpy as np
 import openfermion as of
 import pytest
+from fixtures import pyscf_molecule
 from pyscf import fci
-from test_qubit_molecules import molecule
 
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
@@ -25,7 +25,7 @@ from eigensweep.qubit import (
 
 @functools.cache
 def mapped(name: str, mapping: str) -> PauliExpansion:
-    m = molecule(name)
+    m = pyscf_molecule(name)
     return map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
 
 
@@ -54,7 +54,7 @@ def test_bad_input():
 @pytest.mark.parametrize("name", ["h2", "lih", "beh2", "h2o"])
 def test_untapered_sector_energy_equals_fci(name, mapping):
     # reference: PySCF FCI computed at test time
-    m = molecule(name)
+    m = pyscf_molecule(name)
     energy = sector_ground_energy(
         mapped(name, mapping), n_electrons=sum(m.nelec), sz=0.0, mapping=mapping
     )
@@ -64,7 +64,7 @@ def test_untapered_sector_energy_equals_fci(name, mapping):
 @pytest.mark.parametrize("mapping", MAPPINGS)
 def test_anion_sector_equals_fci(mapping):
     # reference: PySCF FCI of LiH- (N_alpha, N_beta) = (3, 2) computed at test time
-    m = molecule("lih")
+    m = pyscf_molecule("lih")
     solver = fci.direct_spin1.FCI()
     solver.conv_tol = 1e-12
     ref, _ = solver.kernel(m.h1e, m.eri, m.norb, (3, 2), ecore=m.e_core)
@@ -74,7 +74,7 @@ def test_anion_sector_equals_fci(mapping):
 
 def test_several_roots_match_pyscf_fci():
     # reference: PySCF FCI (direct_spin1, nroots=4) computed at test time; S_z = 0 sector
-    m = molecule("lih")
+    m = pyscf_molecule("lih")
     solver = fci.direct_spin1.FCI()
     solver.conv_tol = 1e-12
     solver.nroots = 4
@@ -94,7 +94,7 @@ def test_sector_states_match_openfermion_number_restriction():
 def test_h2_triplet_sector():
     # reference: OpenFermion eigenspectrum restricted by jw_sz_restrict_operator at test time:
     # the S_z = 1 sector of H2 (both electrons alpha) holds the lowest triplet
-    m = molecule("h2")
+    m = pyscf_molecule("h2")
     ham = mapped("h2", "jordan_wigner")
     ours = sector_ground_energy(ham, n_electrons=2, sz=1.0, mapping="jordan_wigner")
     sparse = of.get_sparse_operator(ham.to_openfermion(), 4)
@@ -106,7 +106,7 @@ def test_h2_triplet_sector():
 @pytest.mark.parametrize("mapping", MAPPINGS)
 def test_no_taper_passes_sector_through(mapping):
     # reference: PySCF FCI computed at test time
-    m = molecule("h2o")
+    m = pyscf_molecule("h2o")
     ham = mapped("h2o", mapping)
     result = identity_reduction(ham, reference_bits(m.nelec, m.norb, mapping))
     energy = sector_ground_energy(

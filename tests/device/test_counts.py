@@ -5,24 +5,21 @@ from __future__ import annotations
 import copy
 import json
 import os
-import sys
 from pathlib import Path
 
 import jsonschema
 import pytest
+from fixtures import two_qubit_problem
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import two_qubit_problem  # noqa: E402
-
-from eigensweep.device.counts import (  # noqa: E402
+from eigensweep.device.counts import (
     RESULTS_SCHEMA,
     import_results,
     load_results,
     validate_results,
 )
-from eigensweep.device.manifest import build_job, load_manifest, write_job  # noqa: E402
-from eigensweep.device.synthetic import run_synthetic_device, write_results  # noqa: E402
-from eigensweep.errors import ResultsFileError  # noqa: E402
+from eigensweep.device.manifest import build_job, load_manifest, write_job
+from eigensweep.device.synthetic import run_synthetic_device, write_results
+from eigensweep.errors import ResultsFileError
 
 
 @pytest.fixture(scope="module")

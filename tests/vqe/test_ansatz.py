@@ -2,17 +2,12 @@
 
 from __future__ import annotations
 
-import sys
-from pathlib import Path
-
 import numpy as np
 import pytest
+from fixtures import active_integrals, h2_two_qubit, space_of
 
-sys.path.insert(0, str(Path(__file__).parent))
-from test_vqe_common import h2_two_qubit, molecule, space_of  # noqa: E402
-
-from eigensweep.qubit.mapping import map_hamiltonian  # noqa: E402
-from eigensweep.vqe import (  # noqa: E402
+from eigensweep.qubit.mapping import map_hamiltonian
+from eigensweep.vqe import (
     UCCSD,
     AdaptAnsatz,
     HardwareEfficientAnsatz,
@@ -29,7 +24,7 @@ CHEM_ACC = 1.6e-3  # common practice: "chemical accuracy", 1 kcal/mol ~ 1.6 mHa
 
 def _fci(name):
     # reference: PySCF FCI computed at test time
-    m = molecule(name)
+    m = active_integrals(name)
     return fci_ground_state(m["h1e"], m["eri"], m["e_core"], m["norb"], m["nelec"])[0]
 
 
@@ -81,7 +76,7 @@ def test_fermionic_gradients_match_finite_differences(index):
 
 
 def test_qubit_ansatz_gradients_match_finite_differences():
-    m = molecule("H2")
+    m = active_integrals("H2")
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     hea = HardwareEfficientAnsatz(ham, np.array([1, 1, 0, 0]), rounds=2)
     theta = np.random.default_rng(2).uniform(-1, 1, hea.n_params)
@@ -115,7 +110,7 @@ def test_hea_circuit_matches_simulation():
 
 @pytest.mark.parametrize("name", ["H2", "LiH", "BeH2", "H2O"])
 def test_uccsd_lbfgs_reaches_chemical_accuracy(name):
-    m = molecule(name)
+    m = active_integrals(name)
     res = run_optimize(
         **m, ansatz={"name": "uccsd"}, optimizer={"name": "lbfgs"}, estimator={"name": "exact"}
     )
@@ -129,7 +124,7 @@ def test_uccsd_lbfgs_reaches_chemical_accuracy(name):
 
 
 def test_adapt_lih_beats_uccsd_parameter_count():
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     res = run_optimize(
         **m,
         ansatz={"name": "adapt", "pool": "singles_doubles", "gradient_tolerance": 1e-3},
@@ -145,7 +140,7 @@ def test_adapt_lih_beats_uccsd_parameter_count():
 
 
 def test_adapt_generalized_pool_h2():
-    m = molecule("H2")
+    m = active_integrals("H2")
     res = run_optimize(
         **m,
         ansatz={"name": "adapt", "pool": "generalised_singles_doubles", "max_operators": 4},
@@ -156,7 +151,7 @@ def test_adapt_generalized_pool_h2():
 
 
 def test_kupccgsd_lih_close_to_fci():
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     res = run_optimize(
         **m,
         ansatz={"name": "kupccgsd", "k": 1},
@@ -168,7 +163,7 @@ def test_kupccgsd_lih_close_to_fci():
 
 
 def test_qubit_adapt_h2_exact_and_gradients():
-    m = molecule("H2")
+    m = active_integrals("H2")
     res = run_optimize(
         **m,
         ansatz={"name": "adapt", "pool": "qubit"},
@@ -181,7 +176,7 @@ def test_qubit_adapt_h2_exact_and_gradients():
 
 @pytest.mark.slow
 def test_qubit_adapt_lih_chemical_accuracy_with_fewer_cnots():
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     res = run_optimize(
         **m,
         ansatz={"name": "adapt", "pool": "qubit", "max_operators": 80},
@@ -202,7 +197,7 @@ def test_hea_at_zero_parameters_is_the_hartree_fock_state(rounds, axes):
     from eigensweep.qubit import map_hamiltonian, reference_bits
     from eigensweep.qubit import statevector as sv
 
-    m = molecule("H2")
+    m = active_integrals("H2")
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
     hf_bits = reference_bits(m["nelec"], m["norb"], "jordan_wigner")
     hea = HardwareEfficientAnsatz(ham, hf_bits, rounds=rounds, axes=axes)
@@ -263,7 +258,7 @@ def test_hea_run_on_tapered_lih_starts_at_hf_and_ends_below():
 
     from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
 
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "parity")
     tap = reduce_to_sector(ham, reference_bits(m["nelec"], m["norb"], "parity"))
     res = run_optimize(

@@ -3,24 +3,20 @@
 from __future__ import annotations
 
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import openfermion as of
 import pytest
+from fixtures import active_integrals
 from scipy.sparse.linalg import expm_multiply
 
-sys.path.insert(0, str(Path(__file__).parent))
-from test_vqe_common import molecule  # noqa: E402
-
-from eigensweep.errors import ConfigError  # noqa: E402
-from eigensweep.vqe import UCCSD, DetSpace, Excitation, FermionicAnsatz, detsize, from_qubit_state  # noqa: E402
-from eigensweep.vqe.fermionic import sd_excitation_terms  # noqa: E402
+from eigensweep.errors import ConfigError
+from eigensweep.vqe import UCCSD, DetSpace, Excitation, FermionicAnsatz, detsize, from_qubit_state
+from eigensweep.vqe.fermionic import sd_excitation_terms
 
 
 def _space(name: str, nelec=None, threaded: bool = False) -> DetSpace:
-    m = molecule(name)
+    m = active_integrals(name)
     space = DetSpace(m["norb"], nelec or m["nelec"], m["h1e"], m["eri"], m["e_core"])
     if threaded:
         space._threads = None  # force the multi-threaded kernels on a small space
@@ -71,7 +67,7 @@ def test_gradient_equals_finite_difference_of_openfermion_energy(threaded):
     # reference: OpenFermion JW generators with SciPy expm_multiply for the state, PySCF
     # direct_spin1.energy for its energy, computed at test time; central finite differences
     # (common practice); open-shell (2, 1) LiH sector
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     space = _space("LiH", (2, 1), threaded)
     ansatz = _mixed_ansatz(space)
     assert {g.kind for g in ansatz._sequence.gates} == {0, 1, 2}
@@ -98,7 +94,7 @@ def test_blocked_uccsd_sweeps_equal_openfermion_and_finite_differences(threaded)
     # (common practice). Full UCCSD on the open-shell (2, 1) LiH sector: the sequence is cut
     # into multi-gate blocks of all three kinds (alpha-beta doubles sharing an alpha single,
     # alpha-only runs, beta-only runs)
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     space = _space("LiH", (2, 1), threaded)
     ansatz = UCCSD(space)
     blocks = ansatz._sequence._blocks

@@ -2,16 +2,11 @@
 
 from __future__ import annotations
 
-import sys
-from pathlib import Path
-
 import numpy as np
 import pytest
+from fixtures import active_integrals
 
-sys.path.insert(0, str(Path(__file__).parent))
-from test_vqe_common import molecule  # noqa: E402
-
-from eigensweep.vqe import OPTIMIZER_DEFAULTS, fci_ground_state, minimize, run_optimize  # noqa: E402
+from eigensweep.vqe import OPTIMIZER_DEFAULTS, fci_ground_state, minimize, run_optimize
 
 # tolerance per method on H2/UCCSD (3 parameters) with exact energies
 TOLERANCES = {
@@ -28,13 +23,13 @@ TOLERANCES = {
 
 def _e_fci():
     # reference: PySCF FCI computed at test time
-    m = molecule("H2")
+    m = active_integrals("H2")
     return fci_ground_state(m["h1e"], m["eri"], m["e_core"], m["norb"], m["nelec"])[0]
 
 
 @pytest.mark.parametrize("method", list(OPTIMIZER_DEFAULTS))
 def test_every_optimizer_converges_on_h2(method):
-    m = molecule("H2")
+    m = active_integrals("H2")
     res = run_optimize(
         **m,
         ansatz={"name": "uccsd"},

@@ -2,25 +2,20 @@
 
 from __future__ import annotations
 
-import sys
-from pathlib import Path
-
 import numpy as np
 import pytest
+from fixtures import dense_pauli, dense_rotation, random_pauli_expansion
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import dense_pauli, dense_rotation, random_pauli_expansion  # noqa: E402
-
-from eigensweep.circuit import Circuit, Gate, inverse_gate  # noqa: E402
-from eigensweep.device.compile import (  # noqa: E402
+from eigensweep.circuit import Circuit, Gate, inverse_gate
+from eigensweep.device.compile import (
     base_of_global_fold,
     circuit_from_rotations,
     globally_folded_circuit,
     group_basis,
     measurement_circuit,
 )
-from eigensweep.device.synthetic import simulate_batch  # noqa: E402
-from eigensweep.qubit.statevector import (  # noqa: E402
+from eigensweep.device.synthetic import simulate_batch
+from eigensweep.qubit.statevector import (
     apply_pauli_rotation,
     basis_state,
     expectation,

@@ -8,7 +8,7 @@ import math
 import numpy as np
 import openfermion as of
 import pytest
-from test_qubit_molecules import molecule
+from fixtures import pyscf_molecule
 
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
@@ -23,7 +23,7 @@ from eigensweep.qubit import (
 
 
 def lih(mapping: str = "jordan_wigner") -> PauliExpansion:
-    m = molecule("lih", with_fci=False)
+    m = pyscf_molecule("lih", with_fci=False)
     return map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
 
 
@@ -97,7 +97,7 @@ def test_one_norm_shot_bound_formula():
 def test_variance_shots_never_exceed_one_norm_bound(seed):
     # Cauchy-Schwarz, common practice: sqrt(Var_g) <= sum_{t in g} |c_t|
     ham = lih()
-    m = molecule("lih", with_fci=False)
+    m = pyscf_molecule("lih", with_fci=False)
     rng = np.random.default_rng(seed)
     states = [basis_state(reference_bits(m.nelec, m.norb, "jordan_wigner"))]
     psi = rng.normal(size=1 << 12) + 1j * rng.normal(size=1 << 12)

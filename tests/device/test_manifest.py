@@ -5,16 +5,12 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
+from fixtures import h2_ansatz, h2_problem
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import h2_ansatz, h2_problem  # noqa: E402
-
-from eigensweep.device.manifest import (  # noqa: E402
+from eigensweep.device.manifest import (
     BIT_ORDER,
     allocate_shots,
     build_job,
@@ -22,8 +18,8 @@ from eigensweep.device.manifest import (  # noqa: E402
     load_manifest,
     write_job,
 )
-from eigensweep.errors import StageFileError  # noqa: E402
-from eigensweep.qubit.pauli import PauliExpansion  # noqa: E402
+from eigensweep.errors import StageFileError
+from eigensweep.qubit.pauli import PauliExpansion
 
 
 @pytest.fixture(scope="module")

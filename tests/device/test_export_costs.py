@@ -12,7 +12,7 @@ import json
 
 import numpy as np
 import pytest
-from test_vqe_common import molecule
+from fixtures import active_integrals
 
 from eigensweep.device import build_job, state_circuit
 from eigensweep.qubit import identity_reduction, map_hamiltonian, reduce_to_sector, reference_bits
@@ -22,7 +22,7 @@ EXACT = {"optimizer": {"name": "lbfgs"}, "estimator": {"name": "exact"}}
 
 
 def _optimized(name: str, tapered: bool):
-    ints = molecule(name)
+    ints = active_integrals(name)
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], "jordan_wigner")
     bits = reference_bits(ints["nelec"], ints["norb"], "jordan_wigner")
     tap = reduce_to_sector(ham, bits) if tapered else identity_reduction(ham, bits)

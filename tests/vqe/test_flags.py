@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from fixtures import active_integrals
 from pyscf import fci, gto, scf
-from test_vqe_common import molecule
 
 from eigensweep.vqe import run_optimize
 
@@ -25,7 +25,7 @@ def pyscf_h2():
 def test_gradient_run_converges_and_says_so():
     e_hf, e_fci = pyscf_h2()
     res = run_optimize(
-        **molecule("H2"),
+        **active_integrals("H2"),
         ansatz={"name": "uccsd"},
         optimizer={"name": "lbfgs"},
         estimator={"name": "exact"},
@@ -36,7 +36,7 @@ def test_gradient_run_converges_and_says_so():
 
 def test_spsa_never_claims_convergence():
     res = run_optimize(
-        **molecule("H2"),
+        **active_integrals("H2"),
         ansatz={"name": "uccsd"},
         optimizer={"name": "spsa", "maxiter": 40},
         estimator={"name": "shots", "shots": 2000},
@@ -49,7 +49,7 @@ def test_spsa_never_claims_convergence():
 def test_cobyla_that_returns_its_start_is_not_converged():
     e_hf, _ = pyscf_h2()
     res = run_optimize(
-        **molecule("H2"),
+        **active_integrals("H2"),
         ansatz={"name": "uccsd"},
         optimizer={"name": "cobyla"},
         estimator={"name": "shots", "shots": 1000},

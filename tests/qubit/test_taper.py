@@ -8,7 +8,7 @@ import functools
 import numpy as np
 import openfermion as of
 import pytest
-from test_qubit_molecules import molecule
+from fixtures import pyscf_molecule
 
 from eigensweep.errors import ConfigError, StageFileError
 from eigensweep.qubit import (
@@ -31,7 +31,7 @@ from eigensweep.qubit.pauli import symplectic_inner
 
 @functools.cache
 def tapered(name: str, mapping: str) -> tuple[PauliExpansion, SectorReduction]:
-    m = molecule(name)
+    m = pyscf_molecule(name)
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
     return ham, reduce_to_sector(ham, reference_bits(m.nelec, m.norb, mapping))
 
@@ -96,7 +96,7 @@ def test_h2_four_qubits_to_one():
         assert result.n_qubits == 1
         # reference: PySCF FCI computed at test time (2x2 problem: lowest eigenvalue)
         lowest = np.linalg.eigvalsh(result.hamiltonian.sparse_matrix().toarray())[0]
-        assert lowest == pytest.approx(molecule("h2").e_fci, abs=1e-8)
+        assert lowest == pytest.approx(pyscf_molecule("h2").e_fci, abs=1e-8)
 
 
 @pytest.mark.parametrize(
@@ -114,7 +114,7 @@ def test_tapered_qubit_counts_and_sector_energy(name, before, after, mapping):
     assert not anti.any()
     assert np.array_equal(np.sort(result.qubits_removed), np.unique(result.qubits_removed))
     # reference: PySCF FCI computed at test time, in the tapered N / S_z sector
-    m = molecule(name)
+    m = pyscf_molecule(name)
     energy = sector_ground_energy(
         result.hamiltonian, n_electrons=sum(m.nelec), sz=0.0, mapping=mapping, taper=result
     )
@@ -128,7 +128,7 @@ def test_tapered_qubit_counts_and_sector_energy(name, before, after, mapping):
 def test_sector_is_eigenvalue_on_reference():
     # Bravyi et al. 2017 (arXiv:1701.08213): the sector is fixed by the reference determinant
     ham, result = tapered("h2o", "bravyi_kitaev")
-    m = molecule("h2o")
+    m = pyscf_molecule("h2o")
     psi = basis_state(reference_bits(m.nelec, m.norb, "bravyi_kitaev"))
     for i in range(result.generators.n_terms):
         gen = result.generators.subset([i])
@@ -156,7 +156,7 @@ def test_taper_operator_keeps_number_and_excitation_algebra():
     # reference: OpenFermion jordan_wigner of a double excitation computed at test time; the
     # tapered operators must act on the tapered reference as the originals act on the full one
     ham, result = tapered("lih", "jordan_wigner")
-    m = molecule("lih")
+    m = pyscf_molecule("lih")
     n = 2 * m.norb
     full_ref = basis_state(reference_bits(m.nelec, m.norb, "jordan_wigner"))
     tap_ref = basis_state(result.reference_bits)

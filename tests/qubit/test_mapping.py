@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import openfermion as of
 import pytest
+from fixtures import pyscf_molecule
 from openfermion.chem.molecular_data import spinorb_from_spatial
-from test_qubit_molecules import molecule
 
 from eigensweep.errors import ConfigError
 from eigensweep.qubit import (
@@ -33,7 +33,7 @@ def openfermion_interaction_operator(m) -> of.InteractionOperator:
 
 # ---------------------------------------------------------------- bad input
 def test_unknown_mapping_lists_allowed_names():
-    m = molecule("h2", with_fci=False)
+    m = pyscf_molecule("h2", with_fci=False)
     with pytest.raises(ConfigError, match="jordan_wigner, bravyi_kitaev, parity"):
         map_hamiltonian(m.h1e, m.eri, m.e_core, "jw")
     with pytest.raises(ConfigError, match="unknown mapping 'bk'"):
@@ -41,7 +41,7 @@ def test_unknown_mapping_lists_allowed_names():
 
 
 def test_wrong_types():
-    m = molecule("h2", with_fci=False)
+    m = pyscf_molecule("h2", with_fci=False)
     with pytest.raises(TypeError, match="numpy.ndarray"):
         map_hamiltonian(m.h1e.tolist(), m.eri, m.e_core, "parity")
     with pytest.raises(TypeError, match="mapping must be a str"):
@@ -55,7 +55,7 @@ def test_wrong_types():
 
 
 def test_bad_shapes_and_sizes():
-    m = molecule("h2", with_fci=False)
+    m = pyscf_molecule("h2", with_fci=False)
     with pytest.raises(ConfigError, match="do not match"):
         map_hamiltonian(m.h1e, m.eri[:1], m.e_core, "jordan_wigner")
     with pytest.raises(ConfigError, match="does not fit"):
@@ -69,7 +69,7 @@ def test_bad_shapes_and_sizes():
 # ---------------------------------------------------------------- reference values
 def test_interaction_operator_matches_openfermion_construction():
     # reference: OpenFermion spinorb_from_spatial computed at test time
-    m = molecule("lih", with_fci=False)
+    m = pyscf_molecule("lih", with_fci=False)
     ours = interaction_operator(m.h1e, m.eri, m.e_core)
     ref = openfermion_interaction_operator(m)
     assert np.allclose(ours.one_body_tensor, ref.one_body_tensor, atol=1e-14)
@@ -80,7 +80,7 @@ def test_interaction_operator_matches_openfermion_construction():
 @pytest.mark.parametrize("mapping", MAPPINGS)
 def test_h2_spectrum_matches_openfermion(mapping):
     # reference: OpenFermion get_sparse_operator(jordan_wigner(...)) computed at test time
-    m = molecule("h2", with_fci=False)
+    m = pyscf_molecule("h2", with_fci=False)
     ref_op = of.get_sparse_operator(of.jordan_wigner(openfermion_interaction_operator(m)))
     ref = np.linalg.eigvalsh(ref_op.toarray())
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
@@ -92,7 +92,7 @@ def test_h2_spectrum_matches_openfermion(mapping):
 @pytest.mark.parametrize(("name", "count"), [("h2", 15), ("lih", 631), ("h2o", 1086)])
 def test_jordan_wigner_term_counts(name, count):
     # computed with PySCF + OpenFermion, ../shared/notes (project check values); tolerance 1e-12
-    m = molecule(name, with_fci=False)
+    m = pyscf_molecule(name, with_fci=False)
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, "jordan_wigner")
     assert ham.n_terms == count
     # reference: OpenFermion computed at test time, same drop tolerance
@@ -105,7 +105,7 @@ def test_jordan_wigner_term_counts(name, count):
 @pytest.mark.parametrize("name", ["h2", "lih"])
 def test_parity_matches_openfermion_binary_code(name):
     # reference: OpenFermion binary_code_transform with parity_code computed at test time
-    m = molecule(name, with_fci=False)
+    m = pyscf_molecule(name, with_fci=False)
     n = 2 * m.norb
     fop = of.get_fermion_operator(openfermion_interaction_operator(m))
     ref = of.binary_code_transform(fop, of.parity_code(n))
@@ -117,7 +117,7 @@ def test_parity_matches_openfermion_binary_code(name):
 def test_bravyi_kitaev_matrix_matches_openfermion():
     # reference: OpenFermion bravyi_kitaev computed at test time; the same linear-encoding
     # construction that builds parity reproduces it with the Seeley-Richard-Love matrix
-    m = molecule("lih", with_fci=False)
+    m = pyscf_molecule("lih", with_fci=False)
     n = 2 * m.norb
     jw = map_hamiltonian(m.h1e, m.eri, m.e_core, "jordan_wigner")
     bk = map_hamiltonian(m.h1e, m.eri, m.e_core, "bravyi_kitaev")
@@ -160,7 +160,7 @@ def test_random_fermion_operator_all_mappings(n):
 @pytest.mark.parametrize("name", ["h2", "lih", "h2o"])
 def test_reference_bits_give_hartree_fock_energy(name, mapping):
     # reference: PySCF RHF energy computed at test time (<HF|H|HF> = E_HF)
-    m = molecule(name, with_fci=False)
+    m = pyscf_molecule(name, with_fci=False)
     ham = map_hamiltonian(m.h1e, m.eri, m.e_core, mapping)
     bits = reference_bits(m.nelec, m.norb, mapping)
     assert bits.dtype == np.uint8 and bits.size == 2 * m.norb

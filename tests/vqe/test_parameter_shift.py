@@ -10,6 +10,7 @@ import math
 
 import numpy as np
 import pytest
+from fixtures import active_integrals, problem, space_of, tapering
 
 from eigensweep.qubit import map_hamiltonian, reference_bits
 from eigensweep.vqe import UCCSD, DetSpace, KUpCCGSD, TaperedFermionicAnsatz
@@ -20,8 +21,6 @@ from eigensweep.vqe.parameter_shift import (
     ansatz_gradient,
     shift_rule,
 )
-from tests.test_vqe_common import molecule, space_of
-from tests.test_vqe_tapered import problem, tapering
 
 
 def test_shift_rule_coefficients_are_the_published_closed_forms():
@@ -95,7 +94,7 @@ def test_hardware_efficient_lih(tapered):
         tap = tapering("LiH", "parity")
         ham, ref = tap.hamiltonian, tap.reference_bits
     else:
-        m = molecule("LiH")
+        m = active_integrals("LiH")
         ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
         ref = reference_bits(m["nelec"], m["norb"], "jordan_wigner")
     _check(HardwareEfficientAnsatz(ham, ref, rounds=2, axes="yz", init_scale=0.0))

@@ -12,8 +12,8 @@ from functools import cache
 
 import numpy as np
 import pytest
+from fixtures import run_plan
 from pyscf import fci, gto, mcscf, scf
-from study_helpers import run_plan
 
 from eigensweep.chem import compute_integrals
 from eigensweep.collect import collect

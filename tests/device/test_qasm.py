@@ -3,27 +3,23 @@
 from __future__ import annotations
 
 import json
-import sys
-from pathlib import Path
 
 import numpy as np
 import openqasm3
 import pytest
+from fixtures import h2_ansatz, h2_problem, random_pauli_expansion
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import h2_ansatz, h2_problem, random_pauli_expansion  # noqa: E402
-
-from eigensweep.circuit import Circuit, Gate  # noqa: E402
-from eigensweep.device.compile import circuit_from_rotations, globally_folded_circuit  # noqa: E402
-from eigensweep.device.manifest import build_job, write_job  # noqa: E402
-from eigensweep.device.qasm import (  # noqa: E402
+from eigensweep.circuit import Circuit, Gate
+from eigensweep.device.compile import circuit_from_rotations, globally_folded_circuit
+from eigensweep.device.manifest import build_job, write_job
+from eigensweep.device.qasm import (
     QasmReadError,
     from_qasm2,
     from_qasm3,
     to_qasm2,
     to_qasm3,
 )
-from eigensweep.qubit.statevector import expectation, simulate  # noqa: E402
+from eigensweep.qubit.statevector import expectation, simulate
 
 
 def _random_circuit(n, n_gates, rng):

@@ -3,24 +3,20 @@
 from __future__ import annotations
 
 import itertools
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
+from fixtures import dense_pauli, two_qubit_problem
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import dense_pauli, two_qubit_problem  # noqa: E402
-
-from eigensweep.circuit import Circuit  # noqa: E402
-from eigensweep.device.counts import load_results  # noqa: E402
-from eigensweep.device.manifest import build_job, write_job  # noqa: E402
-from eigensweep.device.synthetic import (  # noqa: E402
+from eigensweep.circuit import Circuit
+from eigensweep.device.counts import load_results
+from eigensweep.device.manifest import build_job, write_job
+from eigensweep.device.synthetic import (
     run_synthetic_device,
     simulate_batch,
     write_results,
 )
-from eigensweep.qubit.statevector import simulate  # noqa: E402
+from eigensweep.qubit.statevector import simulate
 
 
 @pytest.fixture(scope="module")

@@ -15,10 +15,10 @@ from functools import cache
 
 import numpy as np
 import pytest
-from pyscf import ao2mo, fci, gto, scf
+from fixtures import problem, tapering
 
 from eigensweep.errors import ConfigError
-from eigensweep.qubit import identity_reduction, map_hamiltonian, reduce_to_sector, reference_bits
+from eigensweep.qubit import identity_reduction, map_hamiltonian, reference_bits
 from eigensweep.qubit.statevector import expectation, simulate
 from eigensweep.vqe import (
     UCCSD,
@@ -29,38 +29,9 @@ from eigensweep.vqe import (
     run_optimize,
 )
 
-GEOMETRIES = {"H2": "H 0 0 0; H 0 0 0.74", "LiH": "Li 0 0 0; H 0 0 1.595"}
 TAPERED_QUBITS = {"H2": 1, "LiH": 8}
 MAPPINGS = ("jordan_wigner", "bravyi_kitaev", "parity")
 EXACT = {"optimizer": {"name": "lbfgs"}, "estimator": {"name": "exact"}}
-
-
-@cache
-def problem(name: str) -> dict:
-    """Integrals and the PySCF FCI energy of ``name`` (symmetry-adapted RHF orbitals)."""
-    mol = gto.M(atom=GEOMETRIES[name], basis="sto-3g", symmetry=True, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    norb = c.shape[1]
-    ints = {
-        "h1e": c.T @ mf.get_hcore() @ c,
-        "eri": ao2mo.restore(1, ao2mo.kernel(mol, c), norb),
-        "e_core": float(mol.energy_nuc()),
-        "norb": int(norb),
-        "nelec": (int(mol.nelec[0]), int(mol.nelec[1])),
-    }
-    # reference: PySCF FCI computed at test time
-    e_fci = float(fci.FCI(mf).kernel()[0])
-    return {"ints": ints, "e_fci": e_fci}
-
-
-@cache
-def tapering(name: str, mapping: str):
-    ints = problem(name)["ints"]
-    ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], mapping)
-    return reduce_to_sector(ham, reference_bits(ints["nelec"], ints["norb"], mapping))
 
 
 @cache

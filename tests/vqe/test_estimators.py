@@ -3,18 +3,14 @@
 from __future__ import annotations
 
 import math
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
+from fixtures import active_integrals, h2_two_qubit, space_of
 
-sys.path.insert(0, str(Path(__file__).parent))
-from test_vqe_common import h2_two_qubit, molecule, space_of  # noqa: E402
-
-from eigensweep.qubit import statevector as sv  # noqa: E402
-from eigensweep.qubit.mapping import map_hamiltonian  # noqa: E402
-from eigensweep.vqe import (  # noqa: E402
+from eigensweep.qubit import statevector as sv
+from eigensweep.qubit.mapping import map_hamiltonian
+from eigensweep.vqe import (
     UCCSD,
     MeasurementPlan,
     NoisyEstimator,
@@ -25,7 +21,7 @@ from eigensweep.vqe import (  # noqa: E402
 
 
 def _lih_state():
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     ansatz = UCCSD(space_of("LiH"))
     theta = 0.05 * np.random.default_rng(0).standard_normal(ansatz.n_params)
     ham = map_hamiltonian(m["h1e"], m["eri"], m["e_core"], "jordan_wigner")
@@ -97,7 +93,7 @@ def test_noisy_estimator_biases_as_modelled():
 )
 def test_two_qubit_h2_with_1000_shots_reaches_few_mha(optimizer):
     ham, e0 = h2_two_qubit()
-    m = molecule("H2")
+    m = active_integrals("H2")
     res = run_optimize(
         **m,
         ansatz={"name": "hardware_efficient", "rounds": 1, "axes": "y"},
@@ -119,7 +115,7 @@ def test_two_qubit_h2_with_1000_shots_reaches_few_mha(optimizer):
 
 
 def test_fermionic_ansatz_with_shots_and_noise():
-    m = molecule("H2")
+    m = active_integrals("H2")
     common = dict(
         ansatz={"name": "uccsd"},
         optimizer={"name": "spsa", "maxiter": 60},
@@ -144,7 +140,7 @@ def test_fermionic_ansatz_with_shots_and_noise():
 
 
 def test_optimize_result_store_round_trip():
-    m = molecule("H2")
+    m = active_integrals("H2")
     res = run_optimize(
         **m,
         ansatz={"name": "hardware_efficient", "rounds": 1},
@@ -169,7 +165,7 @@ def test_optimize_result_store_round_trip():
 
 
 def test_progress_callback_and_determinism():
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     seen = []
     kw = dict(ansatz={"name": "uccsd"}, optimizer={"name": "lbfgs"}, estimator={"name": "exact"})
     a = run_optimize(**m, **kw, progress=lambda i, e: seen.append((i, e)))

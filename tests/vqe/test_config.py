@@ -2,17 +2,12 @@
 
 from __future__ import annotations
 
-import sys
-from pathlib import Path
-
 import numpy as np
 import pytest
+from fixtures import active_integrals, h2_two_qubit
 
-sys.path.insert(0, str(Path(__file__).parent))
-from test_vqe_common import h2_two_qubit, molecule  # noqa: E402
-
-from eigensweep.errors import ConfigError  # noqa: E402
-from eigensweep.vqe import (  # noqa: E402
+from eigensweep.errors import ConfigError
+from eigensweep.vqe import (
     ANSATZ_DEFAULTS,
     ESTIMATOR_DEFAULTS,
     OPTIMIZER_DEFAULTS,
@@ -24,7 +19,7 @@ from eigensweep.vqe import (  # noqa: E402
 
 def _run(**kw):
     args = dict(
-        molecule("H2"),
+        active_integrals("H2"),
         ansatz={"name": "uccsd"},
         optimizer={"name": "lbfgs"},
         estimator={"name": "exact"},

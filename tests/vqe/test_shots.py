@@ -5,13 +5,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from fixtures import problem, tapering
 
 from eigensweep.errors import ConfigError
 from eigensweep.vqe import UCCSD, DetSpace, run_optimize
 from eigensweep.vqe.estimators import ShotEstimator
 from eigensweep.vqe.parameter_shift import parameter_shift_gradient
 from eigensweep.vqe.tapered import TaperedFermionicAnsatz
-from tests.test_vqe_tapered import problem, tapering
 
 SHOTS = {"name": "shots", "shots": 1000}
 SAMPLED_OPTIMIZERS = [

@@ -7,7 +7,7 @@ from __future__ import annotations
 import math
 
 import pytest
-from study_helpers import run_plan
+from fixtures import run_plan
 
 from eigensweep.archive import make_archive, verify_archive
 from eigensweep.collect import collect

@@ -2,26 +2,21 @@
 
 from __future__ import annotations
 
-import sys
-from pathlib import Path
-
 import numpy as np
 import openfermion as of
 import pytest
+from fixtures import active_integrals, space_of
 from scipy.sparse.linalg import expm_multiply
 
-sys.path.insert(0, str(Path(__file__).parent))
-from test_vqe_common import molecule, space_of  # noqa: E402
-
-from eigensweep.circuit import circuit_from_rotations  # noqa: E402
-from eigensweep.qubit import statevector as sv  # noqa: E402
-from eigensweep.qubit.mapping import (  # noqa: E402
+from eigensweep.circuit import circuit_from_rotations
+from eigensweep.qubit import statevector as sv
+from eigensweep.qubit.mapping import (
     encode_occupations,
     encode_state,
     generator_paulis,
     map_hamiltonian,
 )
-from eigensweep.vqe import (  # noqa: E402
+from eigensweep.vqe import (
     UCCSD,
     KUpCCGSD,
     from_qubit_state,
@@ -79,7 +74,7 @@ def test_hf_state_maps_to_plus_hf_and_energy_matches_pyscf():
 
 @pytest.mark.parametrize("name", ["H2", "LiH"])
 def test_random_ci_vector_energy_equals_jw_hamiltonian(name):
-    m = molecule(name)
+    m = active_integrals(name)
     space = space_of(name)
     rng = np.random.default_rng(0)
     c = rng.standard_normal(space.dim)
@@ -93,7 +88,7 @@ def test_random_ci_vector_energy_equals_jw_hamiltonian(name):
 
 @pytest.mark.parametrize("mapping", ["jordan_wigner", "bravyi_kitaev", "parity"])
 def test_pauli_rotations_reproduce_state_energy(mapping):
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     ansatz = UCCSD(space_of("LiH"))
     theta = 0.1 * np.random.default_rng(1).standard_normal(ansatz.n_params)
     ref, rots = ansatz.pauli_rotations(theta, mapping)
@@ -180,7 +175,7 @@ def test_encoded_state_energy_and_reference_bits(mapping):
     from eigensweep.qubit import map_hamiltonian
     from eigensweep.qubit import reference_bits as qubit_reference_bits
 
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     ansatz = UCCSD(space_of("LiH"))
     theta = 0.1 * np.random.default_rng(4).standard_normal(ansatz.n_params)
     psi = encode_state(to_qubit_state(ansatz.state(theta), m["norb"], m["nelec"]), mapping)
@@ -198,7 +193,7 @@ def test_circuit_from_stored_meta_reproduces_state():
 
     from eigensweep.vqe import circuit_from_meta, run_optimize
 
-    m = molecule("H2")
+    m = active_integrals("H2")
     res = run_optimize(
         **m, ansatz={"name": "uccsd"}, optimizer={"name": "lbfgs"}, estimator={"name": "exact"}
     )
@@ -223,7 +218,7 @@ def test_circuit_from_stored_meta_reproduces_state():
 def test_open_shell_sector_state_equals_openfermion():
     from eigensweep.vqe import DetSpace
 
-    m = molecule("LiH")
+    m = active_integrals("LiH")
     space = DetSpace(m["norb"], (2, 1), m["h1e"], m["eri"], m["e_core"])
     ansatz = UCCSD(space)
     theta = 0.3 * np.random.default_rng(9).standard_normal(ansatz.n_params)

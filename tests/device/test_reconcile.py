@@ -3,26 +3,22 @@
 from __future__ import annotations
 
 import copy
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
+from fixtures import h2_ansatz, h2_problem
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from test_device_support import h2_ansatz, h2_problem  # noqa: E402
-
-from eigensweep.device import mitigation as mit  # noqa: E402
-from eigensweep.device.manifest import build_job  # noqa: E402
-from eigensweep.device.reconcile import (  # noqa: E402
+from eigensweep.device import mitigation as mit
+from eigensweep.device.manifest import build_job
+from eigensweep.device.reconcile import (
     ReconcileResult,
     plot_histograms,
     reconcile,
 )
-from eigensweep.device.synthetic import run_synthetic_device  # noqa: E402
-from eigensweep.qubit.pauli import PauliExpansion  # noqa: E402
-from eigensweep.stage_table import stage_key  # noqa: E402
-from eigensweep.store import read_stage, write_stage  # noqa: E402
+from eigensweep.device.synthetic import run_synthetic_device
+from eigensweep.qubit.pauli import PauliExpansion
+from eigensweep.stage_table import stage_key
+from eigensweep.store import read_stage, write_stage
 
 
 @pytest.fixture(scope="module")
