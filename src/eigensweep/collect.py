@@ -101,6 +101,23 @@ SUMMARY_COLUMNS: list[Column] = [
     _c("n_electrons", "", "<N> of the optimized state"),
     _c("spin_square", "", "<S^2> of the optimized state"),
     _c("spin_mismatch", "", "True when <S^2> differs from S(S+1) of the requested multiplicity"),
+    _c(
+        "dipole_au",
+        "e*bohr",
+        "|dipole| of the optimized state: electronic part from its 1-RDM with the active-space "
+        "dipole integrals, plus frozen-core and nuclear parts, about the origin of the "
+        "molecule's frame (PySCF's standard orientation with symmetry)",
+    ),
+    _c("dipole_debye", "D", "the same in debye (1 e*bohr = 2.541746 D)"),
+    _c("dipole_z_au", "e*bohr", "z component of the dipole (the molecular axis of a diatomic)"),
+    _c("dipole_exact_au", "e*bohr", "|dipole| of the exact (CASCI) ground state, PySCF density"),
+    _c("dipole_hf_au", "e*bohr", "|dipole| of the Hartree-Fock determinant"),
+    _c(
+        "natural_occupations",
+        "",
+        "natural-orbital occupation numbers of the optimized state (eigenvalues of its "
+        "spin-summed active 1-RDM, descending, space-separated)",
+    ),
     _c("cnot_count", "", "CNOT gates of the optimized circuit"),
     _c("depth", "", "circuit depth"),
     _c("evaluations", "", "energy evaluations used by the optimizer"),
@@ -153,6 +170,28 @@ def _below_exact_cause(below: bool, m: dict) -> str:
     if m.get("spin_mismatch"):
         return f"another spin: <S^2> = {_num(m.get('spin_square')):.4f}"
     return "unexplained: please report"
+
+
+def _norm(v) -> float:
+    v = np.asarray(v, dtype=float).reshape(-1)
+    return float(np.linalg.norm(v)) if v.size == 3 and np.all(np.isfinite(v)) else math.nan
+
+
+def _dipole_columns(opt_arrays: dict, int_arrays: dict) -> dict:
+    """Ground-state property columns from the optimize and integrals stage files."""
+    from .chem.properties import AU_TO_DEBYE
+
+    dip = np.asarray(opt_arrays.get("dipole", np.full(3, np.nan)), dtype=float).reshape(-1)
+    roots = np.asarray(int_arrays.get("exact_roots_dipole", np.zeros((0, 3))), dtype=float)
+    noon = np.asarray(opt_arrays.get("natural_occupations", np.zeros(0)), dtype=float)
+    return {
+        "dipole_au": _norm(dip),
+        "dipole_debye": _norm(dip) * AU_TO_DEBYE,
+        "dipole_z_au": float(dip[2]) if dip.size == 3 else math.nan,
+        "dipole_exact_au": _norm(roots[0]) if roots.size else math.nan,
+        "dipole_hf_au": _norm(int_arrays.get("dipole_hf", np.full(3, np.nan))),
+        "natural_occupations": " ".join(f"{x:.6f}" for x in noon),
+    }
 
 
 def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
@@ -223,6 +262,7 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
             "n_electrons": _num(m.get("n_electrons")),
             "spin_square": _num(m.get("spin_square")),
             "spin_mismatch": m.get("spin_mismatch", ""),
+            **_dipole_columns(opt.arrays, int_sd.arrays),
             "cnot_count": m.get("cnot_count", ""),
             "depth": m.get("depth", ""),
             "evaluations": m.get("n_evaluations", ""),

@@ -87,7 +87,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "optimize",
-        4,
+        5,
         "run_optimize",
         {"taper": "taper", "integrals": "integrals", "warm": "optimize"},
         ("stage",),

@@ -258,6 +258,7 @@ def run_optimize(
             seed=p["seed"],
             progress=report,
             exact=ExactReference.from_integrals(ints),
+            dipole_parts=(ints.dipole_active, ints.dipole_core, ints.dipole_nuclear),
         )
     if not math.isfinite(res.energy):
         raise StageFileError(
@@ -283,6 +284,7 @@ def run_optimize(
             "trace_energy": "hartree",
             "trace_grad_norm": "hartree/radian",
             "params": "radian",
+            "dipole": "e*bohr",
         },
         wall_s=t.seconds,
     )

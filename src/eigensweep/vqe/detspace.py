@@ -62,7 +62,7 @@ un-applies each gate to both ``psi`` and ``lambda``; ``dE/dphi_k = 2 <lambda_k|G
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
 from math import comb
@@ -343,6 +343,24 @@ class DetSpace:
                 self._matrix(vec), gate.kind, a_map, b_map, np.cos(phi), np.sin(phi) * gate.sign
             )
 
+    def apply_excitation(
+        self, gate: ExcitationGate, vec: np.ndarray, adjoint: bool = False
+    ) -> np.ndarray:
+        """``T|vec>`` (or ``T^dagger|vec>``) for the excitation operator ``T`` of ``gate``
+        (not the generator ``T - T^dagger``); a new flat CI vector."""
+        mat = np.asarray(vec, dtype=np.float64).reshape(self.na, self.nb)
+        out = np.zeros_like(mat)
+        if gate.kind == 3 or gate.n_pairs == 0:
+            return out.reshape(-1)
+        ident_a = (np.arange(self.na), np.arange(self.na), np.ones(self.na))
+        ident_b = (np.arange(self.nb), np.arange(self.nb), np.ones(self.nb))
+        sa, da, ga = gate.alpha if gate.alpha is not None else ident_a
+        sb, db, gb = gate.beta if gate.beta is not None else ident_b
+        if adjoint:
+            sa, da, sb, db = da, sa, db, sb
+        out[np.ix_(da, db)] = gate.sign * ga[:, None] * gb[None, :] * mat[np.ix_(sa, sb)]
+        return out.reshape(-1)
+
     def generator_expectation(
         self, gate: ExcitationGate, bra: np.ndarray, ket: np.ndarray
     ) -> float:
@@ -462,12 +480,19 @@ class GateSequence:
         return self.space.energy(self.state(theta, reference))
 
     def energy_and_gradient(
-        self, theta: np.ndarray, reference: np.ndarray
+        self,
+        theta: np.ndarray,
+        reference: np.ndarray,
+        apply: Callable[[np.ndarray], np.ndarray] | None = None,
     ) -> tuple[float, np.ndarray]:
-        """Energy and exact gradient by the adjoint method (one forward, one backward sweep)."""
+        """Energy and exact gradient by the adjoint method (one forward, one backward sweep).
+
+        ``apply`` replaces ``H`` by another real symmetric operator ``A`` (``psi -> A psi``,
+        e.g. a penalised Hamiltonian): the value is then ``<psi|A|psi> + e_core``.
+        """
         phis = self.angles(theta)
         psi = self.state(theta, reference)
-        lam = self.space.apply_h(psi)
+        lam = self.space.apply_h(psi) if apply is None else np.ascontiguousarray(apply(psi))
         energy = float(psi @ lam) + self.space.e_core
         if not self.gates:
             return energy, np.zeros(self.n_params)

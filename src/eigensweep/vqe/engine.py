@@ -74,7 +74,7 @@ from .methods import (
 )
 from .optimizers import STOCHASTIC_GRADIENT_METHODS, minimize
 from .parameter_shift import GradientEstimate, curvature_factor, parameter_shift_gradient
-from .reference import ExactReference, state_moments
+from .reference import ExactReference, state_moments, state_rdm1
 from .uccsd import UCCSD
 
 if TYPE_CHECKING:
@@ -111,7 +111,11 @@ class OptimizeResult:
     reference is unknown or the problem is a user-given operator. ``n_electrons`` and
     ``spin_square`` are ``<N>`` and ``<S^2>`` of the optimized state; ``spin_mismatch`` is true
     when ``<S^2>`` differs from ``S(S+1)`` of the reference by more than
-    :data:`SPIN_MISMATCH_TOL` or ``<N>`` from the electron count by as much.
+    :data:`SPIN_MISMATCH_TOL` or ``<N>`` from the electron count by as much. ``rdm1`` is the
+    state's spin-summed active 1-RDM (:func:`~eigensweep.vqe.reference.state_rdm1`; nan when
+    no frame is known), ``natural_occupations`` its eigenvalues (descending) and ``dipole`` the
+    total dipole vector (e a0, :func:`eigensweep.chem.properties.dipole_from_rdm1`; nan without
+    dipole integrals).
     ``converged`` is true only when the optimizer's own criterion was met; ``stop_reason``
     says why it stopped (:func:`_stop_reason`).
     ``n_qubits``, ``cnot_count`` and ``depth`` are those of the circuit that is run (tapered
@@ -148,6 +152,9 @@ class OptimizeResult:
     shots_by_purpose: dict = field(default_factory=dict)
     trace_energy_exact: np.ndarray = field(default_factory=lambda: np.zeros(0))
     trace_shots_cumulative: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+    rdm1: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    natural_occupations: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    dipole: np.ndarray = field(default_factory=lambda: np.full(3, np.nan))
 
     _ARRAYS = (
         "params",
@@ -156,6 +163,9 @@ class OptimizeResult:
         "trace_shots",
         "trace_energy_exact",
         "trace_shots_cumulative",
+        "rdm1",
+        "natural_occupations",
+        "dipole",
     )
 
     def to_store(self) -> tuple[dict[str, np.ndarray], dict]:
@@ -177,7 +187,8 @@ class OptimizeResult:
         kw: dict[str, Any] = {}
         for f in fields(cls):
             if f.name in cls._ARRAYS:
-                kw[f.name] = np.asarray(arrays[f.name])
+                if f.name in arrays:
+                    kw[f.name] = np.asarray(arrays[f.name])
             elif f.name in meta:
                 v = meta[f.name]
                 if f.type in ("float", float):
@@ -723,6 +734,7 @@ def _state_report(
     if built.det_space:
         out["overlap_exact"] = exact.overlap(psi)
         n_mean, s2 = state_moments(psi, norb, nelec)
+        out["rdm1"] = state_rdm1(psi, norb, nelec)
     else:
         enc = "jordan_wigner" if m.ansatz["name"] == "adapt" else m.mapping
         if built.jw_statevector and ans.n_qubits == 2 * norb:
@@ -734,6 +746,7 @@ def _state_report(
         frame = exact.sector_vectors(enc, frame_taper) if exact.known else None
         out["overlap_exact"] = exact.overlap(psi, frame) if exact.known else math.nan
         n_mean, s2 = state_moments(psi, norb, nelec, mapping=enc, tapering=frame_taper)
+        out["rdm1"] = state_rdm1(psi, norb, nelec, mapping=enc, tapering=frame_taper)
     out["n_electrons"], out["spin_square"] = n_mean, s2
     out["spin_mismatch"] = bool(
         math.isfinite(s2)
@@ -742,6 +755,18 @@ def _state_report(
             or abs(n_mean - sum(nelec)) > SPIN_MISMATCH_TOL
         )
     )
+    return out
+
+
+def _properties(rdm1: np.ndarray | None, dipole_parts) -> dict:
+    """Natural occupations and dipole of a state's 1-RDM (nan where it is not formed)."""
+    from ..chem.properties import dipole_from_rdm1, natural_occupations
+
+    if rdm1 is None or not np.all(np.isfinite(rdm1)):
+        return {}
+    out: dict[str, Any] = {"natural_occupations": natural_occupations(rdm1)}
+    if dipole_parts is not None:
+        out["dipole"] = dipole_from_rdm1(rdm1, *dipole_parts)
     return out
 
 
@@ -763,6 +788,7 @@ def run_optimize(
     seed: int = 0,
     progress: Callable[[int, float], None] | None = None,
     exact: ExactReference | None = None,
+    dipole_parts: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
 ) -> OptimizeResult:
     """Minimise the ansatz energy for the active-space integrals (module docstring).
 
@@ -784,6 +810,8 @@ def run_optimize(
         progress: called as ``progress(evaluation_index, energy)`` after each evaluation.
         exact: the exact reference stored by the integrals stage; None computes it with
             :func:`eigensweep.chem.exact.solve_sector` (the same solver).
+        dipole_parts: ``(dipole_active, dipole_core, dipole_nuclear)`` stored by the integrals
+            stage, for the state's dipole moment.
     """
     t_start = time.perf_counter()
     m = _resolve_methods(ansatz, optimizer, estimator, mapping, tapering)
@@ -829,6 +857,7 @@ def run_optimize(
         run = _optimize_with_restarts(m.optimizer, obj, _start_point(ans, initial_params), seed)
     energy, stderr, e_exact_params = _final_energy(m, built, est, qubit_state, run.params)
     report = _state_report(m, built, space, exact, tapering, run.params)
+    report.update(_properties(report.get("rdm1"), dipole_parts))
 
     meta = ans.meta()
     meta["mapping_for_costs"] = m.mapping if fermionic_circuit else "native"

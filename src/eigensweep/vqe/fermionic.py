@@ -21,7 +21,7 @@ circuits use too.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -186,6 +186,22 @@ class FermionicAnsatz:
     def energy_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Energy and its exact gradient (adjoint method)."""
         return self._sequence.energy_and_gradient(theta, self._reference)
+
+    def expectation_and_gradient(
+        self,
+        theta: np.ndarray,
+        apply: Callable[[np.ndarray], np.ndarray],
+        reference: np.ndarray | None = None,
+    ) -> tuple[float, np.ndarray]:
+        """``<psi|A|psi> + e_core`` and its adjoint gradient for a real symmetric operator
+        ``A`` (``apply``: ``psi -> A psi``), the gates acting on ``reference`` (default HF):
+        the penalised objectives of the excited-state methods (:mod:`eigensweep.vqe.excited`)."""
+        ref = self._reference if reference is None else reference
+        return self._sequence.energy_and_gradient(theta, ref, apply)
+
+    def state_from(self, theta: np.ndarray, reference: np.ndarray) -> np.ndarray:
+        """The ansatz's gates at ``theta`` applied to another CI vector ``reference``."""
+        return self._sequence.state(theta, reference)
 
     # ------------------------------------------------------------------ description
     def operator_list(self) -> list[dict]:

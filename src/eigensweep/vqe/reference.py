@@ -16,7 +16,8 @@ The overlap of a state with the reference is its weight in the ground space,
 ``sum_i |<v_i|psi>|^2`` over the orthonormal ground-space vectors: deterministic, independent
 of how a degenerate space is spanned, and at most 1.
 
-:func:`state_moments` gives ``<N>`` and ``<S^2>`` of any optimized state: a determinant-space
+:func:`state_moments` gives ``<N>`` and ``<S^2>`` (and :func:`state_rdm1` the spin-summed
+1-RDM, for dipoles and natural occupations) of any optimized state: a determinant-space
 CI vector directly, a qubit state after undoing tapering and the encoding (``S^2`` conserves
 ``N_alpha`` and ``N_beta``, so each ``(N_alpha, N_beta)`` block contributes separately; PySCF
 ``fci.spin_op.contract_ss`` applies ``S^2`` in a block).
@@ -42,6 +43,7 @@ __all__ = [
     "SECTOR_CHECK_MAX_QUBITS",
     "check_qubit_problem",
     "state_moments",
+    "state_rdm1",
 ]
 
 #: Largest user-given operator diagonalised densely for an overlap.
@@ -186,17 +188,15 @@ def state_moments(
     return _encoded_moments(psi, norb, mapping)
 
 
-def _encoded_moments(psi: np.ndarray, norb: int, mapping: str) -> tuple[float, float]:
-    """``<N>``, ``<S^2>`` of a statevector in ``mapping``'s encoding, block by block."""
-    from pyscf.fci import spin_op
-
+def _encoded_blocks(psi: np.ndarray, norb: int, mapping: str):
+    """``((n_alpha, n_beta), CI block)`` of a statevector in ``mapping``'s encoding, for every
+    block with weight (PySCF string order, complex)."""
     from ..qubit.mapping import encoding_matrix
     from .detspace import DetSpace, qubit_indices
 
     n_q = 2 * norb
     a = encoding_matrix(n_q, mapping).astype(np.int64)
     shifts = np.arange(n_q - 1, -1, -1, dtype=np.int64)  # qubit k is bit n - 1 - k
-    n_mean = s2 = 0.0
     for na in range(norb + 1):
         for nb in range(norb + 1):
             idx = qubit_indices(norb, (na, nb)).reshape(-1)
@@ -204,16 +204,60 @@ def _encoded_moments(psi: np.ndarray, norb: int, mapping: str) -> tuple[float, f
             enc = ((occ @ a.T) & 1) @ (np.int64(1) << shifts)
             space = DetSpace(norb, (na, nb))
             block = psi[enc] * space.interleave_signs().reshape(-1)
-            weight = float(np.vdot(block, block).real)
-            if weight < 1e-14:
-                continue
-            n_mean += (na + nb) * weight
-            if na + nb == 0:
-                continue
-            for part in (block.real, block.imag):
-                if np.any(part):
-                    s2 += float(part @ spin_op.contract_ss(part, norb, (na, nb)).reshape(-1))
+            if float(np.vdot(block, block).real) >= 1e-14:
+                yield (na, nb), block
+
+
+def _encoded_moments(psi: np.ndarray, norb: int, mapping: str) -> tuple[float, float]:
+    """``<N>``, ``<S^2>`` of a statevector in ``mapping``'s encoding, block by block."""
+    from pyscf.fci import spin_op
+
+    n_mean = s2 = 0.0
+    for (na, nb), block in _encoded_blocks(psi, norb, mapping):
+        n_mean += (na + nb) * float(np.vdot(block, block).real)
+        if na + nb == 0:
+            continue
+        for part in (block.real, block.imag):
+            if np.any(part):
+                s2 += float(part @ spin_op.contract_ss(part, norb, (na, nb)).reshape(-1))
     return n_mean, s2
+
+
+def state_rdm1(
+    state: np.ndarray,
+    norb: int,
+    nelec: tuple[int, int],
+    *,
+    mapping: str | None = None,
+    tapering: SectorReduction | None = None,
+) -> np.ndarray:
+    """Spin-summed 1-RDM ``D_pq = <a_q^+ a_p>`` (PySCF ``fci.direct_spin1.make_rdm1``) of a
+    normalised state: a CI vector of ``nelec`` or a (tapered) statevector in ``mapping``'s
+    encoding (every particle-number block contributes); symmetrised (real part).
+
+    Returns:
+        (norb, norb); all nan above :data:`MOMENTS_MAX_QUBITS` qubits.
+    """
+    from pyscf.fci import direct_spin1
+
+    norb = int(norb)
+    if mapping is None:
+        blocks = [((int(nelec[0]), int(nelec[1])), np.asarray(state).reshape(-1))]
+    elif 2 * norb > MOMENTS_MAX_QUBITS:
+        return np.full((norb, norb), math.nan)
+    else:
+        psi = np.asarray(state, dtype=np.complex128).reshape(-1)
+        if tapering is not None and tapering.generators.n_terms > 0:
+            psi = tapering.untaper_state(psi)
+        blocks = list(_encoded_blocks(psi, norb, mapping))
+    out = np.zeros((norb, norb))
+    for ne, block in blocks:
+        if sum(ne) == 0:
+            continue
+        for part in (np.real(block), np.imag(block)):
+            if np.any(part):
+                out += direct_spin1.make_rdm1(np.ascontiguousarray(part, float), norb, ne)
+    return 0.5 * (out + out.T)
 
 
 #: Largest qubit count for which the hamiltonian and taper stages check the exact state.
