@@ -8,8 +8,11 @@ Conventions (used everywhere in eigensweep):
 - in a bitstring (counts files, manifests) character ``k`` is the value measured on qubit ``k``.
 
 Gate names are those of the OpenQASM 3 standard library (``stdgates.inc``): ``x``, ``y``, ``z``,
-``h``, ``s``, ``sdg``, ``sx``, ``rx``, ``ry``, ``rz``, ``cx``. Rotation angles are in radians with
-the usual convention ``rz(t) = exp(-i t Z / 2)``.
+``h``, ``s``, ``sdg``, ``sx``, ``rx``, ``ry``, ``rz``, ``cx``, ``cz``; plus the XX rotation
+``rxx(t) = exp(-i t X X / 2)`` (not in ``stdgates.inc``; exported files define it), the native
+entangler of XX-type devices. Rotation angles are in radians with the usual convention
+``rz(t) = exp(-i t Z / 2)``. The ansatz compiler below emits only ``cx`` as two-qubit gate;
+``cz`` and ``rxx`` come from the device compiler (:mod:`eigensweep.device.compile`).
 
 This module also holds eigensweep's one Pauli-rotation compiler (:func:`circuit_from_rotations`):
 the optimize stage's reported circuit costs and the exported device circuits are both built by
@@ -37,7 +40,10 @@ import numpy as np
 
 ONE_QUBIT = {"x", "y", "z", "h", "s", "sdg", "sx"}
 ONE_QUBIT_ROTATIONS = {"rx", "ry", "rz"}
-TWO_QUBIT = {"cx"}
+TWO_QUBIT = {"cx", "cz", "rxx"}
+TWO_QUBIT_ROTATIONS = {"rxx"}
+#: Gates that take one angle.
+ROTATIONS = ONE_QUBIT_ROTATIONS | TWO_QUBIT_ROTATIONS
 KNOWN_GATES = ONE_QUBIT | ONE_QUBIT_ROTATIONS | TWO_QUBIT
 
 
@@ -71,7 +77,7 @@ class Circuit:
             raise ValueError(f"gate {name!r} needs distinct qubits, got {qs}")
         if any(q < 0 or q >= self.n_qubits for q in qs):
             raise ValueError(f"gate {name!r} on qubits {qs} outside 0..{self.n_qubits - 1}")
-        n_params = 1 if name in ONE_QUBIT_ROTATIONS else 0
+        n_params = 1 if name in ROTATIONS else 0
         if len(ps) != n_params:
             raise ValueError(f"gate {name!r} takes {n_params} angle(s), got {ps}")
         self.gates.append(Gate(name, qs, ps))
@@ -98,6 +104,11 @@ class Circuit:
         return sum(1 for g in self.gates if g.name == "cx")
 
     @property
+    def two_qubit_count(self) -> int:
+        """Number of two-qubit gates of any kind (``cx``, ``cz``, ``rxx``)."""
+        return sum(1 for g in self.gates if len(g.qubits) == 2)
+
+    @property
     def depth(self) -> int:
         """Circuit depth counting every gate as one layer step (ASAP scheduling)."""
         level = [0] * self.n_qubits
@@ -108,7 +119,7 @@ class Circuit:
         return max(level, default=0)
 
 
-_SELF_INVERSE = {"x", "y", "z", "h", "cx"}
+_SELF_INVERSE = {"x", "y", "z", "h", "cx", "cz"}
 
 
 def inverse_gate(gate: Gate) -> list[Gate]:
@@ -123,7 +134,7 @@ def inverse_gate(gate: Gate) -> list[Gate]:
         return [Gate("sdg", gate.qubits)]
     if gate.name == "sdg":
         return [Gate("s", gate.qubits)]
-    if gate.name in ONE_QUBIT_ROTATIONS:
+    if gate.name in ROTATIONS:
         return [Gate(gate.name, gate.qubits, (-gate.params[0],))]
     if gate.name == "sx":
         return [Gate("sx", gate.qubits), Gate("x", gate.qubits)]

@@ -95,7 +95,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "export",
-        4,
+        5,
         "run_export",
         {"optimize": "optimize", "taper": "taper", "integrals": "integrals"},
         ("stage", "jobs"),
@@ -103,7 +103,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "reconcile",
-        2,
+        3,
         "run_reconcile",
         {"export": "export", "taper": "taper", "integrals": "integrals", "counts": RETURNED},
         ("stage",),

@@ -302,6 +302,15 @@ def _export_problem(int_params: dict, opt_params: dict) -> dict:
     }
 
 
+def export_target(param, key: str):
+    """The export node's target: ``None`` for ``generic``, else a Target from its stored content."""
+    from .target import GENERIC, target_from_dict
+
+    if param == GENERIC:
+        return None
+    return target_from_dict(param, f"export {key}: target {param.get('name')}")
+
+
 def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
     """Device jobs for one optimized point: OpenQASM 3/2 circuits, manifest and job summary."""
     from .device import build_job, state_circuit, write_job
@@ -311,6 +320,7 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
     tap, tap_sd = load_taper(inputs["taper"])
     mapping = tap_sd.meta["mapping"]
     ham = tap.hamiltonian
+    target = export_target(p.get("target", "generic"), node.key)
     with Timer() as t:
         circ, e_circ = state_circuit(
             opt.meta["ansatz_meta"],
@@ -335,6 +345,7 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
                 "problem": _export_problem(read_stage(inputs["integrals"]).params, opt.params),
             },
             target_se=p["target_mha"] / 1000.0,
+            target=target,
         )
         folder = Path(output).with_suffix("")
         write_job(job, folder)
@@ -348,6 +359,7 @@ def run_export(node: Node, inputs: dict[str, str], output: str, progress: Progre
         "mapping": mapping,
         "tapered": bool(tap_sd.meta["tapered"]),
         "job_folder": folder.name,
+        "target": manifest["target"]["name"],
     }
     _say(
         progress,

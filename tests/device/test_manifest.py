@@ -32,7 +32,7 @@ def h2_job():
 def test_records_have_documented_fields(h2_job):
     job, ham, circ = h2_job
     m = job.to_manifest()
-    assert m["format"] == "eigensweep-device-job" and m["format_version"] == 1
+    assert m["format"] == "eigensweep-device-job" and m["format_version"] == 2
     assert m["bit_order"] == BIT_ORDER == "qubit k = character k of the bitstring"
     assert m["meta"] == {"r": 0.7414}
     kinds = [r["kind"] for r in m["circuits"]]

@@ -14,9 +14,13 @@ error mitigation", IEEE QCE 2020 (arXiv:2005.10921).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterable
+from dataclasses import dataclass
 
-from eigensweep.circuit import Circuit, circuit_from_rotations
+import numpy as np
+
+from eigensweep.circuit import Circuit, Gate, circuit_from_rotations
 
 __all__ = [
     "circuit_from_rotations",
@@ -25,6 +29,17 @@ __all__ = [
     "globally_folded_circuit",
     "state_circuit",
     "base_of_global_fold",
+    "CompiledCircuit",
+    "append_on_physical",
+    "choose_region",
+    "compile_for_target",
+    "logical_bit_positions",
+    "naive_route",
+    "native_gates_of",
+    "one_qubit_native",
+    "peephole",
+    "sabre_route",
+    "zyz_angles",
 ]
 
 
@@ -168,3 +183,611 @@ def state_circuit(
             f"{float(energy_expected):.8f} Eh; refusing to export an inconsistent job"
         )
     return circ, energy
+
+
+# ============================================================================= device targets
+#
+# Compilation for a device target (eigensweep.target.Target): an initial layout and routing by
+# swap insertion with lookahead (SABRE), decomposition into the target's native gates, a
+# peephole pass, and the final logical -> physical permutation. See compile_for_target.
+
+_TWO_PI = 2.0 * math.pi
+_TOL = 1e-10
+
+
+@dataclass
+class CompiledCircuit:
+    """A circuit compiled for a target, on the target's physical register.
+
+    Attributes:
+        circuit: native gates on ``target.n_qubits`` physical qubits.
+        layout: ``layout[j]`` is the physical qubit holding logical qubit ``j`` at the start.
+        final_permutation: ``final_permutation[j]`` is the physical qubit holding logical
+            qubit ``j`` at the end (after the routing swaps).
+        measured_qubits: the physical qubits the circuit uses, ascending; bit ``k`` of a
+            returned bitstring is physical qubit ``measured_qubits[k]``.
+        swaps: swaps the router inserted.
+        target: the target's name.
+    """
+
+    circuit: Circuit
+    layout: list[int]
+    final_permutation: list[int]
+    measured_qubits: list[int]
+    swaps: int
+    target: str
+
+    def logical_bit_positions(self) -> list[int]:
+        """``pos[j]``: the bitstring character that holds logical qubit ``j``."""
+        return logical_bit_positions(self.measured_qubits, self.final_permutation)
+
+
+def logical_bit_positions(measured_qubits, final_permutation) -> list[int]:
+    """Character index of each logical qubit in a bitstring measured on ``measured_qubits``."""
+    where = {int(p): k for k, p in enumerate(measured_qubits)}
+    return [where[int(p)] for p in final_permutation]
+
+
+# ----------------------------------------------------------------------------- region
+
+
+def _induced_distances(target, region: list[int]) -> dict[int, dict[int, int]]:
+    """Shortest paths inside the induced subgraph of ``region`` (breadth-first search)."""
+    inside = set(region)
+    out: dict[int, dict[int, int]] = {}
+    for s in region:
+        dist = {s: 0}
+        todo = [s]
+        for u in todo:
+            for v in sorted(target.neighbours(u)):
+                if v in inside and v not in dist:
+                    dist[v] = dist[u] + 1
+                    todo.append(v)
+        out[s] = dist
+    return out
+
+
+def choose_region(target, n: int) -> list[int]:
+    """A connected set of ``n`` physical qubits with many internal couplings (ascending).
+
+    Greedy growth from every start qubit: add the outside neighbour with the most couplings
+    into the set (then the lowest two-qubit error, then the lowest index); keep the set with
+    the most internal couplings. All-to-all targets use qubits ``0 .. n-1``.
+    """
+    if n > target.n_qubits:
+        raise ValueError(
+            f"the circuit needs {n} qubits but target {target.name} has {target.n_qubits}; "
+            "choose a larger target"
+        )
+    if target.all_to_all or n == target.n_qubits:
+        return list(range(n))
+    best: tuple | None = None
+    for start in range(target.n_qubits):
+        chosen = [start]
+        inside = {start}
+        while len(chosen) < n:
+            cands = {v for u in chosen for v in target.neighbours(u)} - inside
+            if not cands:
+                break
+            v = min(cands, key=lambda c: (-len(target.neighbours(c) & inside), c))
+            chosen.append(v)
+            inside.add(v)
+        if len(chosen) < n:
+            continue
+        edges = sum(1 for a, b in target.edges() if a in inside and b in inside)
+        score = (-edges, sorted(chosen))
+        if best is None or score < best:
+            best = score
+    if best is None:
+        raise ValueError(
+            f"target {target.name} has no connected set of {n} qubits; choose another target"
+        )
+    return best[1]
+
+
+# ----------------------------------------------------------------------------- SABRE
+
+
+def _dag(gates: list[Gate], n: int) -> tuple[list[list[int]], list[int]]:
+    succ: list[list[int]] = [[] for _ in gates]
+    npred = [0] * len(gates)
+    last = [-1] * n
+    for i, g in enumerate(gates):
+        for q in g.qubits:
+            p = last[q]
+            if p >= 0 and i not in succ[p]:
+                succ[p].append(i)
+                npred[i] += 1
+            last[q] = i
+    return succ, npred
+
+
+def _sabre_pass(
+    gates: list[Gate],
+    n: int,
+    layout: list[int],
+    dist: dict[int, dict[int, int]],
+    *,
+    extended_size: int = 20,
+    extended_weight: float = 0.5,
+    decay_step: float = 0.001,
+    decay_reset: int = 5,
+    emit: bool = True,
+) -> tuple[list[tuple], list[int], int]:
+    """One SABRE routing pass (Li, Ding, Xie, ASPLOS 2019, arXiv:1809.02573).
+
+    Executes every front-layer gate whose qubits are coupled; otherwise scores each swap on a
+    physical qubit of a front gate by ``max(decay) * (H_front / |F| + W H_ext / |E|)``, the
+    sums of distances of the front layer and of the extended set (the next ``extended_size``
+    two-qubit gates), and applies the best (ties: lowest pair). ``decay`` grows by
+    ``decay_step`` on swapped qubits and is reset every ``decay_reset`` swaps or after a
+    gate executes. Should ``3 n`` swaps pass without progress, the first front gate is routed
+    along a shortest path (release valve against cycles).
+
+    Returns:
+        ``(ops, final layout, swaps)``; ``ops`` are ``(gate, physical qubits)`` and
+        ``("swap", (a, b))`` entries.
+    """
+    succ, npred = _dag(gates, n)
+    npred = list(npred)
+    l2p = list(layout)
+    p2l = {p: j for j, p in enumerate(l2p)}
+    region = sorted(dist)
+    nbrs = {p: [v for v in region if dist[p].get(v) == 1] for p in region}
+    decay = dict.fromkeys(region, 1.0)
+    front = [i for i in range(len(gates)) if npred[i] == 0]
+    ops: list[tuple] = []
+    swaps = 0
+    since_progress = 0
+    since_reset = 0
+
+    def swap(a: int, b: int) -> None:
+        nonlocal swaps
+        la, lb = p2l.get(a), p2l.get(b)
+        if la is not None:
+            l2p[la] = b
+        if lb is not None:
+            l2p[lb] = a
+        p2l.pop(a, None)
+        p2l.pop(b, None)
+        if la is not None:
+            p2l[b] = la
+        if lb is not None:
+            p2l[a] = lb
+        swaps += 1
+        if emit:
+            ops.append(("swap", (a, b)))
+
+    while front:
+        progress = True
+        while progress:
+            progress = False
+            nxt = []
+            for i in front:
+                g = gates[i]
+                if len(g.qubits) == 1 or dist[l2p[g.qubits[0]]][l2p[g.qubits[1]]] == 1:
+                    if emit:
+                        ops.append((g, tuple(l2p[q] for q in g.qubits)))
+                    for s in succ[i]:
+                        npred[s] -= 1
+                        if npred[s] == 0:
+                            nxt.append(s)
+                    progress = True
+                else:
+                    nxt.append(i)
+            if progress:
+                since_progress = 0
+                decay = dict.fromkeys(region, 1.0)
+            front = nxt
+        if not front:
+            break
+        if since_progress > 3 * n:
+            g = gates[front[0]]
+            a, b = l2p[g.qubits[0]], l2p[g.qubits[1]]
+            while dist[a][b] > 1:
+                step = min(v for v in nbrs[a] if dist[v][b] < dist[a][b])
+                swap(a, step)
+                a = step
+            since_progress = 0
+            continue
+        fgates = [gates[i] for i in front]
+        ext: list[Gate] = []
+        seen = set(front)
+        todo = list(front)
+        while todo and len(ext) < extended_size:
+            i = todo.pop(0)
+            for s in succ[i]:
+                if s not in seen:
+                    seen.add(s)
+                    todo.append(s)
+                    if len(gates[s].qubits) == 2:
+                        ext.append(gates[s])
+                        if len(ext) >= extended_size:
+                            break
+        cands = sorted(
+            {
+                (min(p, v), max(p, v))
+                for g in fgates
+                for p in (l2p[g.qubits[0]], l2p[g.qubits[1]])
+                for v in nbrs[p]
+            }
+        )
+        best, best_score = None, math.inf
+        for a, b in cands:
+
+            def where(q: int, a=a, b=b) -> int:
+                p = l2p[q]
+                return b if p == a else (a if p == b else p)
+
+            h = sum(dist[where(g.qubits[0])][where(g.qubits[1])] for g in fgates) / len(fgates)
+            if ext:
+                h += (
+                    extended_weight
+                    * sum(dist[where(g.qubits[0])][where(g.qubits[1])] for g in ext)
+                    / len(ext)
+                )
+            h *= max(decay[a], decay[b])
+            if h < best_score - 1e-12:
+                best, best_score = (a, b), h
+        a, b = best
+        swap(a, b)
+        decay[a] += decay_step
+        decay[b] += decay_step
+        since_progress += 1
+        since_reset += 1
+        if since_reset >= decay_reset:
+            since_reset = 0
+            decay = dict.fromkeys(region, 1.0)
+    return ops, l2p, swaps
+
+
+def _initial_layout(region: list[int], dist, n: int) -> list[int]:
+    """Logical ``j`` -> the ``j``-th qubit of a breadth-first walk of the region from an end."""
+    far = max(region, key=lambda p: (max(dist[p].values()), -p))
+    order = sorted(region, key=lambda p: (dist[far][p], p))
+    return order[:n]
+
+
+def sabre_route(
+    circuit: Circuit, target, *, passes: int = 3
+) -> tuple[list[tuple], list[int], list[int], list[int], int]:
+    """SABRE layout and routing of ``circuit`` on ``target`` (Li, Ding, Xie, ASPLOS 2019).
+
+    The initial layout comes from ``passes`` forward-backward passes (the final layout of a
+    pass over the circuit starts a pass over the reversed circuit, and so on), then a last
+    forward pass emits the routed operations. Routing stays inside :func:`choose_region`.
+
+    Returns:
+        ``(ops, layout, final layout, region, swaps)``.
+    """
+    n = circuit.n_qubits
+    region = choose_region(target, n)
+    dist = _induced_distances(target, region)
+    layout = _initial_layout(region, dist, n)
+    gates = list(circuit.gates)
+    two = [g for g in gates if len(g.qubits) == 2]
+    if two:
+        for _ in range(passes):
+            _, end, _ = _sabre_pass(two, n, layout, dist, emit=False)
+            _, layout, _ = _sabre_pass(two[::-1], n, end, dist, emit=False)
+    ops, final, swaps = _sabre_pass(gates, n, layout, dist)
+    return ops, layout, final, region, swaps
+
+
+def naive_route(
+    circuit: Circuit, target
+) -> tuple[list[tuple], list[int], list[int], list[int], int]:
+    """Baseline router: trivial layout, and before each uncoupled gate its first qubit is swapped
+    along a shortest path until it neighbours the second (a nearest-neighbour swap chain)."""
+    n = circuit.n_qubits
+    region = choose_region(target, n)
+    dist = _induced_distances(target, region)
+    layout = _initial_layout(region, dist, n)
+    l2p = list(layout)
+    p2l = {p: j for j, p in enumerate(l2p)}
+    ops: list[tuple] = []
+    swaps = 0
+    for g in circuit.gates:
+        if len(g.qubits) == 2:
+            a, b = l2p[g.qubits[0]], l2p[g.qubits[1]]
+            while dist[a][b] > 1:
+                step = min(v for v in region if dist[a].get(v) == 1 and dist[v][b] < dist[a][b])
+                la, lb = p2l.get(a), p2l.get(step)
+                for p, lq in ((step, la), (a, lb)):
+                    if lq is None:
+                        p2l.pop(p, None)
+                    else:
+                        p2l[p] = lq
+                        l2p[lq] = p
+                ops.append(("swap", (a, step)))
+                swaps += 1
+                a = step
+        ops.append((g, tuple(l2p[q] for q in g.qubits)))
+    return ops, layout, l2p, region, swaps
+
+
+# ----------------------------------------------------------------------------- native gates
+
+
+def _u_matrix(gate: Gate) -> np.ndarray:
+    from eigensweep.qubit.statevector import gate_matrix
+
+    return gate_matrix(gate)
+
+
+def _is_identity(m: np.ndarray) -> bool:
+    """``m`` is the identity up to a global phase."""
+    return abs(m[0, 1]) < _TOL and abs(m[1, 0]) < _TOL and abs(m[0, 0] - m[1, 1]) < _TOL
+
+
+def _wrap(angle: float) -> float:
+    """Angle in (-pi, pi] (``rz(a + 2 pi) = -rz(a)``: the same gate up to a global phase)."""
+    a = math.remainder(angle, _TWO_PI)
+    return math.pi if abs(a + math.pi) < 1e-14 else a
+
+
+def zyz_angles(m: np.ndarray) -> tuple[float, float, float]:
+    """``(phi, theta, lam)`` with ``m = e^{i a} rz(phi) ry(theta) rz(lam)`` (Euler ZYZ angles)."""
+    det = np.linalg.det(m)
+    su = m / np.sqrt(det)
+    theta = 2.0 * math.atan2(abs(su[1, 0]), abs(su[0, 0]))
+    plus = 2.0 * float(np.angle(su[1, 1])) if abs(su[1, 1]) > 1e-12 else 0.0
+    minus = 2.0 * float(np.angle(su[1, 0])) if abs(su[1, 0]) > 1e-12 else 0.0
+    return (plus + minus) / 2.0, theta, (plus - minus) / 2.0
+
+
+def one_qubit_native(m: np.ndarray, q: int, basis: str) -> list[Gate]:
+    """Native gates (circuit order) equal to the 2x2 unitary ``m`` up to a global phase.
+
+    ``sx`` basis (``rz``, ``sx``, ``x``): ``rz(lam) sx rz(theta + pi) sx rz(phi + pi)`` from
+    the ZYZ angles, with the shorter forms ``rz``, ``x rz`` and ``rz sx rz`` when theta is 0,
+    pi or pi/2; ``ry`` basis: ``rz ry rz``; ``rx`` basis: ``rz(lam - pi/2) rx(theta)
+    rz(phi + pi/2)``. Zero rotations are left out.
+    """
+    if _is_identity(m):
+        return []
+    phi, theta, lam = zyz_angles(m)
+    out: list[Gate] = []
+
+    def rz(a: float) -> None:
+        a = _wrap(a)
+        if abs(a) > _TOL:
+            out.append(Gate("rz", (q,), (a,)))
+
+    if abs(theta) < _TOL:
+        rz(phi + lam)
+    elif basis == "ry":
+        rz(lam)
+        out.append(Gate("ry", (q,), (theta,)))
+        rz(phi)
+    elif basis == "rx":
+        rz(lam - math.pi / 2)
+        out.append(Gate("rx", (q,), (theta,)))
+        rz(phi + math.pi / 2)
+    elif abs(theta - math.pi) < _TOL:
+        out.append(Gate("x", (q,)))
+        rz(phi - lam - math.pi)
+    elif abs(theta - math.pi / 2) < _TOL:
+        rz(lam - math.pi / 2)
+        out.append(Gate("sx", (q,)))
+        rz(phi + math.pi / 2)
+    else:
+        rz(lam)
+        out.append(Gate("sx", (q,)))
+        rz(theta + math.pi)
+        out.append(Gate("sx", (q,)))
+        rz(phi + math.pi)
+    return out
+
+
+def _two_qubit_native(name: str, a: int, b: int, entangler: str) -> list:
+    """``cx`` or ``swap`` on physical ``a, b`` as the entangler plus one-qubit gates (circuit order).
+
+    ``cx = h_t cz h_t`` (exact); ``cx = ry_c(pi/2) rxx(pi/2) rx_c(-pi/2) rx_t(-pi/2)
+    ry_c(-pi/2)`` up to a global phase (Maslov, New J. Phys. 19, 023035 (2017));
+    ``swap = cx(a,b) cx(b,a) cx(a,b)``.
+    """
+    if name == "swap":
+        return [
+            *_two_qubit_native("cx", a, b, entangler),
+            *_two_qubit_native("cx", b, a, entangler),
+            *_two_qubit_native("cx", a, b, entangler),
+        ]
+    if entangler == "cx":
+        return [Gate("cx", (a, b))]
+    if entangler == "cz":
+        return [Gate("h", (b,)), Gate("cz", (a, b)), Gate("h", (b,))]
+    h = math.pi / 2
+    return [
+        Gate("ry", (a,), (h,)),
+        Gate("rxx", (a, b), (h,)),
+        Gate("rx", (a,), (-h,)),
+        Gate("rx", (b,), (-h,)),
+        Gate("ry", (a,), (-h,)),
+    ]
+
+
+def _cancels(first: Gate, second: Gate) -> Gate | None | bool:
+    """``True`` if the two-qubit pair multiplies to the identity, a merged gate, or ``False``."""
+    if first.name != second.name:
+        return False
+    same = first.qubits == second.qubits
+    flipped = first.qubits == second.qubits[::-1]
+    if first.name == "cx":
+        return same
+    if first.name == "cz":
+        return same or flipped
+    if first.name == "rxx" and (same or flipped):
+        angle = math.remainder(first.params[0] + second.params[0], 2 * _TWO_PI)
+        if abs(math.remainder(angle, _TWO_PI)) < _TOL:
+            return True
+        return Gate("rxx", first.qubits, (angle,))
+    return False
+
+
+def peephole(gates: list[Gate], n_qubits: int, basis: str) -> list[Gate]:
+    """Merge one-qubit runs and cancel adjacent inverse two-qubit pairs, until nothing changes.
+
+    One-qubit gates between two-qubit gates are multiplied into one 2x2 unitary (so runs of
+    ``rz`` merge, and gate-inverse pairs vanish) and re-expressed in the native ``basis`` by
+    :func:`one_qubit_native`; two ``cx`` (or ``cz``) on the same qubits with nothing between
+    them on those qubits cancel, two ``rxx`` merge. The result equals the input up to a global
+    phase.
+    """
+    current = _peephole_pass(list(gates), n_qubits, basis)
+    while True:
+        out = _peephole_pass(current, n_qubits, basis)
+        if len(out) >= len(current):
+            return current
+        current = out
+
+
+def _peephole_pass(gates: list[Gate], n: int, basis: str) -> list[Gate]:
+    ops: list = []  # entries: ("u", q, matrix) | ("g", gate) | None (removed)
+    prev: list[dict[int, int]] = []  # per op: qubit -> index of the previous op on it
+    last = [-1] * n
+    pending: list[np.ndarray | None] = [None] * n
+
+    def push(op, qubits) -> None:
+        prev.append({q: last[q] for q in qubits})
+        ops.append(op)
+        for q in qubits:
+            last[q] = len(ops) - 1
+
+    def remove(i: int, qubits) -> None:
+        ops[i] = None
+        for q in qubits:
+            last[q] = prev[i][q]
+
+    def flush(q: int) -> None:
+        m = pending[q]
+        pending[q] = None
+        if m is None:
+            return
+        j = last[q]
+        if j >= 0 and ops[j] is not None and ops[j][0] == "u":
+            m = m @ ops[j][2]
+            remove(j, (q,))
+        if not _is_identity(m):
+            push(("u", q, m), (q,))
+
+    for g in gates:
+        if len(g.qubits) == 1:
+            q = g.qubits[0]
+            m = _u_matrix(g)
+            pending[q] = m if pending[q] is None else m @ pending[q]
+            continue
+        a, b = g.qubits
+        flush(a)
+        flush(b)
+        j = last[a]
+        if j >= 0 and j == last[b] and ops[j] is not None and ops[j][0] == "g":
+            res = _cancels(ops[j][1], g)
+            if res is True:
+                remove(j, (a, b))
+                continue
+            if isinstance(res, Gate):
+                remove(j, (a, b))
+                push(("g", res), (a, b))
+                continue
+        push(("g", g), (a, b))
+    for q in range(n):
+        flush(q)
+    out: list[Gate] = []
+    for op in ops:
+        if op is None:
+            continue
+        if op[0] == "g":
+            out.append(op[1])
+        else:
+            out.extend(one_qubit_native(op[2], op[1], basis))
+    return out
+
+
+def to_native(ops: list[tuple], n_physical: int, target, *, optimize: bool = True) -> Circuit:
+    """Routed operations (``(gate, physical qubits)`` / ``("swap", (a, b))``) in native gates."""
+    basis = target.one_qubit_basis
+    ent = target.entangler
+    gates: list[Gate] = []
+    for g, qs in ops:
+        if g == "swap":
+            gates += _two_qubit_native("swap", qs[0], qs[1], ent)
+        elif len(qs) == 2:
+            if g.name != "cx":
+                raise ValueError(f"cannot route gate {g.name!r}; the ansatz compiler emits cx")
+            gates += _two_qubit_native("cx", qs[0], qs[1], ent)
+        else:
+            gates.append(Gate(g.name, qs, g.params))
+    if optimize:
+        gates = peephole(gates, n_physical, basis)
+    else:
+        gates = _one_qubit_to_native(gates, basis)
+    return Circuit(n_physical, gates)
+
+
+def _one_qubit_to_native(gates: list[Gate], basis: str) -> list[Gate]:
+    out: list[Gate] = []
+    for g in gates:
+        if len(g.qubits) == 2:
+            out.append(g)
+        else:
+            out.extend(one_qubit_native(_u_matrix(g), g.qubits[0], basis))
+    return out
+
+
+def compile_for_target(
+    circuit: Circuit, target=None, *, router: str = "sabre", passes: int = 3
+) -> CompiledCircuit:
+    """Compile a logical circuit for a device target (``None`` or generic: unchanged).
+
+    Steps: a connected region of physical qubits (:func:`choose_region`), layout and routing
+    by swap insertion (:func:`sabre_route`, or :func:`naive_route` with ``router="naive"``),
+    decomposition into the target's natives, and :func:`peephole`. The generic target keeps
+    the circuit exactly as the ansatz compiler wrote it (its gate set is native there).
+    """
+    from eigensweep.target import GENERIC
+
+    n = circuit.n_qubits
+    if target is None or (target.name == GENERIC and target.path is None):
+        ident = list(range(n))
+        return CompiledCircuit(circuit.copy(), ident, ident, ident, 0, GENERIC)
+    if router == "sabre":
+        ops, layout, final, region, swaps = sabre_route(circuit, target, passes=passes)
+    elif router == "naive":
+        ops, layout, final, region, swaps = naive_route(circuit, target)
+    else:
+        raise ValueError(f"unknown router {router!r}; use sabre or naive")
+    native = to_native(ops, target.n_qubits, target)
+    return CompiledCircuit(native, layout, final, sorted(region), swaps, target.name)
+
+
+def append_on_physical(compiled: CompiledCircuit, logical_gates: Circuit, target) -> Circuit:
+    """``compiled.circuit`` followed by one-qubit ``logical_gates`` on the final positions, native.
+
+    Used for measurement basis changes after the routed state preparation; the appended
+    gates merge with the circuit's last one-qubit gates (:func:`peephole`).
+    """
+    if target is None or compiled.target == "generic":
+        out = compiled.circuit.copy()
+        out.extend(logical_gates)
+        return out
+    extra = []
+    for g in logical_gates.gates:
+        if len(g.qubits) != 1:
+            raise ValueError("only one-qubit gates can follow the routed circuit")
+        extra.append(Gate(g.name, (compiled.final_permutation[g.qubits[0]],), g.params))
+    if not extra:
+        return compiled.circuit.copy()
+    gates = peephole(
+        list(compiled.circuit.gates) + extra, compiled.circuit.n_qubits, target.one_qubit_basis
+    )
+    return Circuit(compiled.circuit.n_qubits, gates)
+
+
+def native_gates_of(circuit: Circuit, target) -> Circuit:
+    """``circuit`` (already on physical qubits) with every gate in the target's natives."""
+    if target is None or (target.name == "generic" and target.path is None):
+        return circuit.copy()
+    return to_native(
+        [(g, g.qubits) for g in circuit.gates], circuit.n_qubits, target, optimize=False
+    )

@@ -30,7 +30,15 @@ from pathlib import Path
 import numpy as np
 
 from eigensweep.circuit import Circuit
-from eigensweep.device.compile import globally_folded_circuit, group_basis, measurement_circuit
+from eigensweep.device.compile import (
+    CompiledCircuit,
+    append_on_physical,
+    compile_for_target,
+    globally_folded_circuit,
+    group_basis,
+    measurement_circuit,
+    native_gates_of,
+)
 from eigensweep.device.qasm import to_qasm2, to_qasm3
 from eigensweep.errors import StageFileError
 from eigensweep.store import atomic_write_text
@@ -50,14 +58,21 @@ __all__ = [
     "default_groups",
     "allocate_shots",
     "as_manifest",
+    "bit_order_circuit",
+    "logical_counts",
     "atomic_write_text",
 ]
 
 JOB_FORMAT = "eigensweep-device-job"
-JOB_FORMAT_VERSION = 1
+JOB_FORMAT_VERSION = 2  # 2: compiled for a target (target, layout, final_permutation)
 #: The job's human-readable summary, beside the circuits in the job folder.
 SUMMARY_FILE = "job-summary.md"
 BIT_ORDER = "qubit k = character k of the bitstring"
+#: Bit order of a job compiled for a device target (physical register, routed).
+PHYSICAL_BIT_ORDER = (
+    "character k of the bitstring = physical qubit measured_qubits[k]; logical qubit j = "
+    "character logical_bit_positions[j] (the physical qubit final_permutation[j])"
+)
 DEFAULT_TARGET_SE = 1.6e-3  # hartree ("chemical accuracy")
 IDEAL_CUTOFF = 1e-12
 
@@ -202,6 +217,7 @@ class CircuitRecord:
     prepared: str | None = None
     bit_order: str = BIT_ORDER
     qasm2_sha256: str = ""
+    two_qubit_count: int = 0
 
     def to_dict(self) -> dict:
         return {
@@ -220,6 +236,7 @@ class CircuitRecord:
             "qasm2_file": self.qasm2_file,
             "qasm2_sha256": self.qasm2_sha256,
             "cnot_count": self.cnot_count,
+            "two_qubit_count": self.two_qubit_count,
             "depth": self.depth,
             "n_gates": self.n_gates,
             "ideal_distribution": self.ideal_distribution,
@@ -246,6 +263,8 @@ class DeviceJob:
     circuits: dict[str, Circuit] = field(repr=False)
     qasm3: dict[str, str] = field(repr=False)
     qasm2: dict[str, str] = field(repr=False)
+    compiled: CompiledCircuit | None = field(default=None, repr=False)
+    target: dict = field(default_factory=dict, repr=False)
     summary: str = field(default="", repr=False)
 
     @property
@@ -254,14 +273,27 @@ class DeviceJob:
 
     def to_manifest(self) -> dict:
         """The ``manifest.json`` content (a plain JSON-serialisable dict)."""
+        comp = self.compiled
+        ident = list(range(self.n_qubits))
+        layout = comp.layout if comp else ident
+        final = comp.final_permutation if comp else ident
+        measured = comp.measured_qubits if comp else ident
+        routed = measured != ident or final != ident
         return {
             "format": JOB_FORMAT,
             "format_version": JOB_FORMAT_VERSION,
             "job_id": self.job_id,
             "job_name": self.job_name,
             "n_qubits": self.n_qubits,
-            "bit_order": BIT_ORDER,
-            "measurement": "c[k] = measure q[k] for every qubit k",
+            "bit_order": PHYSICAL_BIT_ORDER if routed else BIT_ORDER,
+            "measurement": "c[k] = measure q[measured_qubits[k]] for every bit k",
+            "target": self.target,
+            "n_physical_qubits": int(self.target.get("n_qubits", self.n_qubits)),
+            "layout": list(layout),
+            "final_permutation": list(final),
+            "measured_qubits": list(measured),
+            "logical_bit_positions": [measured.index(p) for p in final],
+            "routing_swaps": comp.swaps if comp else 0,
             "hamiltonian": {
                 "identity": self.identity,
                 "terms": self.terms,
@@ -311,6 +343,7 @@ def build_job(
     min_shots: int = 100,
     calibration_fraction: float = 0.1,
     target_se: float = DEFAULT_TARGET_SE,
+    target=None,
 ) -> DeviceJob:
     """Build the measurement and calibration circuits for ``circuit`` and Hamiltonian ``ham``.
 
@@ -318,6 +351,15 @@ def build_job(
     identity excluded) default to :func:`default_groups`. A fraction ``calibration_fraction``
     of ``shots_total`` goes to the two calibration circuits; the rest is split over groups in
     proportion to ``sum |c|`` and equally over ``scale_factors`` (odd, positive, distinct).
+
+    ``target`` (an :class:`eigensweep.target.Target`; ``None`` = the generic all-to-all one)
+    compiles the state circuit once (:func:`~eigensweep.device.compile.compile_for_target`:
+    routing, natives, peephole); each group's basis change is appended on the final physical
+    positions and the whole circuit is folded (folding adds no swaps: ``G^dagger`` undoes
+    them, so one final permutation holds for every circuit). The OpenQASM files act on the
+    physical register; :attr:`DeviceJob.circuits` hold the same circuits relabelled to bit
+    order (qubit ``k`` = physical ``measured_qubits[k]``), which is what a device returns.
+    Ideal distributions are over logical bitstrings (character ``j`` = logical qubit ``j``).
     """
     n = int(circuit.n_qubits)
     if int(ham.n_qubits) != n:
@@ -369,6 +411,14 @@ def build_job(
     meas_shots = allocate_shots(max(shots_total - sum(cal_shots), 0), weights, min_shots)
 
     # ---- circuits
+    from eigensweep.target import generic_target
+
+    if target is None:
+        target = generic_target(n)
+    compiled = compile_for_target(circuit, target)
+    measured = compiled.measured_qubits
+    routed = measured != list(range(n)) or compiled.final_permutation != list(range(n))
+    bit_order = PHYSICAL_BIT_ORDER if routed else BIT_ORDER
     w = _id_width(len(group_info))
     records: list[CircuitRecord] = []
     circuits: dict[str, Circuit] = {}
@@ -376,9 +426,10 @@ def build_job(
     q2: dict[str, str] = {}
 
     def add(cid, kind, grp, scale, basis, pterms, shots, circ, ideal, prepared=None):
-        text3 = to_qasm3(circ, name=f"eigensweep circuit {cid} of job {job_name}")
-        text2 = to_qasm2(circ, name=f"eigensweep circuit {cid} of job {job_name}")
-        circuits[cid], q3[cid], q2[cid] = circ, text3, text2
+        label = f"eigensweep circuit {cid} of job {job_name} for target {target.name}"
+        text3 = to_qasm3(circ, name=label, measured=measured)
+        text2 = to_qasm2(circ, name=label, measured=measured)
+        circuits[cid], q3[cid], q2[cid] = bit_order_circuit(circ, measured), text3, text2
         records.append(
             CircuitRecord(
                 circuit_id=cid,
@@ -395,9 +446,11 @@ def build_job(
                 qasm2_sha256=sha256_text(text2),
                 ideal_distribution=ideal,
                 cnot_count=circ.cnot_count,
+                two_qubit_count=circ.two_qubit_count,
                 depth=circ.depth,
                 n_gates=len(circ.gates),
                 prepared=prepared,
+                bit_order=bit_order,
             )
         )
 
@@ -406,6 +459,9 @@ def build_job(
     k = 0
     for gi in group_info:
         base = measurement_circuit(circuit, gi["basis"])
+        physical = append_on_physical(
+            compiled, measurement_circuit(Circuit(n), gi["basis"]), target
+        )
         probs = np.abs(simulate(base)) ** 2
         ideal = probabilities_to_distribution(probs / probs.sum(), n, IDEAL_CUTOFF)
         pterms = [
@@ -413,15 +469,16 @@ def build_job(
         ]
         for s in scales:
             cid = f"g{gi['group']:0{w}d}-fold{s}"
-            circ = globally_folded_circuit(base, s)
+            circ = globally_folded_circuit(physical, s)
             add(cid, "measure", gi["group"], s, gi["basis"], pterms, meas_shots[k], circ, ideal)
             k += 1
     if calibration:
         for bit, shots in zip("01", cal_shots, strict=True):
-            circ = Circuit(n)
+            circ = Circuit(compiled.circuit.n_qubits)
             if bit == "1":
-                for q in range(n):
+                for q in measured:
                     circ.append("x", (q,))
+            circ = native_gates_of(circ, target)
             add(
                 f"cal-{bit}",
                 "calibration",
@@ -467,9 +524,30 @@ def build_job(
         circuits=circuits,
         qasm3=q3,
         qasm2=q2,
+        compiled=compiled,
+        target=target.to_dict(),
     )
     job.summary = _summary(job, one_norm, f_lin, f_rich)
     return job
+
+
+def bit_order_circuit(circuit: Circuit, measured: Sequence[int]) -> Circuit:
+    """``circuit`` on the physical register relabelled so that qubit ``k`` is ``measured[k]``.
+
+    This is the circuit whose statevector (qubit 0 = most significant bit) gives returned
+    bitstrings directly. Raises ``ValueError`` if a gate acts on an unmeasured qubit.
+    """
+    from eigensweep.circuit import Gate
+
+    index = {int(p): k for k, p in enumerate(measured)}
+    out = Circuit(len(index))
+    for g in circuit.gates:
+        try:
+            qs = tuple(index[q] for q in g.qubits)
+        except KeyError:
+            raise ValueError(f"gate {g.name} acts on unmeasured qubits {g.qubits}") from None
+        out.gates.append(Gate(g.name, qs, g.params))
+    return out
 
 
 def _problem_lines(problem: Mapping | None) -> list[str]:
@@ -582,7 +660,19 @@ def as_manifest(job) -> dict:
     return load_manifest(job)
 
 
-_MANIFEST_KEYS = ("job_id", "n_qubits", "bit_order", "hamiltonian", "circuits", "scale_factors")
+_MANIFEST_KEYS = (
+    "job_id",
+    "n_qubits",
+    "bit_order",
+    "hamiltonian",
+    "circuits",
+    "scale_factors",
+    "target",
+    "layout",
+    "final_permutation",
+    "measured_qubits",
+    "logical_bit_positions",
+)
 _RECORD_KEYS = ("circuit_id", "kind", "scale_factor", "pauli_terms", "shots", "sha256")
 
 
@@ -640,8 +730,12 @@ def check_job_files(folder: str | Path, manifest: Mapping | None = None) -> list
 
 
 def load_job_circuits(folder: str | Path) -> tuple[dict, list[tuple[dict, Circuit]]]:
-    """Manifest and parsed OpenQASM 3 circuits of a job folder, checking every file's SHA-256."""
-    from eigensweep.device.qasm import QasmReadError, from_qasm3
+    """Manifest and parsed OpenQASM 3 circuits of a job folder, checking every file's SHA-256.
+
+    Circuits come in bit order (:func:`bit_order_circuit`: qubit ``k`` = physical qubit
+    ``measured_qubits[k]``), on as many qubits as a returned bitstring has characters.
+    """
+    from eigensweep.device.qasm import QasmReadError, read_qasm3_measured
 
     folder = Path(folder)
     manifest = load_manifest(folder)
@@ -659,7 +753,28 @@ def load_job_circuits(folder: str | Path) -> tuple[dict, list[tuple[dict, Circui
                 f"{f}: SHA-256 differs from manifest.json (file edited?); re-export the job"
             )
         try:
-            items.append((rec, from_qasm3(text)))
-        except QasmReadError as err:
+            circ, measured = read_qasm3_measured(text)
+            want = manifest.get("measured_qubits", list(range(int(manifest["n_qubits"]))))
+            if measured != list(want):
+                raise QasmReadError(f"measures qubits {measured}, manifest says {want}")
+            items.append((rec, bit_order_circuit(circ, measured)))
+        except (QasmReadError, ValueError) as err:
             raise StageFileError(f"{f}: cannot read circuit ({err}); re-export the job") from None
     return manifest, items
+
+
+def logical_counts(counts: Mapping[str, int], manifest: Mapping) -> dict[str, int]:
+    """Returned counts (physical bit order) as counts over logical bitstrings.
+
+    Character ``j`` of the result is logical qubit ``j``, read from character
+    ``logical_bit_positions[j]`` of the returned bitstring (the physical qubit
+    ``final_permutation[j]``). The identity for jobs of the generic target.
+    """
+    pos = manifest.get("logical_bit_positions")
+    if not pos or list(pos) == list(range(len(pos))):
+        return dict(counts)
+    out: dict[str, int] = {}
+    for bits, c in counts.items():
+        key = "".join(bits[p] for p in pos)
+        out[key] = out.get(key, 0) + int(c)
+    return out

@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from eigensweep.device import mitigation as mit
-from eigensweep.device.manifest import as_manifest, pauli_labels
+from eigensweep.device.manifest import as_manifest, logical_counts, pauli_labels
 
 __all__ = [
     "BootstrapEnergy",
@@ -310,6 +310,9 @@ def reconcile(
     manifest = as_manifest(job)
     if "results" in counts and "format" in counts:
         counts = {cid: r["counts"] for cid, r in counts["results"].items()}
+    # returned bitstrings are in physical bit order; the manifest's final permutation maps
+    # them to logical qubits (the identity for the generic target)
+    counts = {cid: logical_counts(c, manifest) for cid, c in counts.items()}
     n = int(manifest["n_qubits"])
     identity = _check_hamiltonian(manifest, ham)
     records = manifest["circuits"]

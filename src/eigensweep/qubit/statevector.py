@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..circuit import KNOWN_GATES, Circuit, Gate
+from ..circuit import KNOWN_GATES, TWO_QUBIT, Circuit, Gate
 from ..errors import ConfigError
 from .pauli import PauliExpansion, XMaskGroups, bits_to_mask
 
@@ -31,6 +31,8 @@ __all__ = [
     "apply_pauli_expansion",
     "expectation",
     "apply_cx",
+    "apply_cz",
+    "apply_rxx",
     "apply_gate",
     "apply_gate_batch",
     "apply_gate_density",
@@ -311,6 +313,37 @@ def apply_cx(states: np.ndarray, control: int, target: int) -> np.ndarray:
     return out
 
 
+def apply_cz(states: np.ndarray, a: int, b: int) -> np.ndarray:
+    """Controlled-Z on one state or a batch (last axis ``2**n``); symmetric in ``a``, ``b``."""
+    n = states.shape[-1].bit_length() - 1
+    lead = states.shape[:-1]
+    out = states.copy()
+    v = out.reshape(lead + (2,) * n)
+    sel: list = [slice(None)] * (len(lead) + n)
+    sel[len(lead) + a] = 1
+    sel[len(lead) + b] = 1
+    v[tuple(sel)] *= -1
+    return out
+
+
+def apply_rxx(states: np.ndarray, a: int, b: int, angle: float) -> np.ndarray:
+    """``rxx(t) = cos(t/2) I - i sin(t/2) X_a X_b`` on one state or a batch; a new array."""
+    n = states.shape[-1].bit_length() - 1
+    lead = states.shape[:-1]
+    v = states.reshape(lead + (2,) * n)
+    flipped = np.flip(np.flip(v, axis=len(lead) + a), axis=len(lead) + b).reshape(states.shape)
+    return np.cos(angle / 2.0) * states - 1j * np.sin(angle / 2.0) * flipped
+
+
+def _apply_two_qubit(states: np.ndarray, gate: Gate) -> np.ndarray:
+    a, b = gate.qubits
+    if gate.name == "cx":
+        return apply_cx(states, a, b)
+    if gate.name == "cz":
+        return apply_cz(states, a, b)
+    return apply_rxx(states, a, b, gate.params[0])
+
+
 def gate_matrix(gate: Gate) -> np.ndarray:
     """The 2x2 matrix of a one-qubit :class:`~eigensweep.circuit.Gate` (OpenQASM 3 meaning)."""
     if gate.name in GATE_MATRICES:
@@ -322,8 +355,8 @@ def gate_matrix(gate: Gate) -> np.ndarray:
 
 def apply_gate_batch(states: np.ndarray, gate: Gate) -> np.ndarray:
     """Apply one gate to every state of a batch ``(batch, 2**n)`` (no input checks)."""
-    if gate.name == "cx":
-        return apply_cx(states, gate.qubits[0], gate.qubits[1])
+    if len(gate.qubits) == 2:
+        return _apply_two_qubit(states, gate)
     return apply_matrix_1q(states, gate.qubits[0], gate_matrix(gate))
 
 
@@ -363,10 +396,12 @@ def apply_gate(state: np.ndarray, gate: Gate, n_qubits: int) -> np.ndarray:
         raise ConfigError(f"unknown gate {gate.name!r}; known: {sorted(KNOWN_GATES)}")
     if any(not 0 <= q < n_qubits for q in gate.qubits):
         raise ConfigError(f"gate {gate.name} acts on {gate.qubits}, outside 0..{n_qubits - 1}")
-    if gate.name == "cx":
+    if gate.name in TWO_QUBIT:
         if len(gate.qubits) != 2 or gate.qubits[0] == gate.qubits[1]:
-            raise ConfigError(f"cx needs two distinct qubits, got {gate.qubits}")
-        return apply_cx(psi, gate.qubits[0], gate.qubits[1])
+            raise ConfigError(f"{gate.name} needs two distinct qubits, got {gate.qubits}")
+        if gate.name == "rxx" and len(gate.params) != 1:
+            raise ConfigError(f"rxx needs one angle, got {gate.params}")
+        return _apply_two_qubit(psi, gate)
     if len(gate.qubits) != 1:
         raise ConfigError(f"gate {gate.name} acts on one qubit, got {gate.qubits}")
     if gate.name not in GATE_MATRICES and len(gate.params) != 1:
