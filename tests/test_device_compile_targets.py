@@ -217,7 +217,7 @@ def _angle(expr) -> float:
     return float(expr.value)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def simulate_file(text: str) -> tuple[np.ndarray, list[int], list[tuple[str, tuple]]]:
     """Independent simulation of an exported OpenQASM 3 file (parsed by the reference parser).
 
@@ -341,3 +341,68 @@ def test_reconcile_maps_physical_bitstrings_back_to_logical_qubits(exported):
     mat = of.get_sparse_operator(qop, 6).toarray()
     e_ref = float(np.real(np.vdot(psi, mat @ psi)))
     assert abs(res.raw.value - e_ref) < 1e-6
+
+
+# ----------------------------------------------------------------------------- whole sweep
+
+
+def test_sweep_with_targets_reports_costs_and_reconciles(tmp_path, capsys):
+    # H2 / STO-3G UCCSD on the generic and the chain target; the routed job reconciles to the
+    # same noise-free energy within the bootstrap interval (PySCF FCI as the outside anchor)
+    from pyscf import fci, gto, scf
+    from study_helpers import run_plan
+
+    from eigensweep.collect import collect
+    from eigensweep.store import read_stage
+
+    raw = {
+        "molecules": [{"name": "h2", "atoms": "H 0 0 0; H 0 0 0.7414"}],
+        "methods": {"taper": [False]},
+        "export": {
+            "select": [{"molecule": "h2"}],
+            "targets": ["generic", str(TARGETS / "chain12-demo.yaml")],
+            "shots": 40000,
+            "scale_factors": [1],
+        },
+        "device": {"readout_error": [0.0, 0.0], "depolarizing_1q": 0.0, "depolarizing_2q": 0.0},
+    }
+    results = tmp_path / "results"
+    cfg, plan = run_plan(raw, results)
+    assert sorted(ex["target"] for ex in plan.exports) == ["chain12-demo", "generic"]
+    mol = gto.M(atom="H 0 0 0; H 0 0 0.7414", basis="sto-3g", verbose=0)
+    e_fci = fci.FCI(scf.RHF(mol).run()).kernel()[0]
+    for ex in plan.exports:
+        m = read_stage(results / "export" / f"{ex['key_export']}.h5").meta["manifest"]
+        assert m["target"]["name"] == ex["target"] and "fidelity" in m["cost"]
+    collect(plan.rows, results, exports=plan.exports, study="t")
+    header = (results / "t" / "summary.csv").read_text().splitlines()[0].split(",")
+    for metric in ("two_qubit_count", "depth", "duration_us", "fidelity", "shots", "shots_noisy"):
+        assert f"target_chain12_demo_{metric}" in header and f"target_generic_{metric}" in header
+    import csv
+
+    with open(results / "t" / "device_summary.csv") as fh:
+        raw_rows = {r["target"]: r for r in csv.DictReader(fh) if r["estimate"] == "raw"}
+    assert set(raw_rows) == {"chain12-demo", "generic"}
+    for r in raw_rows.values():  # noise-free device: the sampled energy brackets FCI
+        lo, hi = float(r["ci_low_eh"]), float(r["ci_high_eh"])
+        assert lo - 1e-3 < e_fci < hi + 1e-3, (r["target"], lo, hi, e_fci)
+
+
+def test_cost_estimate_follows_the_documented_closed_form():
+    # sx on q0, then cx(0, 1): critical path 35 + 300 ns; q1 waits 35 ns, q0 never waits;
+    # idle factor exp(-t/T1 - t (1/T2 - 1/(2 T1))) (amplitude damping plus pure dephasing,
+    # Nielsen & Chuang ch. 8, from memory)
+    from eigensweep.device.compile import estimate_cost
+
+    t = load_target(TARGETS / "chain12-demo.yaml")
+    c = Circuit(12)
+    c.append("sx", (0,))
+    c.append("cx", (0, 1))
+    cost = estimate_cost(c, t)
+    assert cost.duration_ns == t.gate_duration_ns("sx") + t.gate_duration_ns("cx")
+    gate_f = (1 - t.gate_error("sx")) * (1 - t.gate_error("cx"))
+    idle = t.gate_duration_ns("sx") / 1000.0
+    t1, t2 = t.t1_us[1], t.t2_us[1]
+    idle_f = math.exp(-idle / t1 - idle * max(0.0, 1 / t2 - 1 / (2 * t1)))
+    assert abs(cost.fidelity - gate_f * idle_f) < 1e-12
+    assert cost.two_qubit_count == 1 and cost.depth == 2

@@ -174,6 +174,7 @@ def cmd_plan(args) -> int:
         print(f"{stage:<12} {total:>6}" + "".join(f" {c.get(k, 0):>8}" for k in cols))
     _print_sizes(plan)
     _print_costs(plan, results)
+    _print_target_costs(plan, results)
     _print_waiting(plan)
     if args.profile and _profile_groups(_profile_dir(args.profile)):
         pending = {
@@ -210,6 +211,42 @@ def _print_batches(plan, target_minutes: float, pending: set[str], cores: int) -
         )
 
 
+def _print_target_costs(plan, results: Path) -> None:
+    """Per exported point and device target: native cost estimate (known once exported)."""
+    from .store import read_stage
+
+    if not plan.exports:
+        return
+    print(
+        "\ndevice cost per exported point and target (estimates from a simple model, not "
+        "guarantees; known once the export stage ran):"
+    )
+    print(
+        f"{'molecule':<10} {'point':<14} {'target':<16} {'2q gates':>8} {'depth':>6} "
+        f"{'time (us)':>10} {'fidelity':>9} {'shots':>11} {'shots/F^2':>11}"
+    )
+    unknown = 0
+    for ex in plan.exports:
+        f = results / "export" / f"{ex['key_export']}.h5"
+        try:
+            cost = read_stage(f, stage="export", key=ex["key_export"]).meta["manifest"]["cost"]
+        except (EigensweepError, KeyError):
+            unknown += 1
+            continue
+
+        def shots(v) -> str:
+            return f"{v:.3e}" if v is not None else "-"
+
+        print(
+            f"{ex['molecule']:<10} {ex['point']:<14} {ex.get('target', ''):<16} "
+            f"{cost['two_qubit_count']:>8} {cost['depth']:>6} "
+            f"{cost['duration_ns'] / 1000.0:>10.4g} {cost['fidelity']:>9.3g} "
+            f"{shots(cost['shots_for_target']):>11} {shots(cost['shots_for_target_noisy']):>11}"
+        )
+    if unknown:
+        print(f"({unknown} export job(s) not yet run: their costs appear once exported)")
+
+
 def _print_waiting(plan) -> None:
     """Device jobs exported for an external device that still wait for returned counts."""
     from .stage_table import job_folder
@@ -224,7 +261,8 @@ def _print_waiting(plan) -> None:
     for ex in waiting:
         print(
             f"  {ex['molecule']} {ex['point']} {ex['mapping']} tapered={ex['tapered']} "
-            f"{ex['ansatz']} {ex['optimizer']}: {job_folder(ex['key_export'])}/"
+            f"{ex['ansatz']} {ex['optimizer']} target={ex.get('target', 'generic')}: "
+            f"{job_folder(ex['key_export'])}/"
         )
 
 

@@ -397,6 +397,13 @@ def readme_text(study: str) -> str:
         "",
         "Empty cells are missing values; the row's `notes` says why. Scan columns are",
         "`scan_<variable>_<unit>` (`_angstrom`, `_bohr`, `_deg`).",
+        "Exported rows carry the cost estimate of each device target they were compiled for",
+        "(`export.targets`) as `target_<name>_<metric>` columns ('-' in the name becomes '_');",
+        "these are estimates from a simple model, not guarantees:",
+        "",
+        "| metric | unit | meaning |",
+        "|---|---|---|",
+        *[f"| `{c.name}` | {c.unit} | {c.description} |" for c in TARGET_COST_METRICS],
         "",
     ]
     from .analysis import ANALYSIS_COLUMNS
@@ -435,6 +442,7 @@ def collect(
     results = Path(results)
     folder = study_folder(results, study)
     summary = summary_rows(rows, results)
+    add_target_costs(summary, exports or [], results)
     devices = device_rows(exports or [], results)
     files = [
         write_summary(summary, folder / "summary.csv"),
@@ -467,6 +475,7 @@ DEVICE_COLUMNS: list[Column] = [
     _c("tapered", "", "Z2 tapering on or off"),
     _c("ansatz", "", "ansatz label"),
     _c("optimizer", "", "optimizer label"),
+    _c("target", "", "device target the job was compiled for (`export.targets`)"),
     _c("n_qubits", "", "qubits of the exported circuits"),
     _c("n_circuits", "", "circuits in the device job (measurement, calibration, folded)"),
     _c("shots", "", "shots over all circuits of the job"),
@@ -486,6 +495,50 @@ DEVICE_COLUMNS: list[Column] = [
     _c("key_export", "", "export stage key"),
     _c("key_reconcile", "", "reconcile stage key"),
 ]
+
+
+#: Per-target cost columns of the summary: ``target_<name>_<metric>`` (``-`` in the name
+#: becomes ``_``), from the export stage's estimate (``manifest.json`` ``cost``).
+TARGET_COST_METRICS: list[Column] = [
+    _c("two_qubit_count", "", "native two-qubit gates of the routed state preparation"),
+    _c("depth", "", "its depth in native gates (every gate one layer)"),
+    _c("duration_us", "us", "its estimated duration: critical path of the gate durations"),
+    _c(
+        "fidelity",
+        "",
+        "estimated circuit fidelity: product of gate fidelities times idle decay "
+        "exp(-t_idle/T1 - t_idle/T_phi) per used qubit (an estimate, not a guarantee)",
+    ),
+    _c("shots", "", "shots for `export.target_mha` from the group variances at the ideal state"),
+    _c("shots_noisy", "", "the same divided by the estimated fidelity squared (rule of thumb)"),
+]
+
+
+def target_cost_column(target: str, metric: str) -> str:
+    """Summary column of one target's cost metric, e.g. ``target_chain12_demo_fidelity``."""
+    return f"target_{target.replace('-', '_')}_{metric}"
+
+
+def add_target_costs(summary: list[dict], exports: list[dict], results: str | Path) -> None:
+    """Add each exported row's per-target cost estimate (read from its export stage file)."""
+    by_key = {r["key"]: r for r in summary}
+    for ex in exports:
+        row = by_key.get(ex["key"])
+        f = Path(results) / "export" / f"{ex['key_export']}.h5"
+        if row is None or not f.is_file():
+            continue
+        cost = read_stage(f, stage="export").meta["manifest"].get("cost") or {}
+        name = ex.get("target", cost.get("target", "generic"))
+        values = {
+            "two_qubit_count": cost.get("two_qubit_count"),
+            "depth": cost.get("depth"),
+            "duration_us": _num(cost.get("duration_ns")) / 1000.0,
+            "fidelity": _num(cost.get("fidelity")),
+            "shots": cost.get("shots_for_target"),
+            "shots_noisy": cost.get("shots_for_target_noisy"),
+        }
+        for metric, v in values.items():
+            row[target_cost_column(name, metric)] = "" if v is None else v
 
 
 def device_rows(exports: list[dict], results: str | Path = "results") -> list[dict]:
@@ -511,6 +564,7 @@ def device_rows(exports: list[dict], results: str | Path = "results") -> list[di
                         k: ex.get(k, "")
                         for k in ("molecule", "point", "mapping", "tapered", "ansatz", "optimizer")
                     },
+                    "target": ex.get("target", manifest.get("target", {}).get("name", "")),
                     "n_qubits": exp.meta["n_qubits"],
                     "n_circuits": len(manifest["circuits"]),
                     "shots": sum(int(c["shots"]) for c in manifest["circuits"]),

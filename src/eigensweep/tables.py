@@ -30,11 +30,19 @@ def format_cell(v) -> str:
     return str(v)
 
 
+#: Prefix of the per-target cost columns of the summary (``target_<name>_<metric>``).
+TARGET_PREFIX = "target_"
+
+
 def _columns(rows: list[dict], table: list[Column]) -> list[str]:
     names = [c.name for c in table]
     scan = list(dict.fromkeys(k for r in rows for k in r if k.startswith("scan_")))
     i = names.index("point") + 1 if "point" in names else 0
-    return names[:i] + scan + names[i:]
+    names = names[:i] + scan + names[i:]
+    target = list(dict.fromkeys(k for r in rows for k in r if k.startswith(TARGET_PREFIX)))
+    target = [k for k in target if k not in names]
+    j = names.index("key") if "key" in names else len(names)
+    return names[:j] + target + names[j:]
 
 
 def write_table(rows: list[dict], path: str | Path, table: list[Column]) -> Path:

@@ -29,8 +29,10 @@ __all__ = [
     "globally_folded_circuit",
     "state_circuit",
     "base_of_global_fold",
+    "CircuitCost",
     "CompiledCircuit",
     "append_on_physical",
+    "estimate_cost",
     "choose_region",
     "compile_for_target",
     "logical_bit_positions",
@@ -790,4 +792,81 @@ def native_gates_of(circuit: Circuit, target) -> Circuit:
         return circuit.copy()
     return to_native(
         [(g, g.qubits) for g in circuit.gates], circuit.n_qubits, target, optimize=False
+    )
+
+
+# ----------------------------------------------------------------------------- cost estimate
+
+
+@dataclass(frozen=True)
+class CircuitCost:
+    """Estimated cost of one compiled circuit on its target (see :func:`estimate_cost`)."""
+
+    two_qubit_count: int
+    depth: int
+    duration_ns: float
+    gate_fidelity: float
+    idle_fidelity: float
+
+    @property
+    def fidelity(self) -> float:
+        """Estimated circuit fidelity: gate part times idle part."""
+        return self.gate_fidelity * self.idle_fidelity
+
+    def to_dict(self) -> dict:
+        return {
+            "two_qubit_count": self.two_qubit_count,
+            "depth": self.depth,
+            "duration_ns": self.duration_ns,
+            "gate_fidelity": self.gate_fidelity,
+            "idle_fidelity": self.idle_fidelity,
+            "fidelity": self.fidelity,
+        }
+
+
+def estimate_cost(circuit: Circuit, target, qubits=None) -> CircuitCost:
+    """Two-qubit gates, depth, duration and an estimated fidelity of a native circuit.
+
+    Model (an estimate that can mislead; documented in ``config/README.md``): gates start as
+    soon as their qubits are free (ASAP); the duration is the critical path of the gate
+    durations. The fidelity is ``prod_gates (1 - error_g)`` times, for every used qubit,
+    ``exp(-t_idle / T1) exp(-t_idle / T_phi)`` with ``1/T_phi = max(0, 1/T2 - 1/(2 T1))``
+    (amplitude damping and pure dephasing while the qubit waits; Nielsen & Chuang, ch. 8),
+    where ``t_idle`` is the duration minus the qubit's busy time. Crosstalk, leakage,
+    coherent errors and readout are not in it.
+
+    Args:
+        circuit: native gates on the target's physical qubits.
+        target: the :class:`eigensweep.target.Target` (``None``: generic sized to the circuit).
+        qubits: physical qubits whose idling counts (default: every qubit a gate touches).
+    """
+    from eigensweep.target import generic_target
+
+    target = target or generic_target(circuit.n_qubits)
+    ready = [0.0] * circuit.n_qubits
+    busy = [0.0] * circuit.n_qubits
+    log_f = 0.0
+    for g in circuit.gates:
+        name = g.name if g.name in target.gates else None
+        dur = target.gate_duration_ns(name) if name else 0.0
+        err = target.gate_error(name) if name else 0.0
+        start = max(ready[q] for q in g.qubits)
+        for q in g.qubits:
+            ready[q] = start + dur
+            busy[q] += dur
+        log_f += math.log1p(-min(err, 1.0 - 1e-300))
+    duration = max(ready, default=0.0)
+    used = sorted({q for g in circuit.gates for q in g.qubits}) if qubits is None else qubits
+    log_idle = 0.0
+    for q in used:
+        t_idle_us = (duration - busy[q]) / 1000.0
+        t1, t2 = target.t1_us[q], target.t2_us[q]
+        rate_phi = max(0.0, 1.0 / t2 - 1.0 / (2.0 * t1))
+        log_idle -= t_idle_us * (1.0 / t1 + rate_phi)
+    return CircuitCost(
+        two_qubit_count=circuit.two_qubit_count,
+        depth=circuit.depth,
+        duration_ns=float(duration),
+        gate_fidelity=float(math.exp(log_f)),
+        idle_fidelity=float(math.exp(log_idle)),
     )

@@ -265,6 +265,7 @@ class DeviceJob:
     qasm2: dict[str, str] = field(repr=False)
     compiled: CompiledCircuit | None = field(default=None, repr=False)
     target: dict = field(default_factory=dict, repr=False)
+    cost: dict = field(default_factory=dict, repr=False)
     summary: str = field(default="", repr=False)
 
     @property
@@ -294,6 +295,7 @@ class DeviceJob:
             "measured_qubits": list(measured),
             "logical_bit_positions": [measured.index(p) for p in final],
             "routing_swaps": comp.swaps if comp else 0,
+            "cost": self.cost,
             "hamiltonian": {
                 "identity": self.identity,
                 "terms": self.terms,
@@ -503,6 +505,7 @@ def build_job(
     }
     if len(scales) > 2:  # through two points Richardson is the straight line: one label
         shots_needed["zne_richardson"] = int(math.ceil(base_needed * f_rich))
+    cost = _job_cost(circuit, ham, group_idx, group_info, compiled, target, target_se)
     job = DeviceJob(
         job_name=str(job_name),
         job_id=job_id,
@@ -526,9 +529,55 @@ def build_job(
         qasm2=q2,
         compiled=compiled,
         target=target.to_dict(),
+        cost=cost,
     )
     job.summary = _summary(job, one_norm, f_lin, f_rich)
     return job
+
+
+COST_MODEL = (
+    "estimate, not a guarantee: ASAP schedule of the native state preparation, duration = "
+    "critical path of gate durations, fidelity = prod(1 - gate error) x prod over used qubits "
+    "exp(-t_idle/T1 - t_idle/T_phi); shots from the group variances at the ideal state, "
+    "noisy shots divided by fidelity^2"
+)
+
+
+def _job_cost(circuit, ham, group_idx, group_info, compiled, target, target_se) -> dict:
+    """Cost before spending: native counts, duration, fidelity and shots (all estimates).
+
+    Shots for ``target_se``: the group variances ``Var_g`` at the circuit's ideal state
+    (:func:`eigensweep.qubit.grouping.shots_for_precision`, optimal allocation ``N = (sum_g
+    sigma_g)^2 / eps^2``), also written per group as ``groups[].std_ideal``; a noisy device
+    shrinks the signal by about the fidelity ``F``, so rescaling it back multiplies the
+    shots by ``1 / F^2`` (``shots_for_target_noisy``; a rule of thumb).
+    """
+    from eigensweep.device.compile import estimate_cost
+    from eigensweep.qubit.grouping import shots_for_precision
+    from eigensweep.qubit.statevector import simulate
+
+    est = estimate_cost(compiled.circuit, target, compiled.measured_qubits)
+    shots = None
+    try:
+        res = shots_for_precision(ham, target_se, state=simulate(circuit), groups=group_idx)
+    except TypeError:  # not a PauliExpansion: no variance estimate
+        res = None
+    if res is not None and res["group_std"] is not None:
+        for gi, std in zip(group_info, res["group_std"], strict=True):
+            gi["std_ideal"] = float(std)
+        shots = int(res["shots_variance"])
+    fid = est.fidelity
+    return {
+        "target": target.name,
+        **est.to_dict(),
+        "swaps": int(compiled.swaps),
+        "target_standard_error": float(target_se),
+        "shots_for_target": shots,
+        "shots_for_target_noisy": (
+            int(math.ceil(shots / fid**2)) if shots is not None and fid > 1e-12 else None
+        ),
+        "model": COST_MODEL,
+    }
 
 
 def bit_order_circuit(circuit: Circuit, measured: Sequence[int]) -> Circuit:
@@ -590,19 +639,20 @@ def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> st
         f"- state preparation (the optimized circuit, before basis change and folding): "
         f"{job.state_preparation['cnot_count']} CNOTs, depth {job.state_preparation['depth']}, "
         f"{job.state_preparation['n_gates']} gates",
+        *_cost_lines(job),
         f"- noise-scale factors (global folding): {', '.join(map(str, job.scale_factors))}",
         f"- total shots: {job.shots_total} (requested {job.shots_total_requested})",
         "",
         "## Circuits",
         "",
-        "| circuit | kind | group | basis | scale | terms | CNOTs | depth | gates | shots |",
+        "| circuit | kind | group | basis | scale | terms | two-qubit gates | depth | gates | shots |",
         "|---|---|---|---|---|---|---|---|---|---|",
     ]
     for r in job.records:
         grp = "" if r.group is None else str(r.group)
         lines.append(
             f"| {r.circuit_id} | {r.kind} | {grp} | {r.basis} | {r.scale_factor} | "
-            f"{len(r.pauli_terms)} | {r.cnot_count} | {r.depth} | {r.n_gates} | {r.shots} |"
+            f"{len(r.pauli_terms)} | {r.two_qubit_count} | {r.depth} | {r.n_gates} | {r.shots} |"
         )
     eps = job.target_standard_error
     lines += [
@@ -618,6 +668,31 @@ def _summary(job: DeviceJob, one_norm: float, f_lin: float, f_rich: float) -> st
         "",
     ]
     return "\n".join(lines)
+
+
+def _cost_lines(job: DeviceJob) -> list[str]:
+    """Job-summary lines of the target and the cost estimate (:func:`_job_cost`)."""
+    c = job.cost
+    if not c:
+        return []
+    comp = job.compiled
+    shots = c["shots_for_target"]
+    noisy = c["shots_for_target_noisy"]
+    eps = c["target_standard_error"] * 1e3
+    return [
+        f"- target: `{c['target']}` ({job.target.get('source', '')}; {job.target.get('date', '')})",
+        f"- layout (logical -> physical): {comp.layout if comp else []}; final permutation: "
+        f"{comp.final_permutation if comp else []}; routing swaps: {c['swaps']}",
+        f"- **estimated** cost of the state preparation on this target (native gates): "
+        f"{c['two_qubit_count']} two-qubit gates, depth {c['depth']}, duration "
+        f"{c['duration_ns'] / 1000.0:.4g} us, circuit fidelity {c['fidelity']:.3g} (gates "
+        f"{c['gate_fidelity']:.3g} x idle decay {c['idle_fidelity']:.3g})",
+        f"- shots for a {eps:.3g} mHa standard error from the group variances at the ideal "
+        f"state: {shots if shots is not None else 'n/a'}; with the signal shrunk by the "
+        f"estimated fidelity (x 1/F^2): {noisy if noisy is not None else 'n/a'}",
+        "- these are estimates from a simple model (no crosstalk, leakage, coherent errors or "
+        "drift), not guarantees: a real device can be much worse",
+    ]
 
 
 def _zne_shots_line(job: DeviceJob, f_lin: float, f_rich: float) -> str:
