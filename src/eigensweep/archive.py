@@ -184,7 +184,7 @@ def _workflow_members() -> dict[str, Path]:
 
 
 def _config_members(cfg_path: Path, cfg: dict) -> dict[str, Path]:
-    """The configuration (as ``config/config.yaml``) and the XYZ files it names."""
+    """The configuration (as ``config/config.yaml``) and the XYZ and target files it names."""
     out = {"config/config.yaml": cfg_path}
     for mol in cfg["molecules"]:
         if "xyz" in mol:
@@ -195,6 +195,16 @@ def _config_members(cfg_path: Path, cfg: dict) -> dict[str, Path]:
                     "give a path relative to the sweep folder so the archive can carry it"
                 )
             out[str(rel)] = Path(mol["xyz"])
+    for i, entry in enumerate(cfg.get("export", {}).get("targets", [])):
+        if entry == "generic" or not cfg["export"].get("select"):
+            continue
+        rel = PurePosixPath(entry)
+        if rel.is_absolute() or ".." in rel.parts:
+            raise EigensweepError(
+                f"export.targets[{i}]: {entry} is outside the sweep folder; give a path "
+                "relative to the sweep folder so the archive can carry the target file"
+            )
+        out[str(rel)] = Path(entry)
     return out
 
 
