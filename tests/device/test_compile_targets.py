@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import functools
 import math
-import sys
 from pathlib import Path
 
 import numpy as np
@@ -17,21 +16,19 @@ import openqasm3
 import pytest
 from openqasm3 import ast
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-
-from eigensweep.circuit import Circuit, circuit_from_rotations  # noqa: E402
-from eigensweep.device.compile import (  # noqa: E402
+from eigensweep.circuit import Circuit, circuit_from_rotations
+from eigensweep.device.compile import (
     _two_qubit_native,
     compile_for_target,
     one_qubit_native,
     peephole,
 )
-from eigensweep.device.manifest import build_job, write_job  # noqa: E402
-from eigensweep.device.reconcile import reconcile  # noqa: E402
-from eigensweep.qubit.pauli import PauliExpansion  # noqa: E402
-from eigensweep.target import load_target  # noqa: E402
+from eigensweep.device.manifest import build_job, write_job
+from eigensweep.device.reconcile import reconcile
+from eigensweep.qubit.pauli import PauliExpansion
+from eigensweep.target import load_target
 
-TARGETS = Path(__file__).resolve().parents[1] / "config" / "targets"
+TARGETS = Path(__file__).resolve().parents[2] / "config" / "targets"
 
 # ----------------------------------------------------------------------------- matrices
 # textbook definitions (Nielsen & Chuang, ch. 4, from memory); qubit 0 = most significant bit
@@ -349,8 +346,8 @@ def test_reconcile_maps_physical_bitstrings_back_to_logical_qubits(exported):
 def test_sweep_with_targets_reports_costs_and_reconciles(tmp_path, capsys):
     # H2 / STO-3G UCCSD on the generic and the chain target; the routed job reconciles to the
     # same noise-free energy within the bootstrap interval (PySCF FCI as the outside anchor)
+    from fixtures import run_plan
     from pyscf import fci, gto, scf
-    from study_helpers import run_plan
 
     from eigensweep.collect import collect
     from eigensweep.store import read_stage
