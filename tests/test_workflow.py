@@ -65,6 +65,27 @@ def test_first_run_writes_every_stage(sweep):
     assert (work / "results" / "sweep" / "plots" / "h2_energy.png").stat().st_size > 1000
 
 
+def test_every_study_file_is_a_declared_output(sweep):
+    # reference: Snakemake's own records: it keeps metadata (.snakemake/metadata/<base64 of the
+    # path>) for every declared output it produced; a table or plot written but not declared has
+    # none (then an archive or `snakemake --delete-all-output` would not know of it)
+    import base64
+
+    work, _ = sweep
+    recorded = {
+        base64.urlsafe_b64decode(p.name).decode()
+        for p in (work / ".snakemake" / "metadata").iterdir()
+        if p.is_file()
+    }
+    written = {
+        str(p.relative_to(work)) for p in (work / "results" / "sweep").rglob("*") if p.is_file()
+    }
+    undeclared = {
+        f for f in written if f not in recorded and not any(f.startswith(d + "/") for d in recorded)
+    }
+    assert written and not undeclared, sorted(undeclared)
+
+
 def test_energies_against_pyscf_fci(sweep):
     # reference: PySCF RHF + FCI computed at test time
     from pyscf import fci, gto, scf

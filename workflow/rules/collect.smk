@@ -15,11 +15,17 @@ rule collect:
             category="Summary",
         ),
         analysis=get_study_file("analysis.csv"),
+        seeds=report(
+            get_study_file("seeds.csv"),
+            caption="../report/summary.rst",
+            category="Summary",
+        ),
         readme=get_study_file("README.md"),
         plots=[
             report(f, caption="../report/plots.rst", category="Plots")
             for f in get_plot_files()
         ],
+        pdfs=get_plot_files("pdf"),
         histograms=[
             report(
                 directory(d),

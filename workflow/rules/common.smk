@@ -136,10 +136,11 @@ def get_study_file(name):
     return f"results/{PLAN.study}/{name}"
 
 
-def get_plot_files():
+def get_plot_files(ext="png"):
+    """The study's figures in one format (every figure is written as PNG and PDF)."""
     mols = list(dict.fromkeys(row["molecule"] for row in PLAN.rows))
     stems = figure_stems(mols, PLAN.exports)
-    return [get_study_file(f"plots/{stem}.png") for stem in stems]
+    return [get_study_file(f"plots/{stem}.{ext}") for stem in stems]
 
 
 def get_device_histogram_dirs():
