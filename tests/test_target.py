@@ -31,6 +31,7 @@ def _write(tmp_path: Path, data: dict, name: str = "t.yaml") -> Path:
     [
         (lambda d: d.pop("n_qubits"), "n_qubits"),
         (lambda d: d.update(name="a b"), "name"),
+        (lambda d: d.update(name="generic"), "name"),
         (lambda d: d.update(coupling=[[0, 12]]), "coupling[0]"),
         (lambda d: d.update(coupling=[[3, 3]]), "coupling[0]"),
         (lambda d: d.update(native_gates=["rz", "sx", "cx", "cz"]), "native_gates"),

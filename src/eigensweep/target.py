@@ -279,6 +279,8 @@ def target_from_dict(data: Any, source: str, path: str | None = None) -> Target:
 
         best = jsonschema.exceptions.best_match(errors)
         raise ConfigError(f"{source}: {_describe(best, '')}")
+    if data["name"] == GENERIC:
+        raise _fail(source, "name", f"{GENERIC!r} is the built-in target's name; choose another")
     n = int(data["n_qubits"])
     coupling = _coupling(data["coupling"], n, source)
     natives = _natives(data["native_gates"], data["gates"], source)

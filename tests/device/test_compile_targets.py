@@ -343,7 +343,7 @@ def test_reconcile_maps_physical_bitstrings_back_to_logical_qubits(exported):
 # ----------------------------------------------------------------------------- whole sweep
 
 
-def test_sweep_with_targets_reports_costs_and_reconciles(tmp_path, capsys):
+def test_sweep_with_targets_reports_costs_and_reconciles(tmp_path, capsys, monkeypatch):
     # H2 / STO-3G UCCSD on the generic and the chain target; the routed job reconciles to the
     # same noise-free energy within the bootstrap interval (PySCF FCI as the outside anchor)
     from fixtures import run_plan
@@ -363,8 +363,23 @@ def test_sweep_with_targets_reports_costs_and_reconciles(tmp_path, capsys):
         },
         "device": {"readout_error": [0.0, 0.0], "depolarizing_1q": 0.0, "depolarizing_2q": 0.0},
     }
+    import yaml
+
+    from eigensweep.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "c.yaml").write_text(yaml.safe_dump(raw))
     results = tmp_path / "results"
     cfg, plan = run_plan(raw, results)
+    capsys.readouterr()
+    assert main(["plan", "--config", "c.yaml"]) == 0
+    shown = capsys.readouterr().out
+    assert "device cost per exported point and target" in shown
+    lines = {ln.split()[2]: ln.split() for ln in shown.splitlines() if ln.startswith("h2 ")}
+    assert set(lines) >= {"generic", "chain12-demo"}
+    # H2 UCCSD: one double excitation, 8 JW strings of weight 4 -> 48 CNOTs all-to-all
+    # (textbook ladder 2(w - 1) each; singles vanish by symmetry)
+    assert lines["generic"][3] == "48"
     assert sorted(ex["target"] for ex in plan.exports) == ["chain12-demo", "generic"]
     mol = gto.M(atom="H 0 0 0; H 0 0 0.7414", basis="sto-3g", verbose=0)
     e_fci = fci.FCI(scf.RHF(mol).run()).kernel()[0]
