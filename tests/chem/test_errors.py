@@ -12,6 +12,7 @@ from pyscf import lib
 
 from eigensweep.chem import check_molecule, compute_integrals, read_xyz
 from eigensweep.chem import scf as scf_module
+from eigensweep.chem.space import plan_molecule
 from eigensweep.errors import ChemistryError, ConfigError
 
 WHERE = "molecules[1] (h2) point r=0.74"
@@ -165,9 +166,35 @@ def test_missing_xyz_file(tmp_path):
 
 
 def test_good_input_passes_and_auto_core_counts():
-    # reference: noble-gas core rule of eigensweep.chem.geometry (Li-Ne freeze 1s)
-    assert check_molecule(atoms=H2O, basis="sto-3g", charge=0, multiplicity=1) is None
-    check_molecule(
+    # references: PySCF's own electron and orbital counts of the same molecule (gto.M, computed
+    # here); the noble-gas core rule (Li-Ne freeze the 1s shell, textbook, from memory)
+    from pyscf import gto
+
+    mol = gto.M(atom=H2O, basis="sto-3g", verbose=0)
+    full = plan_molecule(
+        atoms=H2O,
+        basis="sto-3g",
+        charge=0,
+        multiplicity=1,
+        unit="angstrom",
+        frozen_core="none",
+        active=None,
+        where=WHERE,
+    )
+    assert (full.nelectron, full.nmo, full.n_frozen_core) == (mol.nelectron, mol.nao_nr(), 0)
+    assert full.nelecas == mol.nelec and full.ncas == mol.nao_nr()
+    frozen = plan_molecule(
+        atoms=H2O,
+        basis="sto-3g",
+        charge=0,
+        multiplicity=1,
+        unit="angstrom",
+        frozen_core="auto",
+        active={"electrons": 8, "orbitals": 6},
+        where=WHERE,
+    )
+    assert frozen.n_frozen_core == 1 and frozen.nelecas == (4, 4) and frozen.ncas == 6
+    check_molecule(  # the same checks, raising on the first problem
         atoms=H2O,
         basis="sto-3g",
         charge=0,
