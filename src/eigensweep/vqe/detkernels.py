@@ -36,6 +36,31 @@ import numpy as np
 from numba import njit, prange
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _turn(C, rs, cs, rd, cd, c, ss):  # pragma: no cover
+    """Rotate one determinant pair: ``(x, y) <- (c x - ss y, c y + ss x)``."""
+    x = C[rs, cs]
+    y = C[rd, cd]
+    C[rs, cs] = c * x - ss * y
+    C[rd, cd] = c * y + ss * x
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _grad_unturn(P, L, rs, cs, rd, cd, c, ss, undo):  # pragma: no cover
+    """``L[d] P[s] - L[s] P[d]`` of one pair (its adjoint-gradient term, unit sign) and, if
+    ``undo``, the inverse rotation of that pair in both ``P`` and ``L``."""
+    ps = P[rs, cs]
+    pd = P[rd, cd]
+    ls = L[rs, cs]
+    ld = L[rd, cd]
+    if undo:
+        P[rs, cs] = c * ps + ss * pd
+        P[rd, cd] = c * pd - ss * ps
+        L[rs, cs] = c * ls + ss * ld
+        L[rd, cd] = c * ld - ss * ls
+    return ld * ps - ls * pd
+
+
 @njit(parallel=True, cache=True, nogil=True)
 def _rotate(C, kind, src_a, dst_a, sgn_a, src_b, dst_b, sgn_b, c, s):  # pragma: no cover
     """In place on the CI matrix ``C``: rotate every pair of one gate by ``(cos, sin*sign)``."""
@@ -49,30 +74,21 @@ def _rotate(C, kind, src_a, dst_a, sgn_a, src_b, dst_b, sgn_b, c, s):  # pragma:
                 cs = src_b[j]
                 cd = dst_b[j]
                 ss = sa * sgn_b[j]
-                x = C[rs, cs]
-                y = C[rd, cd]
-                C[rs, cs] = c * x - ss * y
-                C[rd, cd] = c * y + ss * x
+                _turn(C, rs, cs, rd, cd, c, ss)
     elif kind == 1:
         for i in prange(src_a.size):
             rs = src_a[i]
             rd = dst_a[i]
             ss = s * sgn_a[i]
             for j in range(nb):
-                x = C[rs, j]
-                y = C[rd, j]
-                C[rs, j] = c * x - ss * y
-                C[rd, j] = c * y + ss * x
+                _turn(C, rs, j, rd, j, c, ss)
     else:
         for i in prange(na):
             for j in range(src_b.size):
                 cs = src_b[j]
                 cd = dst_b[j]
                 ss = s * sgn_b[j]
-                x = C[i, cs]
-                y = C[i, cd]
-                C[i, cs] = c * x - ss * y
-                C[i, cd] = c * y + ss * x
+                _turn(C, i, cs, i, cd, c, ss)
 
 
 @njit(parallel=True, cache=True, nogil=True)
@@ -105,80 +121,6 @@ def _expect(B, K, kind, src_a, dst_a, sgn_a, src_b, dst_b, sgn_b):  # pragma: no
                 cs = src_b[j]
                 cd = dst_b[j]
                 row += sgn_b[j] * (B[i, cd] * K[i, cs] - B[i, cs] * K[i, cd])
-            acc += row
-    return acc
-
-
-@njit(parallel=True, cache=True, nogil=True)
-def _unrotate_grad(
-    P, L, kind, src_a, dst_a, sgn_a, src_b, dst_b, sgn_b, c, s, undo
-):  # pragma: no cover
-    """``<L|G|P>`` (unit gate sign) and, if ``undo``, ``P, L <- exp(-phi G) P, L`` in place.
-
-    ``c = cos(phi)``, ``s = sin(phi) * gate sign``; the returned value is multiplied by the
-    gate sign by the caller.
-    """
-    na, nb = P.shape
-    acc = 0.0
-    if kind == 0:
-        for i in prange(src_a.size):
-            rs = src_a[i]
-            rd = dst_a[i]
-            sa = sgn_a[i]
-            row = 0.0
-            for j in range(src_b.size):
-                cs = src_b[j]
-                cd = dst_b[j]
-                sg = sa * sgn_b[j]
-                ps = P[rs, cs]
-                pd = P[rd, cd]
-                ls = L[rs, cs]
-                ld = L[rd, cd]
-                row += sg * (ld * ps - ls * pd)
-                if undo:
-                    ss = s * sg
-                    P[rs, cs] = c * ps + ss * pd
-                    P[rd, cd] = c * pd - ss * ps
-                    L[rs, cs] = c * ls + ss * ld
-                    L[rd, cd] = c * ld - ss * ls
-            acc += row
-    elif kind == 1:
-        for i in prange(src_a.size):
-            rs = src_a[i]
-            rd = dst_a[i]
-            sg = sgn_a[i]
-            ss = s * sg
-            row = 0.0
-            for j in range(nb):
-                ps = P[rs, j]
-                pd = P[rd, j]
-                ls = L[rs, j]
-                ld = L[rd, j]
-                row += ld * ps - ls * pd
-                if undo:
-                    P[rs, j] = c * ps + ss * pd
-                    P[rd, j] = c * pd - ss * ps
-                    L[rs, j] = c * ls + ss * ld
-                    L[rd, j] = c * ld - ss * ls
-            acc += sg * row
-    else:
-        for i in prange(na):
-            row = 0.0
-            for j in range(src_b.size):
-                cs = src_b[j]
-                cd = dst_b[j]
-                sg = sgn_b[j]
-                ss = s * sg
-                ps = P[i, cs]
-                pd = P[i, cd]
-                ls = L[i, cs]
-                ld = L[i, cd]
-                row += sg * (ld * ps - ls * pd)
-                if undo:
-                    P[i, cs] = c * ps + ss * pd
-                    P[i, cd] = c * pd - ss * ps
-                    L[i, cs] = c * ls + ss * ld
-                    L[i, cd] = c * ld - ss * ls
             acc += row
     return acc
 
@@ -219,10 +161,7 @@ def _fwd_ab(C, a0, a1, g0, g1, g_b, c_k, s_k, m_off, m_src, m_dst, m_sign):  # p
                 cs = m_src[j]
                 cd = m_dst[j]
                 ss = sk * m_sign[j]
-                x = C[rs, cs]
-                y = C[rd, cd]
-                C[rs, cs] = c * x - ss * y
-                C[rd, cd] = c * y + ss * x
+                _turn(C, rs, cs, rd, cd, c, ss)
 
 
 @njit(parallel=True, cache=True, nogil=True)
@@ -238,10 +177,7 @@ def _fwd_a(C, g0, g1, g_a, c_k, s_k, m_off, m_src, m_dst, m_sign):  # pragma: no
                 rd = m_dst[i]
                 ss = s_k[k] * m_sign[i]
                 for j in range(j0, j1):
-                    x = C[rs, j]
-                    y = C[rd, j]
-                    C[rs, j] = c * x - ss * y
-                    C[rd, j] = c * y + ss * x
+                    _turn(C, rs, j, rd, j, c, ss)
 
 
 @njit(parallel=True, cache=True, nogil=True)
@@ -253,10 +189,7 @@ def _fwd_b(C, g0, g1, g_b, c_k, s_k, m_off, m_src, m_dst, m_sign):  # pragma: no
                 cs = m_src[j]
                 cd = m_dst[j]
                 ss = s_k[k] * m_sign[j]
-                x = C[i, cs]
-                y = C[i, cd]
-                C[i, cs] = c * x - ss * y
-                C[i, cd] = c * y + ss * x
+                _turn(C, i, cs, i, cd, c, ss)
 
 
 @njit(parallel=True, cache=True, nogil=True)
@@ -278,17 +211,8 @@ def _bwd_ab(P, L, a0, a1, g0, g1, g_b, c_k, s_k, m_off, m_src, m_dst, m_sign):  
                     cs = m_src[j]
                     cd = m_dst[j]
                     sb = m_sign[j]
-                    ps = P[rs, cs]
-                    pd = P[rd, cd]
-                    ls = L[rs, cs]
-                    ld = L[rd, cd]
-                    row += sb * (ld * ps - ls * pd)
-                    if undo:
-                        ss = sk * sb
-                        P[rs, cs] = c * ps + ss * pd
-                        P[rd, cd] = c * pd - ss * ps
-                        L[rs, cs] = c * ls + ss * ld
-                        L[rd, cd] = c * ld - ss * ls
+                    ss = sk * sb
+                    row += sb * _grad_unturn(P, L, rs, cs, rd, cd, c, ss, undo)
                 acc[t, k - g0] += sa * row
     return acc.sum(axis=0)
 
@@ -312,16 +236,7 @@ def _bwd_a(P, L, g0, g1, g_a, c_k, s_k, m_off, m_src, m_dst, m_sign):  # pragma:
                 ss = s_k[k] * sg
                 row = 0.0
                 for j in range(j0, j1):
-                    ps = P[rs, j]
-                    pd = P[rd, j]
-                    ls = L[rs, j]
-                    ld = L[rd, j]
-                    row += ld * ps - ls * pd
-                    if undo:
-                        P[rs, j] = c * ps + ss * pd
-                        P[rd, j] = c * pd - ss * ps
-                        L[rs, j] = c * ls + ss * ld
-                        L[rd, j] = c * ld - ss * ls
+                    row += _grad_unturn(P, L, rs, j, rd, j, c, ss, undo)
                 tot += sg * row
             acc[t, k - g0] = tot
     return acc.sum(axis=0)
@@ -343,16 +258,7 @@ def _bwd_b(P, L, g0, g1, g_b, c_k, s_k, m_off, m_src, m_dst, m_sign):  # pragma:
                     cd = m_dst[j]
                     sg = m_sign[j]
                     ss = s_k[k] * sg
-                    ps = P[i, cs]
-                    pd = P[i, cd]
-                    ls = L[i, cs]
-                    ld = L[i, cd]
-                    row += sg * (ld * ps - ls * pd)
-                    if undo:
-                        P[i, cs] = c * ps + ss * pd
-                        P[i, cd] = c * pd - ss * ps
-                        L[i, cs] = c * ls + ss * ld
-                        L[i, cd] = c * ld - ss * ls
+                    row += sg * _grad_unturn(P, L, i, cs, i, cd, c, ss, undo)
                 acc[t, k - g0] += row
     return acc.sum(axis=0)
 
