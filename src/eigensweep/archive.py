@@ -66,6 +66,7 @@ GENERATED_TABLES = (
     "device_summary.csv",
     "analysis.csv",
     "seeds.csv",
+    "states.csv",
     "README.md",
 )
 _ORCID = re.compile(r"\A\d{4}-\d{4}-\d{4}-\d{3}[\dX]\Z")

@@ -63,6 +63,12 @@ SUMMARY_COLUMNS: list[Column] = [
     _c("ansatz", "", "ansatz label (name and options that differ from defaults)"),
     _c("optimizer", "", "optimizer label"),
     _c("estimator", "", "energy estimator label"),
+    _c(
+        "states",
+        "",
+        "excited-state method label (`methods.states`); the row's energies and properties are "
+        "those of its ground state (excited states: `states.csv`)",
+    ),
     _c("seed", "", "base random seed of the run"),
     _c("n_params", "", "variational parameters"),
     _c("energy_eh", "Eh", "VQE energy as estimated (hartree)"),
@@ -246,7 +252,7 @@ def summary_rows(rows: list[dict], results: str | Path = "results") -> list[dict
             "n_qwc_groups": tap.get("n_qwc_groups", ""),
             "shots_one_norm_bound": tap.get("shots_one_norm_bound", ""),
             "shots_variance_at_reference": tap.get("shots_variance_at_reference") or "",
-            **{k: row.get(k, "") for k in ("ansatz", "optimizer", "estimator", "seed")},
+            **{k: row.get(k, "") for k in ("ansatz", "optimizer", "estimator", "states", "seed")},
             "n_params": m["n_params"],
             "energy_eh": energy,
             "energy_stderr_eh": stderr,
@@ -370,6 +376,171 @@ def seed_rows(summary: list[dict], accuracy_mha: float = 1.6) -> list[dict]:
     return out
 
 
+#: ``states.csv``: one row per optimize job and state (state 0 = ground).
+STATE_COLUMNS: list[Column] = [
+    *[
+        c
+        for c in SUMMARY_COLUMNS
+        if c.name
+        in (
+            "molecule",
+            "sweep",
+            "point",
+            "basis",
+            "mapping",
+            "tapered",
+            "ansatz",
+            "optimizer",
+            "estimator",
+            "states",
+        )
+    ],
+    _c("state", "", "state index, 0 = ground, ascending energy"),
+    _c("spin", "", "`requested` (states of the molecule's multiplicity) or `all` (S_z sector)"),
+    _c("energy_eh", "Eh", "the state's energy <H> (spin penalty not included)"),
+    _c(
+        "energy_exact_eh",
+        "Eh",
+        "the matching exact root: k-th CASCI root of the requested spin (spin `all`: of the "
+        "whole S_z sector), stored by the integrals stage",
+    ),
+    _c("error_mha", "mHa", "`energy_eh` minus `energy_exact_eh`"),
+    _c(
+        "below_exact",
+        "",
+        "True when `energy_eh` lies below its exact root by more than 1e-6 Eh",
+    ),
+    _c("s2", "", "<S^2> of the state"),
+    _c("s2_exact", "", "<S^2> of the matching exact root"),
+    _c("n_electrons", "", "<N> of the state"),
+    _c("dipole_au", "e*bohr", "|dipole| of the state (1-RDM, core and nuclear parts)"),
+    _c("dipole_exact_au", "e*bohr", "|dipole| of the matching exact root (PySCF density)"),
+    _c("excitation_energy_eh", "Eh", "`energy_eh` minus the energy of state 0 of this method"),
+    _c(
+        "transition_dipole_au",
+        "e*bohr",
+        "|<0|mu|k>| from state 0 (VQD/SSVQE: transition density of the two states; qEOM: "
+        "its commutator amplitude)",
+    ),
+    _c("transition_dipole_exact_au", "e*bohr", "|<0|mu|k>| of the exact roots (PySCF)"),
+    _c("oscillator_strength", "", "f = (2/3) dE |<0|mu|k>|^2 (atomic units)"),
+    _c("oscillator_strength_exact", "", "f of the exact roots"),
+    _c("natural_occupations", "", "natural-orbital occupations of the state, descending"),
+    _c("key", "", "optimize stage key: `results/optimize/<key>.h5`"),
+    _c("notes", "", "remarks, e.g. lower states of another spin left out by spin `requested`"),
+]
+
+
+def _scan_columns(row: dict) -> dict:
+    """Scan columns of a plan row as the tables name them, plus the figures' axis hints."""
+    units = row.get("axis_units", {})
+    out = {
+        scan_column(k[5:], units.get(k[5:], "none")): v
+        for k, v in row.items()
+        if k.startswith("scan_")
+    }
+    scans = [k[5:] for k in row if k.startswith("scan_")]
+    if len(scans) == 1:
+        out["_scan_var"], out["_scan_unit"] = scans[0], units.get(scans[0], "none")
+    return out
+
+
+def _exact_roots(int_arrays: dict, spin: str) -> tuple[np.ndarray, ...]:
+    name = "exact_sz_roots" if spin == "all" else "exact_roots"
+    get = lambda suffix, shape: np.asarray(  # noqa: E731
+        int_arrays.get(name + suffix, np.zeros(shape)), dtype=float
+    )
+    return (
+        get("", 0),
+        get("_spin_square", 0),
+        get("_dipole", (0, 3)),
+        get("_transition_dipole", (0, 3)),
+    )
+
+
+def _other_spin_note(int_arrays: dict, spin: str, energy_exact: float, s2_exact: float) -> str:
+    """With spin `requested`: states of another spin below this root in the S_z sector."""
+    if spin == "all" or not math.isfinite(energy_exact):
+        return ""
+    e_sz, s2_sz, _, _ = _exact_roots(int_arrays, "all")
+    lower = [
+        (e, s)
+        for e, s in zip(e_sz, s2_sz, strict=True)
+        if e < energy_exact - 1e-8 and abs(s - s2_exact) > 1e-3
+    ]
+    if not lower:
+        return ""
+    shown = ", ".join(f"<S^2>={s:.2f} at {e:.6f} Eh" for e, s in lower[:3])
+    return (
+        f"spin requested: the S_z sector holds lower states of another spin ({shown}); "
+        "methods.states spin: all reports them"
+    )
+
+
+def state_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
+    """``states.csv`` rows: every state of every optimize job (ground jobs give state 0)."""
+    from .chem.properties import oscillator_strength
+
+    results = Path(results)
+    out = []
+    for row in rows:
+        ints = read_stage(results / "integrals" / f"{row['key_integrals']}.h5", stage="integrals")
+        opt = read_stage(results / "optimize" / f"{row['key']}.h5", stage="optimize")
+        a = opt.arrays
+        spin = opt.meta.get("states_spin", "requested")
+        if "states/energy" in a:
+            energies = np.asarray(a["states/energy"], float)
+            s2 = np.asarray(a["states/spin_square"], float)
+            n_el = np.asarray(a["states/n_electrons"], float)
+            dip = np.asarray(a["states/dipole"], float).reshape(-1, 3)
+            tdm = np.asarray(a["states/transition_dipole"], float).reshape(-1, 3)
+            noon = np.asarray(a["states/natural_occupations"], float).reshape(len(energies), -1)
+        else:
+            energies = np.array([_num(opt.meta.get("energy"))])
+            s2 = np.array([_num(opt.meta.get("spin_square"))])
+            n_el = np.array([_num(opt.meta.get("n_electrons"))])
+            dip = np.asarray(a.get("dipole", np.full(3, np.nan)), float).reshape(1, 3)
+            tdm = np.zeros((1, 3))
+            noon = np.asarray(a.get("natural_occupations", np.zeros(0)), float).reshape(1, -1)
+        e_ex, s2_ex, dip_ex, tdm_ex = _exact_roots(ints.arrays, spin)
+        for k, e in enumerate(energies):
+            has = k < len(e_ex)
+            ex = float(e_ex[k]) if has else math.nan
+            de, de_ex = e - energies[0], (ex - e_ex[0]) if has else math.nan
+            out.append(
+                {
+                    **{c.name: row.get(c.name, "") for c in STATE_COLUMNS[:10]},
+                    "sweep": row.get("sweep", "main"),
+                    "state": k,
+                    "spin": spin,
+                    "energy_eh": float(e),
+                    "energy_exact_eh": ex,
+                    "error_mha": (e - ex) * 1000.0,
+                    "below_exact": _flag_below_exact(float(e), 0.0, ex),
+                    "s2": float(s2[k]),
+                    "s2_exact": float(s2_ex[k]) if has else math.nan,
+                    "n_electrons": float(n_el[k]),
+                    "dipole_au": _norm(dip[k]),
+                    "dipole_exact_au": _norm(dip_ex[k]) if has else math.nan,
+                    "excitation_energy_eh": de,
+                    "transition_dipole_au": _norm(tdm[k]) if k else 0.0,
+                    "transition_dipole_exact_au": _norm(tdm_ex[k]) if has and k else 0.0,
+                    "oscillator_strength": oscillator_strength(de, tdm[k]) if k else 0.0,
+                    "oscillator_strength_exact": (
+                        oscillator_strength(de_ex, tdm_ex[k]) if has and k else 0.0
+                    ),
+                    "natural_occupations": " ".join(f"{x:.6f}" for x in noon[k]),
+                    "key": row["key"],
+                    "notes": _other_spin_note(
+                        ints.arrays, spin, ex, float(s2_ex[k]) if has else 0.0
+                    ),
+                    **_scan_columns(row),
+                    "converged": opt.meta.get("converged", ""),  # figures ring the others
+                }
+            )
+    return out
+
+
 def write_summary(rows: list[dict], path: str | Path) -> Path:
     """Write the summary CSV atomically."""
     return write_table(rows, path, SUMMARY_COLUMNS)
@@ -393,6 +564,7 @@ def readme_text(study: str) -> str:
         "- `device_summary.csv`: one row per reconciled device estimate.",
         "- `analysis.csv`: fitted curve properties per molecule and method (see below).",
         "- `seeds.csv`: median and spread over seeds per molecule, point and methods.",
+        "- `states.csv`: one row per optimize job and state (excited-state methods).",
         "- `plots/`: figures as PDF and PNG (300 dpi).",
         "",
         "Empty cells are missing values; the row's `notes` says why. Scan columns are",
@@ -413,6 +585,7 @@ def readme_text(study: str) -> str:
         ("device_summary.csv", DEVICE_COLUMNS),
         ("analysis.csv", ANALYSIS_COLUMNS),
         ("seeds.csv", SEED_COLUMNS),
+        ("states.csv", STATE_COLUMNS),
     ):
         lines += [f"## {title}", "", "| column | unit | meaning |", "|---|---|---|"]
         lines += [f"| `{c.name}` | {c.unit} | {c.description} |" for c in table]
@@ -451,6 +624,8 @@ def collect(
     analysis, warnings = analyse_study(summary)
     files.append(write_analysis(analysis, folder / "analysis.csv"))
     files.append(write_table(seed_rows(summary, accuracy_mha), folder / "seeds.csv", SEED_COLUMNS))
+    states = state_rows(rows, results)
+    files.append(write_table(states, folder / "states.csv", STATE_COLUMNS))
     readme = folder / "README.md"
     with atomic_path(readme) as tmp:
         tmp.write_text(readme_text(study), encoding="utf-8", newline="\n")
@@ -464,6 +639,7 @@ def collect(
         folder / "plots",
         accuracy_mha,
         seeds=seed_rows(summary, accuracy_mha),
+        states=states,
     )
     return files
 

@@ -63,7 +63,7 @@ SWEEP_KEY = "sweep"
 #: "billion laughs" alias bomb is refused after reading this many.
 MAX_CONFIG_VALUES = 1_000_000
 
-METHOD_KINDS = ("ansatz", "optimizer", "estimator")
+METHOD_KINDS = ("ansatz", "optimizer", "estimator", "states")
 
 #: Optimizers that need exact (adjoint) gradients, hence the ``exact`` estimator.
 GRADIENT_METHODS = ("lbfgs", "bfgs")
@@ -366,6 +366,7 @@ def check_combination(
     *,
     optimizer: dict[str, Any] | None = None,
     estimator: dict[str, Any] | None = None,
+    states: dict[str, Any] | None = None,
 ) -> None:
     """Raise :class:`ConfigError` if the optimize stage cannot run this combination.
 
@@ -394,7 +395,9 @@ def check_combination(
 
     Independent of taper and mapping (checked when ``optimizer``/``estimator`` are given):
     the gradient optimizers ``lbfgs``/``bfgs`` and the ``adapt`` ansatz need the ``exact``
-    estimator.
+    estimator. Excited-state methods (``states`` other than ``ground``) run in determinant
+    space: ``uccsd`` or ``kupccgsd``, ``taper: false``, the ``exact`` estimator, and for
+    ``vqd``/``ssvqe`` a gradient optimizer (:mod:`eigensweep.vqe.excited`).
     """
     a_cfg = complete_method("ansatz", ansatz)
     if not isinstance(taper, bool) and type(taper).__name__ != "bool_":
@@ -408,6 +411,28 @@ def check_combination(
     o_name = None if optimizer is None else complete_method("optimizer", optimizer)["name"]
     e_name = None if estimator is None else complete_method("estimator", estimator)["name"]
     _check_estimator(a_cfg["name"], o_name, e_name)
+    if states is not None:
+        _check_states(
+            complete_method("states", states)["name"], a_cfg["name"], taper, o_name, e_name
+        )
+
+
+def _check_states(
+    states: str, ansatz: str, taper: bool, optimizer: str | None, estimator: str | None
+) -> None:
+    if states == "ground":
+        return
+    if ansatz not in ("uccsd", "kupccgsd") or taper:
+        raise ConfigError(
+            f"states.name: {states!r} runs in determinant space: use ansatz uccsd or kupccgsd "
+            "with methods.taper false"
+        )
+    if estimator not in (None, "exact"):
+        raise ConfigError(f"states.name: {states!r} needs the exact estimator")
+    if states != "qeom" and optimizer not in (None, *GRADIENT_METHODS):
+        raise ConfigError(
+            f"states.name: {states!r} needs a gradient optimizer: {', '.join(GRADIENT_METHODS)}"
+        )
 
 
 def _check_ansatz_encoding(ansatz: dict[str, Any], taper: bool, mapping: str) -> None:

@@ -92,7 +92,10 @@ REFERENCE_LINES = {
 COINCIDE_EH = 1e-6
 
 #: Axes that tell methods apart, in the order they appear in a series label.
-SERIES_KEYS = ("sweep", "ansatz", "optimizer", "estimator", "mapping", "tapered")
+#: 1 hartree in eV (CODATA 2018: 27.211 386 245 988).
+HARTREE_EV = 27.211386245988
+
+SERIES_KEYS = ("sweep", "ansatz", "optimizer", "estimator", "mapping", "tapered", "states")
 
 
 def pretty(value) -> str:
@@ -600,6 +603,71 @@ def device_figures(
     return files
 
 
+def plot_states(rows: list[dict], stem: Path) -> list[Path]:
+    """Every state's energy along the scan (one marker per method and state) over the exact
+    roots (lines; the requested spin solid, the whole S_z sector dotted when asked for)."""
+    plt = _plt()
+    col, xlabel = axis_of(rows)
+    points = list(dict.fromkeys(r["point"] for r in rows))
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    for spin, style in (("requested", "-"), ("all", ":")):
+        sel = [r for r in rows if r["spin"] == spin]
+        for k in sorted({int(r["state"]) for r in sel}):
+            first = {r["point"]: r for r in reversed(sel) if int(r["state"]) == k}
+            pts = sorted(first, key=lambda p: _x([first[p]], col, points)[0])
+            x = np.array([_x([first[p]], col, points)[0] for p in pts])
+            y = np.array([_f(first[p]["energy_exact_eh"]) for p in pts])
+            lab = f"exact roots ({'requested spin' if spin == 'requested' else 'S_z sector'})"
+            ax.plot(x, y, color="0.4", ls=style, lw=1.0, label=lab if k == 0 else None)
+    _method_series(ax, rows, col, points, lambda r: _f(r["energy_eh"]))
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel("energy (Eh)")
+    ax.set_title(_title(rows, "all states and the exact roots"), fontsize=10)
+    _legend_outside(ax)
+    return save(fig, stem)
+
+
+def plot_spectrum(rows: list[dict], stem: Path) -> list[Path]:
+    """Stick spectrum at the molecule's first scan point: oscillator strength against
+    excitation energy (eV) for every method with excited states, and the exact roots."""
+    plt = _plt()
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    point = rows[0]["point"] if rows else ""
+    sel = [r for r in rows if r["point"] == point and int(r["state"]) > 0]
+    series, labels, _ = series_of(sel) if sel else ([], {}, "")
+    for i, s in enumerate(series):
+        mine = [r for r in sel if tuple(str(r.get(k, "")) for k in SERIES_KEYS) == s]
+        x = np.array([_f(r["excitation_energy_eh"]) for r in mine]) * HARTREE_EV
+        f = np.array([_f(r["oscillator_strength"]) for r in mine])
+        ax.vlines(x, 0, f, color=PALETTE[i % len(PALETTE)], lw=2.0, label=labels[s])
+        ax.plot(x, f, MARKERS[i % len(MARKERS)], color=PALETTE[i % len(PALETTE)], mfc="none")
+    ex = {}
+    for r in sel:
+        ex[(r["spin"], int(r["state"]))] = r
+    if ex:
+        xs = np.array([_exact_de(rows, r) for r in ex.values()]) * HARTREE_EV
+        fs = np.array([_f(r["oscillator_strength_exact"]) for r in ex.values()])
+        ax.vlines(xs, 0, fs, color="k", lw=0.8, ls="--", label="exact roots (PySCF)")
+    else:
+        ax.text(0.5, 0.5, "no excited states in this study", ha="center", transform=ax.transAxes)
+    ax.set_xlabel("excitation energy (eV)")
+    ax.set_ylabel("oscillator strength f")
+    what = f"stick spectrum at {point}" if point else "stick spectrum"
+    ax.set_title(_title(rows, what) if rows else what, fontsize=10)
+    _legend_outside(ax)
+    return save(fig, stem)
+
+
+def _exact_de(rows: list[dict], r: dict) -> float:
+    """Exact excitation energy of a state row: its exact root minus the exact root 0."""
+    ground = [
+        q
+        for q in rows
+        if q["point"] == r["point"] and q["spin"] == r["spin"] and int(q["state"]) == 0
+    ]
+    return _f(r["energy_exact_eh"]) - _f(ground[0]["energy_exact_eh"]) if ground else math.nan
+
+
 def study_figures(
     summary: list[dict],
     exports: list[dict],
@@ -607,15 +675,20 @@ def study_figures(
     folder: Path,
     accuracy_mha: float = 1.6,
     seeds: list[dict] | None = None,
+    states: list[dict] | None = None,
 ) -> list[Path]:
     """All figures of a study; returns the written files. ``seeds``: the study's
-    ``seeds.csv`` rows (:func:`eigensweep.collect.seed_rows`), passed in by collect."""
+    ``seeds.csv`` rows (:func:`eigensweep.collect.seed_rows`), ``states`` its ``states.csv``
+    rows (:func:`eigensweep.collect.state_rows`), passed in by collect."""
     files: list[Path] = []
     for mol in dict.fromkeys(r["molecule"] for r in summary):
         rows = [r for r in summary if r["molecule"] == mol]
         files += plot_energy(rows, folder / f"{mol}_energy")
         files += plot_error(rows, folder / f"{mol}_error", accuracy_mha)
         files += plot_convergence(rows, folder / f"{mol}_convergence", Path(results), accuracy_mha)
+        mol_states = [r for r in states or [] if r["molecule"] == mol]
+        files += plot_states(mol_states, folder / f"{mol}_states")
+        files += plot_spectrum(mol_states, folder / f"{mol}_spectrum")
     if summary:
         files += plot_resources(summary, folder / "resources")
     files += plot_shots_error(seeds or [], folder / "shots_error", accuracy_mha)

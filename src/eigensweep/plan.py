@@ -227,7 +227,7 @@ def build_plan(
             int_parents = {"guess": prev_int} if int_params["neighbour_start"] else {}
             k_int = add("integrals", int_params, int_parents)
             prev_int = k_int
-            for ic, seed, (mapping, taper, ansatz, optimizer, estimator) in (
+            for ic, seed, (mapping, taper, ansatz, optimizer, estimator, states) in (
                 (ic, seed, combo) for ic, combo in enumerate(combos) for seed in sweep.seeds
             ):
                 k_ham = add("hamiltonian", {"mapping": mapping}, {"integrals": k_int})
@@ -238,8 +238,15 @@ def build_plan(
                     "estimator": estimator,
                     "seed": seed,
                     "warm_start": bool(sweep.warm_start and (ic, seed) in prev_opt),
+                    "states": states,
                 }
                 opt_parents = {"taper": k_tap, "integrals": k_int}
+                if states["name"] != "ground":
+                    _check_nroots(states, refs, where)
+                    # excited states build on the ground-state job of the same methods
+                    ground = {**opt_params, "warm_start": False, "states": {"name": "ground"}}
+                    opt_parents["ground"] = add("optimize", ground, dict(opt_parents))
+                    opt_params["warm_start"] = False
                 if opt_params["warm_start"]:
                     opt_parents["warm"] = prev_opt[(ic, seed)]
                 k_opt = add("optimize", opt_params, opt_parents)
@@ -260,6 +267,7 @@ def build_plan(
                         "ansatz": method_label("ansatz", ansatz),
                         "optimizer": method_label("optimizer", optimizer),
                         "estimator": method_label("estimator", estimator),
+                        "states": method_label("states", states),
                         "seed": seed,
                         "key": k_opt,
                         "key_integrals": k_int,
@@ -275,6 +283,16 @@ def build_plan(
         study=study_name(cfg, config_path),
         skipped=[line for sw in sweeps for line in sw.skipped],
     )
+
+
+def _check_nroots(states: dict, refs: dict, where: str) -> None:
+    """Excited-state methods compare with stored exact roots: enough must be stored."""
+    if states["n_states"] > refs["nroots"]:
+        raise ConfigError(
+            f"{where}: references.nroots: {refs['nroots']} exact roots are stored but "
+            f"states {states['name']} seeks {states['n_states']}; set references.nroots to at "
+            f"least {states['n_states']}"
+        )
 
 
 def _row_matches(sel: dict, row: dict) -> bool:

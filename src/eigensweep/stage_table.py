@@ -41,7 +41,7 @@ class StageSpec:
             ``action(node, inputs, output, progress=None)``.
         parents: parent role -> the stage whose file fills it (:data:`RETURNED` for imported
             device counts ``results/returned/<key>.json``). Optional roles (``guess``, ``warm``,
-            ``counts``) appear only in the nodes that need them.
+            ``ground``, ``counts``) appear only in the nodes that need them.
         outputs: what one job writes besides its stage file: ``"jobs"`` is the device-job folder
             ``results/<name>/<key>/``.
         description: one line for help texts.
@@ -89,7 +89,7 @@ STAGES: tuple[StageSpec, ...] = (
         "optimize",
         5,
         "run_optimize",
-        {"taper": "taper", "integrals": "integrals", "warm": "optimize"},
+        {"taper": "taper", "integrals": "integrals", "warm": "optimize", "ground": "optimize"},
         ("stage",),
         "variational optimization of one ansatz x optimizer x estimator",
     ),

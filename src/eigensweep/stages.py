@@ -224,11 +224,18 @@ def load_diagonal_symmetries(sd):
 def run_optimize(
     node: Node, inputs: dict[str, str], output: str, progress: Progress = None
 ) -> None:
-    """Variational optimization of one ansatz x optimizer x estimator on one qubit problem."""
+    """Variational optimization of one ansatz x optimizer x estimator on one qubit problem.
+
+    With an excited-state method (``states`` other than ``ground``) the ground state is the
+    ``ground`` parent's stored result (this file repeats it at the top level) and the states
+    go to ``states/*`` (:func:`_run_states`)."""
     from .vqe import run_optimize as optimize_kernel
     from .vqe.reference import ExactReference
 
     p = node.params
+    if "ground" in inputs:
+        _run_states(node, inputs, output, progress)
+        return
     ints = load_integrals(inputs["integrals"])
     tap, tap_sd = load_taper(inputs["taper"])
     init = None
@@ -288,6 +295,71 @@ def run_optimize(
         },
         wall_s=t.seconds,
     )
+
+
+#: ``states/*`` arrays of an optimize file with an excited-state method, and their units.
+STATE_ARRAYS = {
+    "energy": "hartree",
+    "spin_square": "1",
+    "n_electrons": "1",
+    "dipole": "e*bohr",
+    "transition_dipole": "e*bohr",
+    "evaluations": "1",
+}
+
+
+def _run_states(node: Node, inputs: dict[str, str], output: str, progress: Progress) -> None:
+    """Excited states on top of the ``ground`` parent's optimized ground state."""
+    from .vqe.engine import run_states
+
+    p = node.params
+    ints = load_integrals(inputs["integrals"])
+    ground = read_stage(inputs["ground"], stage="optimize")
+    with Timer() as t:
+        found = run_states(
+            h1e=ints.h1e,
+            eri=ints.eri,
+            e_core=ints.e_core,
+            norb=ints.norb,
+            nelec=tuple(ints.nelec),
+            ansatz=p["ansatz"],
+            optimizer=p["optimizer"],
+            states=p["states"],
+            ground_params=ground.arrays["params"],
+            seed=p["seed"],
+            dipole_parts=(ints.dipole_active, ints.dipole_core, ints.dipole_nuclear),
+        )
+    arrays = dict(ground.arrays)
+    for name in STATE_ARRAYS:
+        arrays[f"states/{name}"] = np.array([st[name] for st in found], dtype=float)
+    width = max((len(st["natural_occupations"]) for st in found), default=0)
+    arrays["states/natural_occupations"] = np.array(
+        [
+            np.pad(st["natural_occupations"], (0, width - len(st["natural_occupations"])))
+            for st in found
+        ]
+    ).reshape(len(found), width)
+    meta = {
+        **ground.meta,
+        "states_method": p["states"]["name"],
+        "states_spin": p["states"]["spin"],
+        "n_states_found": len(found),
+        "states_params": [st["params"].tolist() for st in found],
+    }
+    _say(
+        progress,
+        f"optimize {node.key}: {p['states']['name']} "
+        + ", ".join(f"{st['energy']:.6f}" for st in found)
+        + " Eh",
+    )
+    units = {
+        "trace_energy": "hartree",
+        "trace_grad_norm": "hartree/radian",
+        "params": "radian",
+        "dipole": "e*bohr",
+        **{f"states/{k}": u for k, u in STATE_ARRAYS.items()},
+    }
+    _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
 def _export_problem(int_params: dict, opt_params: dict) -> dict:

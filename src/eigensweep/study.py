@@ -24,7 +24,7 @@ from typing import Any
 from .errors import ConfigError
 
 #: Method axes in the order they form a combination.
-AXES = ("mapping", "taper", "ansatz", "optimizer", "estimator")
+AXES = ("mapping", "taper", "ansatz", "optimizer", "estimator", "states")
 
 #: Sweep name used when the configuration has no ``sweeps:``.
 DEFAULT_SWEEP = "main"
@@ -58,11 +58,12 @@ def study_name(cfg: dict, config_path: str | Path | None = None) -> str:
 
 
 def _combo_text(combo: tuple) -> str:
-    mapping, taper, ansatz, optimizer, estimator = combo
+    mapping, taper, ansatz, optimizer, estimator, states = combo
     opts = lambda e: e["name"]  # noqa: E731
     return (
         f"{opts(ansatz)}, {opts(optimizer)}, {opts(estimator)}, {mapping}, "
         f"taper {str(taper).lower()}"
+        + ("" if states["name"] == "ground" else f", states {states['name']}")
     )
 
 
@@ -147,9 +148,11 @@ def expand_sweeps(cfg: dict, check: Callable[..., None], source: str = "config")
         for combo in _product(methods, list(entry.get("zip") or []), where):
             if excluded(combo, entry.get("exclude") or []):
                 continue
-            mapping, taper, ansatz, optimizer, estimator = combo
+            mapping, taper, ansatz, optimizer, estimator, states = combo
             try:
-                check(ansatz, taper, mapping, optimizer=optimizer, estimator=estimator)
+                check(
+                    ansatz, taper, mapping, optimizer=optimizer, estimator=estimator, states=states
+                )
             except ConfigError as exc:
                 line = f"{_combo_text(combo)}: {exc}"
                 if cfg.get("strict"):
@@ -170,11 +173,13 @@ def expand_sweeps(cfg: dict, check: Callable[..., None], source: str = "config")
 def figure_stems(molecules: list[str], exports: list[dict] | None = None) -> list[str]:
     """Figures a study writes (PNG and PDF), relative to ``plots/``.
 
-    Besides the per-molecule figures and the resource plot, one energy-vs-noise-scale plot
+    Besides the per-molecule figures (energy, error, convergence, every state's curve with
+    the exact roots, and the stick spectrum) and the resource plot, one energy-vs-noise-scale plot
     (``zne_<export key>``) per reconciled device job in ``exports``; the paged histograms of
     those jobs go to :data:`DEVICE_HISTOGRAM_FOLDER` (their number is known only after export).
     """
-    out = [f"{m}_{kind}" for m in molecules for kind in ("energy", "error", "convergence")]
+    kinds = ("energy", "error", "convergence", "states", "spectrum")
+    out = [f"{m}_{kind}" for m in molecules for kind in kinds]
     out += ["resources", "shots_error"]
     return out + [f"zne_{ex['key_export']}" for ex in reconciled_exports(exports or [])]
 

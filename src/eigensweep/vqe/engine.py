@@ -896,3 +896,96 @@ def run_optimize(
         ansatz_meta=meta,
         **report,
     )
+
+
+def run_states(
+    *,
+    h1e: np.ndarray,
+    eri: np.ndarray,
+    e_core: float,
+    norb: int,
+    nelec: tuple[int, int],
+    ansatz: dict,
+    optimizer: dict,
+    states: dict,
+    ground_params: np.ndarray,
+    seed: int = 0,
+    dipole_parts: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+) -> list[dict]:
+    """Excited states of one job (:mod:`eigensweep.vqe.excited`) with their properties.
+
+    Args:
+        h1e, eri, e_core, norb, nelec: active-space integrals.
+        ansatz, optimizer: the job's method configs (a fermionic ansatz, determinant space).
+        states: the completed ``methods.states`` entry (``vqd``, ``ssvqe`` or ``qeom``).
+        ground_params: optimized parameters of the ground-state job (VQD's state 0, qEOM's
+            ground state).
+        seed: seed of the VQD starting points.
+        dipole_parts: ``(dipole_active, dipole_core, dipole_nuclear)`` of the integrals.
+
+    Returns:
+        One dict per state (state 0 first): ``energy``, ``spin_square``, ``n_electrons``,
+        ``dipole`` (3,), ``transition_dipole`` (3,) from state 0 (VQD/SSVQE: PySCF
+        ``trans_rdm1`` of the two CI vectors; qEOM: its commutator amplitude),
+        ``natural_occupations``, ``evaluations``, ``params``.
+    """
+    from pyscf.fci import direct_spin1
+
+    from ..chem.properties import transition_dipole
+    from .excited import qeom, ssvqe, vqd
+
+    m = _resolve_methods(ansatz, optimizer, {"name": "exact"}, "jordan_wigner", None)
+    nelec = (int(nelec[0]), int(nelec[1]))
+    space = DetSpace(int(norb), nelec, np.asarray(h1e, float), np.asarray(eri, float), e_core)
+    built = _build_fermionic(m, space, None, int(seed))
+    name, n = states["name"], int(states["n_states"])
+    mu = 0.0 if states["spin"] == "all" else float(states.get("spin_penalty", 0.0))
+    g = np.asarray(ground_params, dtype=float)
+    if name == "vqd":
+        found = vqd(
+            built.ansatz,
+            n,
+            g,
+            m.optimizer,
+            weights=states["weights"],
+            mu=mu,
+            seed=int(seed),
+            start_scale=states["start_scale"],
+        )
+    elif name == "ssvqe":
+        found = ssvqe(
+            built.ansatz, n, m.optimizer, weights=states["weights"], mu=mu, seed=int(seed)
+        )
+    elif name == "qeom":
+        found = qeom(
+            space,
+            built.ansatz.state(g),
+            n,
+            spin_filter=states["spin"] != "all",
+            dipole_active=None if dipole_parts is None else dipole_parts[0],
+        )
+    else:
+        raise ConfigError(f"states.name: {name!r} is not an excited-state method")
+    out = []
+    for k, st in enumerate(found):
+        rdm1 = state_rdm1(st.vector, space.norb, nelec)
+        props = _properties(rdm1, dipole_parts)
+        tdm = np.zeros(3)
+        if k and st.transition_dipole is not None:
+            tdm = np.asarray(st.transition_dipole, float)
+        elif k and dipole_parts is not None:
+            t = direct_spin1.trans_rdm1(found[0].vector, st.vector, space.norb, nelec)
+            tdm = transition_dipole(t, dipole_parts[0])
+        out.append(
+            {
+                "energy": float(st.energy),
+                "spin_square": float(st.spin_square),
+                "n_electrons": float(sum(nelec)),
+                "dipole": np.asarray(props.get("dipole", np.full(3, np.nan)), float),
+                "transition_dipole": tdm,
+                "natural_occupations": props.get("natural_occupations", np.zeros(0)),
+                "evaluations": int(st.evaluations),
+                "params": np.asarray(st.params, float),
+            }
+        )
+    return out

@@ -1,0 +1,355 @@
+"""Excited states in determinant space: VQD, weighted SSVQE and qEOM (exact estimator).
+
+All three run on the determinant-space emulator (:mod:`eigensweep.vqe.detspace`) with a
+fermionic ansatz (UCCSD, k-UpCCGSD) and exact expectation values:
+
+* ``vqd`` - variational quantum deflation (Higgott, Wang, Brierley, Quantum 3, 156 (2019)):
+  state ``k`` minimises ``<H'> + sum_{j<k} beta_j |<psi_j|psi_k>|^2`` over the lower states
+  found (the ground state is the ground-state optimize job's result, reused). Default weights:
+  the paper's sufficient condition ``beta_j > E_k - E_j`` with ``E_k`` bounded from above by
+  the Courant-Fischer principle: the largest eigenvalue of ``H'`` in the span of the ``k + 1``
+  determinants of lowest diagonal energy is an upper bound of the ``k``-th eigenvalue
+  (:func:`gap_bound_weights`), plus :data:`VQD_MARGIN_EH`.
+* ``ssvqe`` - weighted subspace-search VQE (Nakanishi, Mitarai, Fujii, Phys. Rev. Research 1,
+  033062 (2019)): one unitary ``U(theta)`` applied to ``n`` orthogonal initial states (the HF
+  determinant and its lowest single excitations, spin-adapted for the requested spin),
+  minimising ``sum_j w_j <phi_j|U^dagger H' U|phi_j>`` with ``w_0 > w_1 > ...`` (default
+  ``w_j = n - j``); the states come out ordered by energy.
+* ``qeom`` - quantum equation of motion on the optimized ground state (Ollitrault et al.,
+  Phys. Rev. Research 2, 043140 (2020)): singles and doubles (spin-conserving, occupied to
+  virtual of the HF reference) ``E_m``; matrices ``M = <[E_m^+, H, E_n]>``,
+  ``Q = -<[E_m^+, E_n^+, H]>``, ``V = <[E_m^+, E_n]>``, ``W = -<[E_m^+, E_n^+]>`` with the
+  symmetrised double commutator ``[A, B, C] = ([[A, B], C] + [A, [B, C]]) / 2``, and the
+  generalized eigenproblem ``[[M, Q], [Q, M]] z = w [[V, W], [-W, -V]] z``; positive ``w``
+  are excitation energies, ``O_n^+ = sum_m X_m E_m - Y_m E_m^+`` the excitation operator, and
+  ``<0|mu|n> = <0|[mu, O_n^+]|0>`` the transition amplitude. qEOM is exact only when the
+  ground state and the manifold are (two electrons with singles and doubles).
+
+Spin: by default only states of the requested multiplicity are sought, by a penalty
+``H' = H + mu (S^2 - S(S+1))`` with ``S = |M_s|`` (the lowest spin of the sector, so the
+penalty operator is positive semi-definite and commutes with ``H``: eigenstates are unchanged,
+other spins are raised by at least ``2 mu (S+1)``); reported energies are ``<H>`` without the
+penalty. qEOM filters its roots by the ``<S^2>`` of ``O_n^+|0>`` instead. With
+``spin: all`` no penalty is applied and no filter: all states of the S_z sector.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+from pyscf.fci import direct_spin1, spin_op
+
+from ..chem.exact import civec_spin_square
+from .detspace import DetSpace
+from .fermionic import FermionicAnsatz, sd_excitation_terms
+from .optimizers import minimize
+
+__all__ = [
+    "ExcitedState",
+    "VQD_MARGIN_EH",
+    "gap_bound_weights",
+    "qeom",
+    "ssvqe",
+    "ssvqe_initial_states",
+    "vqd",
+]
+
+#: Added to the gap bound of the VQD weights (hartree).
+VQD_MARGIN_EH = 0.1
+#: qEOM roots with |imaginary part| or norm below this are dropped.
+QEOM_TOL = 1e-8
+
+
+@dataclass
+class ExcitedState:
+    """One state of an excited-state method (energies in hartree).
+
+    Attributes:
+        energy: ``<psi|H|psi>`` (total, core included); for qEOM ground + excitation energy.
+        vector: flat CI vector (normalised; for qEOM ``O_n^+|0>`` normalised).
+        spin_square: ``<S^2>`` of ``vector``.
+        params: optimized parameters (VQD: this state's; SSVQE: the shared unitary's;
+            qEOM: empty).
+        evaluations: objective evaluations spent on this state.
+        transition_dipole: qEOM's ``<0|mu|n>`` (e a0), else None (formed from vectors).
+    """
+
+    energy: float
+    vector: np.ndarray
+    spin_square: float
+    params: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    evaluations: int = 0
+    transition_dipole: np.ndarray | None = None
+
+
+def _target_s2(space: DetSpace) -> float:
+    s = abs(space.nelec[0] - space.nelec[1]) / 2
+    return s * (s + 1)
+
+
+def penalised(space: DetSpace, mu: float) -> Callable[[np.ndarray], np.ndarray]:
+    """``psi -> (H + mu (S^2 - S(S+1))) psi`` (electronic part; module docstring)."""
+    target = _target_s2(space)
+    norb, nelec = space.norb, space.nelec
+    if mu == 0.0:
+        return space.apply_h
+
+    def apply(psi: np.ndarray) -> np.ndarray:
+        ss = np.asarray(spin_op.contract_ss(psi, norb, nelec)).reshape(-1)
+        return space.apply_h(psi) + mu * (ss - target * psi)
+
+    return apply
+
+
+def gap_bound_weights(
+    space: DetSpace, lower_energies: list[float], mu: float, margin: float = VQD_MARGIN_EH
+) -> list[float]:
+    """VQD weights ``beta_j = U_k - E_j + margin`` for state ``k = len(lower_energies)``.
+
+    ``U_k``: largest eigenvalue of the penalised Hamiltonian in the span of the ``k + 1``
+    lowest-diagonal determinants, an upper bound of its ``k``-th eigenvalue (Courant-Fischer),
+    so ``beta_j > E_k - E_j``, the sufficient condition of Higgott et al. (2019).
+    """
+    k = len(lower_energies)
+    apply = penalised(space, mu)
+    diag = np.array([_unit(space, i) @ apply(_unit(space, i)) for i in range(space.dim)])
+    idx = np.argsort(diag, kind="stable")[: k + 1]
+    block = np.array([[_unit(space, i) @ apply(_unit(space, j)) for j in idx] for i in idx])
+    upper = float(np.linalg.eigvalsh(0.5 * (block + block.T))[-1]) + space.e_core
+    return [max(upper - e, 0.0) + margin for e in lower_energies]
+
+
+def _unit(space: DetSpace, i: int) -> np.ndarray:
+    v = np.zeros(space.dim)
+    v[i] = 1.0
+    return v
+
+
+def _optimize(
+    value_grad: Callable[[np.ndarray], tuple[float, np.ndarray]],
+    x0: np.ndarray,
+    optimizer: dict,
+    seed: int,
+):
+    method = optimizer["name"]
+    skip = ("name", "restarts", "restart_scale", "max_shots")
+    options = {k: v for k, v in optimizer.items() if k not in skip}
+    return minimize(value_grad, x0, method=method, grad=True, options=options, seed=seed)
+
+
+def vqd(
+    ansatz: FermionicAnsatz,
+    n_states: int,
+    ground_params: np.ndarray,
+    optimizer: dict,
+    *,
+    weights: list[float] | None = None,
+    mu: float = 1.0,
+    seed: int = 0,
+    start_scale: float = 0.1,
+) -> list[ExcitedState]:
+    """VQD (module docstring): states ``0..n_states-1``; state 0 is the given ground state.
+
+    Args:
+        ansatz: the fermionic ansatz (determinant space).
+        n_states: states to return, ground included.
+        ground_params: the ground state's optimized parameters (reused, not re-optimized).
+        optimizer: validated gradient-optimizer config (``lbfgs``/``bfgs``).
+        weights: ``beta_j`` for the lower states (one value for all, or one per state);
+            None = :func:`gap_bound_weights`.
+        mu: spin penalty (0 = all spins of the S_z sector).
+        seed: starts of state ``k`` are ``ground_params + start_scale * N(0,1)`` (seed + k).
+    """
+    space = ansatz.space
+    apply_h = penalised(space, mu)
+    g = np.asarray(ground_params, float)
+    psi0 = ansatz.state(g)
+    states = [_state(space, psi0, g)]
+    for k in range(1, n_states):
+        lower = [s.vector for s in states]
+        lower_e = [float(s.vector @ apply_h(s.vector)) + space.e_core for s in states]
+        if weights is None:
+            beta = gap_bound_weights(space, lower_e, mu)
+        else:
+            beta = [float(weights[min(j, len(weights) - 1)]) for j in range(k)]
+
+        def apply(psi: np.ndarray, lower=lower, beta=beta) -> np.ndarray:
+            out = apply_h(psi)
+            for b, phi in zip(beta, lower, strict=True):
+                out = out + b * (phi @ psi) * phi
+            return out
+
+        x0 = g + start_scale * np.random.default_rng(seed + k).standard_normal(g.size)
+        res = _optimize(
+            lambda t, apply=apply: ansatz.expectation_and_gradient(t, apply),
+            x0,
+            optimizer,
+            seed + k,
+        )
+        x = np.asarray(res.x, float)
+        states.append(_state(space, ansatz.state(x), x, res.n_evaluations))
+    return states
+
+
+def _state(space: DetSpace, psi: np.ndarray, params: np.ndarray, n_eval: int = 0) -> ExcitedState:
+    psi = np.asarray(psi, float)
+    return ExcitedState(
+        energy=space.energy(psi),
+        vector=psi,
+        spin_square=civec_spin_square(psi, space.norb, space.nelec),
+        params=np.asarray(params, float),
+        evaluations=int(n_eval),
+    )
+
+
+def ssvqe_initial_states(space: DetSpace, n_states: int, spin_adapted: bool) -> list[np.ndarray]:
+    """HF and its lowest single excitations ``i -> a`` (ordered by ``a - i``, then ``i``
+    descending), as orthonormal CI vectors; spin-adapted (``(E_ai alpha + E_ai beta)/sqrt 2``
+    on a closed shell) when ``spin_adapted``, else alpha excitations then beta."""
+    hf = space.hf_state()
+    na, nb = space.nelec
+    out = [hf]
+    pairs = sorted(
+        ((i, a) for i in range(max(na, nb)) for a in range(min(na, nb), space.norb) if a != i),
+        key=lambda p: (p[1] - p[0], -p[0]),
+    )
+    for i, a in pairs:
+        vecs = []
+        for spin, n in ((0, na), (1, nb)):
+            if i < n and a >= n:
+                gate = space.cached_gate(((2 * a + spin, 1), (2 * i + spin, 0)))
+                vecs.append(space.apply_excitation(gate, hf))
+        cands = [sum(vecs)] if spin_adapted else vecs
+        for v in cands:
+            for u in out:
+                v = v - (u @ v) * u
+            norm = float(np.linalg.norm(v))
+            if norm > 1e-8 and len(out) < n_states:
+                if (
+                    spin_adapted
+                    and abs(civec_spin_square(v, space.norb, space.nelec) - _target_s2(space))
+                    > 1e-6
+                ):
+                    continue
+                out.append(v / norm)
+        if len(out) == n_states:
+            break
+    return out
+
+
+def ssvqe(
+    ansatz: FermionicAnsatz,
+    n_states: int,
+    optimizer: dict,
+    *,
+    weights: list[float] | None = None,
+    mu: float = 1.0,
+    seed: int = 0,
+    initial_params: np.ndarray | None = None,
+) -> list[ExcitedState]:
+    """Weighted SSVQE (module docstring); states sorted by energy."""
+    space = ansatz.space
+    apply = penalised(space, mu)
+    refs = ssvqe_initial_states(space, n_states, spin_adapted=mu != 0.0)
+    n = len(refs)
+    w = [float(n - j) for j in range(n)] if weights is None else [float(x) for x in weights[:n]]
+
+    def value_grad(theta: np.ndarray) -> tuple[float, np.ndarray]:
+        total, grad = 0.0, np.zeros(ansatz.n_params)
+        for wj, ref in zip(w, refs, strict=True):
+            e, g = ansatz.expectation_and_gradient(theta, apply, ref)
+            total += wj * e
+            grad += wj * g
+        return total, grad
+
+    x0 = ansatz.initial_params() if initial_params is None else np.asarray(initial_params, float)
+    res = _optimize(value_grad, x0, optimizer, seed)
+    x = np.asarray(res.x, float)
+    states = [_state(space, ansatz.state_from(x, ref), x, res.n_evaluations) for ref in refs]
+    return sorted(states, key=lambda s: s.energy)
+
+
+def _apply_1e(f1e: np.ndarray, psi: np.ndarray, space: DetSpace) -> np.ndarray:
+    return np.asarray(direct_spin1.contract_1e(f1e, psi, space.norb, space.nelec)).reshape(-1)
+
+
+def qeom(
+    space: DetSpace,
+    ground: np.ndarray,
+    n_states: int,
+    *,
+    spin_filter: bool = True,
+    dipole_active: np.ndarray | None = None,
+) -> list[ExcitedState]:
+    """qEOM on the optimized ground state ``ground`` (module docstring).
+
+    Returns:
+        ``[ground, excited_1, ...]`` up to ``n_states`` states: energies ``E_0 + w_n``, the
+        vectors ``O_n^+|0>`` (normalised) and, with ``dipole_active`` (3, norb, norb), the
+        transition dipoles ``<0|mu|n>``.
+    """
+    import scipy.linalg
+
+    psi = np.asarray(ground, float)
+    psi = psi / np.linalg.norm(psi)
+    hpsi = space.apply_h(psi)
+    e0 = float(psi @ hpsi) + space.e_core
+    doubles, singles = sd_excitation_terms(space.norb, space.nelec)
+    gates = [space.cached_gate(t) for t in singles + doubles]
+    u = np.array([space.apply_excitation(g, psi) for g in gates])  # E_m |0>
+    d = np.array([space.apply_excitation(g, psi, adjoint=True) for g in gates])  # E_m^+ |0>
+    w = np.array([space.apply_excitation(g, hpsi) for g in gates])  # E_m H|0>
+    z = np.array([space.apply_excitation(g, hpsi, adjoint=True) for g in gates])  # E_m^+ H|0>
+    hu = np.array([space.apply_h(v) for v in u])
+    hd = np.array([space.apply_h(v) for v in d])
+    uhu, dhd, uhd = u @ hu.T, d @ hd.T, u @ hd.T
+    wu, dz = w @ u.T, d @ z.T
+    m_mat = 0.5 * (2 * uhu - wu - dz - wu.T - dz.T + 2 * dhd.T)
+    uz, wd = u @ z.T, w @ d.T
+    q_mat = -0.5 * (2 * uz - uz.T - wd - uhd - uhd.T + 2 * wd.T)
+    v_mat = u @ u.T - (d @ d.T).T
+    w_mat = -(u @ d.T - (u @ d.T).T)
+    a = np.block([[m_mat, q_mat], [q_mat, m_mat]])
+    b = np.block([[v_mat, w_mat], [-w_mat, -v_mat]])
+    vals, vecs = scipy.linalg.eig(a, b)
+    n_op = len(gates)
+    target = _target_s2(space)
+    states = [_state(space, psi, np.zeros(0))]
+    order = np.argsort(np.where(np.isfinite(vals.real), vals.real, np.inf))
+    for i in order:
+        om = vals[i]
+        if not np.isfinite(om) or abs(om.imag) > QEOM_TOL or om.real <= QEOM_TOL:
+            continue
+        x, y = vecs[:n_op, i].real, vecs[n_op:, i].real
+        norm2 = float(np.concatenate([x, y]) @ b @ np.concatenate([x, y]))
+        if norm2 <= QEOM_TOL:
+            continue
+        x, y = x / math.sqrt(norm2), y / math.sqrt(norm2)
+        vec = x @ u - y @ d
+        nv = float(np.linalg.norm(vec))
+        if nv < QEOM_TOL:
+            continue
+        vec = vec / nv
+        s2 = civec_spin_square(vec, space.norb, space.nelec)
+        if spin_filter and abs(s2 - target) > 1e-3:
+            continue
+        if any(abs(om.real + e0 - s.energy) < 1e-9 and abs(s.vector @ vec) > 0.99 for s in states):
+            continue
+        tdm = None
+        if dipole_active is not None:
+            mpsi = np.array([-_apply_1e(dipole_active[c], psi, space) for c in range(3)])
+            tdm = (mpsi @ u.T - mpsi @ d.T) @ x - (mpsi @ d.T - mpsi @ u.T) @ y
+        states.append(
+            ExcitedState(
+                energy=e0 + float(om.real),
+                vector=vec,
+                spin_square=s2,
+                transition_dipole=tdm,
+            )
+        )
+        if len(states) == n_states:
+            break
+    return states
