@@ -81,9 +81,8 @@ def compare_costs(rows: list[dict], results: Path) -> bool:
     ok, n = True, 0
     for manifest in sorted(results.glob("export/*/**/manifest.json")):
         doc = json.loads(manifest.read_text())
-        src = doc.get("source") or doc.get("problem") or {}
         prep = doc["state_preparation"]
-        key_optimize = src.get("key_optimize") or doc.get("key_optimize")
+        key_optimize = doc["meta"]["optimize_key"]
         match = [r for r in rows if key_optimize and r.get("key") == key_optimize]
         if not match:
             print(f"  {manifest}: no summary row with key {key_optimize}")
