@@ -14,7 +14,7 @@ from eigensweep.device.compile import (
     group_basis,
     measurement_circuit,
 )
-from eigensweep.device.synthetic import simulate_batch
+from eigensweep.qubit.noise import NoiseModel, simulate_distributions
 from eigensweep.qubit.statevector import (
     apply_pauli_rotation,
     basis_state,
@@ -56,7 +56,9 @@ def test_compiled_rotations_equal_product_of_pauli_rotations(seed):
     out = simulate(circ)
     assert np.max(np.abs(out - psi)) < 1e-12
     assert np.max(np.abs(out - dense)) < 1e-12
-    assert np.max(np.abs(simulate_batch(circ, 2) - out[None, :])) < 1e-12  # batched kernel
+    # the density-matrix kernels (U on rows, conj(U) on columns) without noise
+    probs = simulate_distributions([circ], NoiseModel())[0]
+    assert np.max(np.abs(probs - np.abs(out) ** 2)) < 1e-12
 
 
 @pytest.mark.parametrize("letter", ["X", "Y", "Z"])

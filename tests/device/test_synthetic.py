@@ -11,11 +11,8 @@ from fixtures import dense_pauli, two_qubit_problem
 from eigensweep.circuit import Circuit
 from eigensweep.device.counts import load_results
 from eigensweep.device.manifest import build_job, write_job
-from eigensweep.device.synthetic import (
-    run_synthetic_device,
-    simulate_batch,
-    write_results,
-)
+from eigensweep.device.synthetic import run_synthetic_device, write_results
+from eigensweep.qubit.noise import NoiseModel, simulate_distributions
 from eigensweep.qubit.statevector import simulate
 
 
@@ -97,7 +94,7 @@ def _density_matrix_probs(circ: Circuit, p1: float, p2: float) -> np.ndarray:
     return np.real(np.diag(rho))
 
 
-def test_trajectories_reproduce_depolarizing_channel():
+def test_trajectories_and_density_matrix_reproduce_depolarizing_channel():
     # reference: density-matrix evolution of the same channel (Nielsen & Chuang, ch. 8)
     circ = Circuit(2)
     circ.append("h", (0,))
@@ -105,11 +102,13 @@ def test_trajectories_reproduce_depolarizing_channel():
     circ.append("ry", (1,), (0.4,))
     circ.append("cx", (1, 0))
     p1, p2 = 0.05, 0.2
-    rng = np.random.default_rng(0)
-    amps = simulate_batch(circ, 20000, depolarizing_1q=p1, depolarizing_2q=p2, rng=rng)
-    probs = (np.abs(amps) ** 2).mean(axis=0)
+    nm = NoiseModel.from_probabilities(depolarizing_1q=p1, depolarizing_2q=p2)
     ref = _density_matrix_probs(circ, p1, p2)
-    assert np.max(np.abs(probs - ref)) < 0.01
+    dense = simulate_distributions([circ], nm)[0]
+    assert np.max(np.abs(dense - ref)) < 1e-12
+    rng = np.random.default_rng(0)
+    probs = simulate_distributions([circ], nm, method="trajectories", trajectories=20000, rng=rng)
+    assert np.max(np.abs(probs[0] - ref)) < 0.01
     assert np.max(np.abs(ref - np.abs(simulate(circ)) ** 2)) > 0.05  # noise is visible
 
 

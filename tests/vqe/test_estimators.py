@@ -8,8 +8,10 @@ import numpy as np
 import pytest
 from fixtures import active_integrals, h2_two_qubit, space_of
 
+from eigensweep.circuit import Circuit
 from eigensweep.qubit import statevector as sv
 from eigensweep.qubit.mapping import map_hamiltonian
+from eigensweep.qubit.noise import NoiseModel
 from eigensweep.vqe import (
     UCCSD,
     MeasurementPlan,
@@ -65,18 +67,23 @@ def test_shot_estimator_is_unbiased_and_stderr_matches_spread():
 
 def test_noisy_estimator_biases_as_modelled():
     ham, e0 = h2_two_qubit()
-    psi = sv.basis_state(np.array([0, 0]))
-    exact = sv.expectation(psi, ham)
+    circ = Circuit(2)  # |00>
+    exact = sv.expectation(sv.simulate(circ), ham)
+    with pytest.raises(TypeError, match="circuit"):
+        NoisyEstimator(ham, 100, np.random.default_rng(0), NoiseModel()).estimate(sv.simulate(circ))
+    mixing = Circuit(2)
+    mixing.append("cx", (0, 1))  # the identity on |00>
     full = NoisyEstimator(
-        ham, 20000, np.random.default_rng(1), depolarizing=0.5, p01=0.0, p10=0.0, n_cnot=40
+        ham, 20000, np.random.default_rng(1), NoiseModel.from_probabilities(depolarizing_2q=15 / 16)
     )
-    # fully depolarized: only the identity term survives
-    e = full.estimate(psi)
+    # depolarizing with p = 15/16 on both qubits gives I/4 (Nielsen & Chuang (2000) 8.3.4,
+    # from memory): only the identity term survives
+    e = full.estimate(mixing)
     assert abs(e.value - ham.identity_coeff) < 5 * e.stderr + 1e-12
     flips = NoisyEstimator(
-        ham, 20000, np.random.default_rng(2), depolarizing=0.0, p01=0.1, p10=0.0, n_cnot=0
+        ham, 20000, np.random.default_rng(2), NoiseModel.from_probabilities(readout_p01=0.1)
     )
-    e = flips.estimate(psi)
+    e = flips.estimate(circ)
     # |00>: <Z_k> = 1 - 2 p01 = 0.8, <Z0 Z1> = 0.8^2; XX is 0 regardless
     c = dict(zip(ham.labels(), ham.coeffs, strict=True))
     expected = c["II"] + 0.8 * (c["ZI"] + c["IZ"]) + 0.64 * c["ZZ"]

@@ -471,7 +471,7 @@ def _fermionic_circuit(m: _Methods, built: _Built) -> bool:
 
 
 def _to_qubit_fn(built: _Built, space: DetSpace, mapping: str) -> Callable:
-    """ansatz state -> the statevector that shots and noise sample."""
+    """ansatz state -> the statevector that shots sample."""
     if built.det_space:
         return lambda psi: encode_state(to_qubit_state(psi, space.norb, space.nelec), mapping)
     return lambda psi: psi
@@ -501,9 +501,19 @@ def _set_budget(est: Any, m: _Methods) -> None:
     est.ledger.budget = int(max_shots) - final
 
 
-def _qubit_state_fn(built: _Built, space: DetSpace, mapping: str) -> Callable:
-    """theta -> the statevector that shots and noise sample."""
-    ans = built.ansatz
+def _measures_circuits(m: _Methods) -> bool:
+    """The ``noisy`` estimator measures the state's circuit, not its statevector."""
+    return m.estimator["name"] == "noisy"
+
+
+def _qubit_state_fn(built: _Built, space: DetSpace, m: _Methods) -> Callable:
+    """theta -> what the estimator samples: the statevector, or for the ``noisy`` estimator
+    the circuit compiled at theta (as the export stage compiles it)."""
+    ans, mapping = built.ansatz, m.mapping
+    if _measures_circuits(m):
+        if built.det_space:
+            return lambda theta: ans.circuit(theta, mapping)
+        return ans.circuit
     if built.det_space:
         return lambda theta: encode_state(
             to_qubit_state(ans.state(theta), space.norb, space.nelec), mapping
@@ -518,7 +528,6 @@ def _make_sampler(
     tapering: SectorReduction | None,
     qubit_hamiltonian: PauliExpansion | None,
     seed: int,
-    n_cnot: int,
 ):
     """The shot/noise estimator on the Hamiltonian the state lives in (None for exact)."""
     if not m.sampled:
@@ -534,7 +543,7 @@ def _make_sampler(
         qham = qubit_hamiltonian
     else:
         qham = prob.mapped_hamiltonian(m.mapping)
-    return make_estimator(m.estimator, qham, seed=seed, n_cnot=n_cnot)
+    return make_estimator(m.estimator, qham, seed=seed)
 
 
 class _Objective:
@@ -545,6 +554,8 @@ class _Objective:
     ) -> None:
         self.ans, self.est, self.qubit_state, self.progress = ans, est, qubit_state, progress
         self.to_qubit = to_qubit  # ansatz state -> the statevector the estimator samples
+        #: per-gate angles -> what parameter-shift energies measure (state, or circuit)
+        self.at_angles: Callable = ans.state_at_angles
         self.count = 0
         self.last_shots = 0
         self.purpose = "energy"
@@ -600,7 +611,7 @@ class _Objective:
                 f"next gradient needs {cost})"
             )
         grad = parameter_shift_gradient(
-            units, ans.angles(theta), ans.n_params, ans.state_at_angles, energy, n
+            units, ans.angles(theta), ans.n_params, self.at_angles, energy, n
         )
         self._report(math.nan)
         return math.nan, grad
@@ -842,17 +853,20 @@ def run_optimize(
     fermionic_circuit = _fermionic_circuit(m, built)
     if tapering is not None and (fermionic_circuit or not m.tapered):
         _check_mapping_frame(ans, tapering, space, m.mapping, exact)
-    costs = ans.circuit_costs(m.mapping) if built.det_space else ans.circuit_costs()
 
-    qubit_state = _qubit_state_fn(built, space, m.mapping)
+    qubit_state = _qubit_state_fn(built, space, m)
     to_qubit = _to_qubit_fn(built, space, m.mapping)
-    est = _make_sampler(m, built, prob, tapering, qubit_hamiltonian, seed, costs["cnot_count"])
+    est = _make_sampler(m, built, prob, tapering, qubit_hamiltonian, seed)
     if est is not None:
         _set_budget(est, m)
     if built.adapt is not None:
         run = _adapt_run(built, initial_params)
     else:
         obj = _Objective(ans, est, qubit_state, progress, to_qubit)
+        if _measures_circuits(m):
+            mapping = m.mapping
+            obj.to_qubit = lambda circuit: circuit
+            obj.at_angles = lambda angles: ans.circuit_at_angles(angles, mapping)
         obj.operator_norm = lambda: _measured_operator(est, ans, prob, m).one_norm_nonidentity
         run = _optimize_with_restarts(m.optimizer, obj, _start_point(ans, initial_params), seed)
     energy, stderr, e_exact_params = _final_energy(m, built, est, qubit_state, run.params)

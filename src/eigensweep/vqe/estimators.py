@@ -13,13 +13,17 @@
     The estimate is the sum of group means (plus the identity coefficient); its standard error
     is ``sqrt(sum_g s_g^2 / N_g)`` with ``s_g^2`` the sample variance of ``y`` in group ``g``.
 ``noisy``
-    As ``shots`` plus (i) depolarizing noise approximated by a *global* depolarizing channel:
-    every CNOT of the compiled circuit contributes a depolarizing probability ``depolarizing``
-    and the prepared state is replaced by ``f rho + (1 - f) I/2^n`` with
-    ``f = (1 - depolarizing)^n_cnot`` (an approximation: real gate noise is local and
-    state-dependent), and (ii) independent readout bit flips, ``p01`` = P(read 1 | 0) and
-    ``p10`` = P(read 0 | 1) (both default to ``readout_error``), applied to the outcome
-    distribution before sampling. No error mitigation is applied.
+    As ``shots``, but the groups are measured on a noisy run of the state's *circuit* (the
+    ansatz compiled at the current angles, as the export stage compiles it), with eigensweep's
+    one noise simulator (:mod:`eigensweep.qubit.noise`, the same as the synthetic device's):
+    each group's measurement circuit (:func:`eigensweep.device.compile.measurement_circuit`)
+    runs with depolarizing after every gate, T1/T2 relaxation over gate and idle times and
+    asymmetric readout flips; the estimate samples the resulting outcome distributions. The
+    config keys map onto a :class:`~eigensweep.qubit.noise.NoiseModel`: ``depolarizing`` is the
+    depolarizing error rate of every two-qubit gate (one-qubit gates noiseless, no durations,
+    so no relaxation), ``p01`` = P(read 1 | 0) and ``p10`` = P(read 0 | 1) (both default to
+    ``readout_error``); :func:`make_estimator` also takes a ``NoiseModel`` (e.g. a device
+    target's). No error mitigation is applied.
 
 Shot accounting: every estimator carries a :class:`ShotLedger` that adds up the shots of
 each estimate by purpose (``energy``, ``gradient``, ``calibration``, ``selection`` of
@@ -37,8 +41,10 @@ from typing import Any
 
 import numpy as np
 
+from ..circuit import Circuit
 from ..errors import ConfigError
 from ..qubit.grouping import qwc_groups
+from ..qubit.noise import NoiseModel, readout_distribution, simulate_distributions
 from ..qubit.pauli import PauliExpansion, bits_to_mask
 from ..qubit.statevector import GATE_MATRICES, apply_matrix_1q
 from ..qubit.statevector import expectation as sv_expectation
@@ -54,6 +60,7 @@ __all__ = [
     "ShotEstimator",
     "ShotLedger",
     "make_estimator",
+    "noise_of_estimator",
     "validate_estimator",
 ]
 
@@ -287,7 +294,11 @@ class ShotEstimator(Estimator):
 
 
 class NoisyEstimator(ShotEstimator):
-    """Shots with global depolarizing and readout bit flips (module docstring)."""
+    """Shots of a circuit run on the noise simulator (module docstring).
+
+    :meth:`estimate` takes the state's :class:`~eigensweep.circuit.Circuit` (not a
+    statevector): local noise depends on the gates, not only on the state they prepare.
+    """
 
     name = "noisy"
 
@@ -296,39 +307,55 @@ class NoisyEstimator(ShotEstimator):
         ham: PauliExpansion,
         shots: int,
         rng: np.random.Generator,
+        noise: NoiseModel,
         *,
-        depolarizing: float,
-        p01: float,
-        p10: float,
-        n_cnot: int,
+        trajectories: int = 200,
     ) -> None:
         super().__init__(ham, shots, rng)
-        self.fidelity = (1.0 - depolarizing) ** int(n_cnot)
-        self.p01 = float(p01)
-        self.p10 = float(p10)
+        self.noise = noise
+        self.trajectories = int(trajectories)
+        self.labels = ["".join("IXZY"[b] for b in basis) for basis in self.plan.bases]
 
-    def _distributions(self, psi: np.ndarray) -> np.ndarray:
-        return self._noisy(super()._distributions(psi))
+    def _simulate(self, circuit: Circuit, groups) -> np.ndarray:
+        """Noisy outcome distributions (readout included) of the groups' measurement circuits."""
+        from ..device.compile import measurement_circuit
 
-    def _distribution(self, psi: np.ndarray, g: int) -> np.ndarray:
-        return self._noisy(super()._distribution(psi, g))
+        if not isinstance(circuit, Circuit):
+            raise TypeError(
+                "the noisy estimator measures a circuit (eigensweep.circuit.Circuit), got "
+                f"{type(circuit).__name__}"
+            )
+        circuits = [measurement_circuit(circuit, self.labels[g]) for g in groups]
+        p = simulate_distributions(
+            circuits, self.noise, trajectories=self.trajectories, rng=self.rng
+        )
+        return readout_distribution(p, self.noise.readout_p01, self.noise.readout_p10)
 
-    def _noisy(self, p: np.ndarray) -> np.ndarray:
-        """Global depolarizing mix and readout flips of outcome distributions (last axis)."""
-        n = self.plan.n_qubits
-        p = self.fidelity * p + (1.0 - self.fidelity) / p.shape[-1]
-        if self.p01 or self.p10:
-            conf = np.array([[1.0 - self.p01, self.p10], [self.p01, 1.0 - self.p10]])
-            for q in range(n):
-                p = apply_matrix_1q(p, q, conf)
-        p = np.clip(p, 0.0, None)
-        return p / p.sum(axis=-1, keepdims=True)
+    def _distributions(self, psi) -> np.ndarray:
+        return self._simulate(psi, range(self.plan.n_groups))
+
+    def _distribution(self, psi, g: int) -> np.ndarray:
+        return self._simulate(psi, [g])[0]
+
+
+def noise_of_estimator(cfg: dict[str, Any]) -> NoiseModel:
+    """The :class:`NoiseModel` of a validated ``noisy`` estimator config (module docstring)."""
+    p01 = cfg["p01"] if cfg["p01"] is not None else cfg["readout_error"]
+    p10 = cfg["p10"] if cfg["p10"] is not None else cfg["readout_error"]
+    return NoiseModel.from_probabilities(
+        depolarizing_2q=cfg["depolarizing"], readout_p01=p01, readout_p10=p10
+    )
 
 
 def make_estimator(
-    cfg: dict[str, Any], ham: PauliExpansion | None, *, seed: int, n_cnot: int = 0
+    cfg: dict[str, Any],
+    ham: PauliExpansion | None,
+    *,
+    seed: int,
+    noise: NoiseModel | None = None,
 ) -> Estimator:
-    """Build the estimator of a validated config (``seed`` used if the config has none)."""
+    """Build the estimator of a validated config (``seed`` used if the config has none);
+    ``noise`` replaces the ``noisy`` estimator's config keys (:func:`noise_of_estimator`)."""
     name = cfg["name"]
     if name == "exact":
         return Estimator(ham)
@@ -338,14 +365,4 @@ def make_estimator(
     rng = np.random.default_rng(seed if s is None else s)
     if name == "shots":
         return ShotEstimator(ham, cfg["shots"], rng)
-    p01 = cfg["p01"] if cfg["p01"] is not None else cfg["readout_error"]
-    p10 = cfg["p10"] if cfg["p10"] is not None else cfg["readout_error"]
-    return NoisyEstimator(
-        ham,
-        cfg["shots"],
-        rng,
-        depolarizing=cfg["depolarizing"],
-        p01=p01,
-        p10=p10,
-        n_cnot=n_cnot,
-    )
+    return NoisyEstimator(ham, cfg["shots"], rng, noise or noise_of_estimator(cfg))

@@ -233,11 +233,15 @@ class FermionicAnsatz:
         self, theta: np.ndarray, mapping: str = "jordan_wigner"
     ) -> tuple[np.ndarray, list[PauliRotation]]:
         """Reference bits and Pauli rotations with state ``= prod_k exp(-i a_k/2 P_k)|ref>``."""
+        return self._rotations_at(self._sequence.angles(theta), mapping)
+
+    def _rotations_at(
+        self, phis: np.ndarray, mapping: str
+    ) -> tuple[np.ndarray, list[PauliRotation]]:
         check_mapping(mapping)
         n = self.n_qubits
-        phis = self._sequence.angles(theta)
         rotations: list[PauliRotation] = []
-        for e, phi in zip(self.excitations, phis, strict=True):
+        for e, phi in zip(self.excitations, np.asarray(phis, dtype=float), strict=True):
             for x, z, c in generator_paulis(e.term, mapping, n):
                 rotations.append((x.copy(), z.copy(), float(-2.0 * phi * c)))
         occ = np.zeros(n, dtype=np.uint8)
@@ -246,7 +250,12 @@ class FermionicAnsatz:
 
     def circuit(self, theta: np.ndarray, mapping: str = "jordan_wigner") -> Circuit:
         """Compiled circuit (scheme in the module docstring)."""
-        ref, rots = self.pauli_rotations(theta, mapping)
+        return self.circuit_at_angles(self._sequence.angles(theta), mapping)
+
+    def circuit_at_angles(self, phis: np.ndarray, mapping: str = "jordan_wigner") -> Circuit:
+        """Compiled circuit with excitation ``k`` at angle ``phis[k]`` (the circuit of
+        :meth:`state_at_angles` in the qubit encoding ``mapping``)."""
+        ref, rots = self._rotations_at(phis, mapping)
         return circuit_from_rotations(ref, rots)
 
     def circuit_costs(self, mapping: str = "jordan_wigner") -> dict[str, int]:

@@ -109,9 +109,13 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
 
     def circuit(self, theta: np.ndarray, mapping: str | None = None) -> Circuit:
         """Native ``x``/``ry``/``rz``/``cx`` circuit."""
-        theta = np.asarray(theta, dtype=float).reshape(-1)
-        if theta.size != self.n_params:
-            raise ValueError(f"expected {self.n_params} parameters, got {theta.size}")
+        return self.circuit_at_angles(self.angles(theta))
+
+    def circuit_at_angles(self, angles: np.ndarray, mapping: str | None = None) -> Circuit:
+        """Native circuit whose rotations take the angles of the parametrized Pauli gates
+        (in order; the fixed rotations that spell each CNOT are emitted as ``cx``)."""
+        angles = np.asarray(angles, dtype=float).reshape(-1)
+        rotation_angles = iter(angles[[g.param >= 0 for g in self.gates]])
         circ = Circuit(self.n_qubits)
         for q in np.nonzero(self.reference)[0]:
             circ.append("x", (int(q),))
@@ -119,7 +123,7 @@ class HardwareEfficientAnsatz(PauliRotationAnsatz):
             if p < 0:
                 circ.append(name, qubits)
             else:
-                circ.append(name, qubits, (float(theta[p]),))
+                circ.append(name, qubits, (float(next(rotation_angles)),))
         return circ
 
     def circuit_costs(self, mapping: str | None = None) -> dict[str, int]:

@@ -190,15 +190,21 @@ class PauliRotationAnsatz:
         self, theta: np.ndarray, mapping: str | None = None
     ) -> tuple[np.ndarray, list[PauliRotation]]:
         """Reference bits and rotations (already in qubit space; ``mapping`` is ignored)."""
-        rots = [
+        return self.reference.copy(), self._rotations_at(self.angles(theta))
+
+    def _rotations_at(self, angles: np.ndarray) -> list[PauliRotation]:
+        return [
             (g.x.copy(), g.z.copy(), float(a))
-            for g, a in zip(self.gates, self.angles(theta), strict=True)
+            for g, a in zip(self.gates, np.asarray(angles, dtype=float), strict=True)
         ]
-        return self.reference.copy(), rots
 
     def circuit(self, theta: np.ndarray, mapping: str | None = None) -> Circuit:
-        ref, rots = self.pauli_rotations(theta)
-        return circuit_from_rotations(ref, rots)
+        return self.circuit_at_angles(self.angles(theta))
+
+    def circuit_at_angles(self, angles: np.ndarray, mapping: str | None = None) -> Circuit:
+        """Compiled circuit with gate ``k`` at angle ``angles[k]`` (the circuit of
+        :meth:`state_at_angles`, measured by the ``noisy`` estimator's parameter shifts)."""
+        return circuit_from_rotations(self.reference, self._rotations_at(angles))
 
     def circuit_costs(self, mapping: str | None = None) -> dict[str, int]:
         return circuit_costs(self.circuit(np.full(self.n_params, 0.1)))
