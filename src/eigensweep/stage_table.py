@@ -87,7 +87,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "optimize",
-        5,
+        6,
         "run_optimize",
         {"taper": "taper", "integrals": "integrals", "warm": "optimize", "ground": "optimize"},
         ("stage",),
@@ -103,7 +103,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "reconcile",
-        3,
+        4,
         "run_reconcile",
         {"export": "export", "taper": "taper", "integrals": "integrals", "counts": RETURNED},
         ("stage",),

@@ -12,7 +12,7 @@ from eigensweep.circuit import Circuit
 from eigensweep.qubit.noise import (
     GateNoise,
     NoiseModel,
-    depolarizing_channel,
+    depolarizing_channel_,
     readout_distribution,
     relaxation_channel_,
     simulate_distributions,
@@ -118,7 +118,7 @@ def test_depolarizing_channel_matches_the_pauli_sum(qubits):
         letters = [(code // 4 ** (k - 1 - j)) % 4 for j in range(k)]
         big = _embed({q: PAULI[a] for q, a in zip(qubits, letters, strict=True)}, n)
         ref = ref + p / (4**k - 1) * big @ rho @ big.conj().T
-    out = depolarizing_channel(rho.reshape(-1), n, qubits, p).reshape(2**n, 2**n)
+    out = depolarizing_channel_(rho.reshape(-1).copy(), n, qubits, p).reshape(2**n, 2**n)
     np.testing.assert_allclose(out, ref, atol=1e-14)
 
 

@@ -34,7 +34,7 @@ Computation and Quantum Information* (2000), chapter 8):
 Simulation: up to :data:`MAX_DENSITY_QUBITS` qubits the density matrix is propagated exactly
 (``4**n`` complex entries, 16 MiB at 10 qubits), stored as a vector of ``2n`` qubits (row index
 in the high bits): a gate ``U rho U^dagger`` is ``U`` on qubit ``q`` and ``conj(U)`` on qubit
-``n + q`` with the statevector kernels (:func:`eigensweep.qubit.statevector.apply_gate_density`).
+``n + q`` with the statevector kernels (:func:`eigensweep.qubit.statevector.apply_gate_density_`).
 Above it, stochastic trajectories (quantum trajectories / Monte-Carlo wavefunctions; Dalibard,
 Castin, Molmer, PRL 68, 580 (1992)): a batch of statevectors, each with its own sampled Kraus
 operators (random Paulis for depolarizing and dephasing, a quantum jump or the no-jump operator
@@ -61,13 +61,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..circuit import TWO_QUBIT, Circuit, Gate
-from .statevector import GATE_MATRICES, apply_gate_batch, apply_gate_density, apply_matrix_1q
+from .statevector import GATE_MATRICES, apply_gate_batch, apply_gate_density_, apply_matrix_1q
 
 __all__ = [
     "MAX_DENSITY_QUBITS",
     "GateNoise",
     "NoiseModel",
-    "depolarizing_channel",
+    "depolarizing_channel_",
     "readout_distribution",
     "relaxation_channel_",
     "simulate_distributions",
@@ -237,28 +237,39 @@ def readout_distribution(probs: np.ndarray, p01, p10) -> np.ndarray:
     return p / p.sum(axis=-1, keepdims=True)
 
 
-def depolarizing_channel(
+def depolarizing_channel_(
     rho: np.ndarray, n_qubits: int, qubits: Sequence[int], p: float
 ) -> np.ndarray:
     """Depolarizing channel on ``qubits`` of a density matrix (vector of ``4**n`` entries).
 
     ``(1 - p) rho + p/d sum_{P != I} P rho P = (1 - p - p/d) rho + (p 2^k/d) Tr_S(rho) (x) I_S``
     with ``d = 4^k - 1`` (Nielsen & Chuang (2000) section 8.3.4; the closed form from
-    ``sum_{all P} P rho P = 2^k Tr_S(rho) (x) I_S``). Returns a new vector.
+    ``sum_{all P} P rho P = 2^k Tr_S(rho) (x) I_S``), **in place**; returns ``rho``.
     """
     n, k = int(n_qubits), len(qubits)
     d = 4**k - 1
-    axes = list(qubits) + [n + q for q in qubits]
-    front = list(range(2 * k))
-    v = np.moveaxis(rho.reshape((2,) * (2 * n)), axes, front)  # (row_S, col_S, rest)
-    shape = v.shape
-    v = v.reshape(2**k, 2**k, -1)
-    tr = np.einsum("iir->r", v)
-    out = (1.0 - p - p / d) * v
-    idx = np.arange(2**k)
-    out[idx, idx, :] += (p * 2**k / d) * tr
-    out = np.moveaxis(out.reshape(shape), front, axes)
-    return np.ascontiguousarray(out).reshape(-1)
+    # rho as (blocks..., row bit of each qubit of S, ..., column bits ...) with S sorted
+    qs = sorted(int(q) for q in qubits)
+    cuts = qs + [n + q for q in qs]
+    shape, last = [], -1
+    for c in cuts:
+        shape += [1 << (c - last - 1), 2]
+        last = c
+    shape.append(1 << (2 * n - 1 - last))
+    v = rho.reshape(shape)
+    diagonals = []
+    for bits in np.ndindex(*(2,) * k):
+        sel: list = [slice(None)] * len(shape)
+        for j, b in enumerate(bits):
+            sel[2 * j + 1] = b
+            sel[2 * (k + j) + 1] = b
+        diagonals.append(tuple(sel))
+    tr = sum(v[sel] for sel in diagonals)  # Tr_S(rho), entries of the other qubits
+    tr *= p * 2**k / d
+    rho *= 1.0 - p - p / d
+    for sel in diagonals:
+        v[sel] += tr
+    return rho
 
 
 def relaxation_channel_(
@@ -329,16 +340,20 @@ class _Backend:
 class _Density(_Backend):
     """Density matrix as a ``4**n`` vector (module docstring)."""
 
+    _work: np.ndarray | None = None  # scratch vector of the in-place gate kernels
+
     def initial(self) -> np.ndarray:
         rho = np.zeros(1 << (2 * self.n), dtype=np.complex128)
         rho[0] = 1.0
         return rho
 
     def gate(self, rho: np.ndarray, gate: Gate) -> np.ndarray:
-        return apply_gate_density(rho, gate, self.n)
+        if self._work is None:
+            self._work = np.empty_like(rho)
+        return apply_gate_density_(rho, gate, self.n, self._work)
 
     def depolarize(self, rho: np.ndarray, qubits: tuple[int, ...], p: float) -> np.ndarray:
-        return depolarizing_channel(rho, self.n, qubits, p)
+        return depolarizing_channel_(rho, self.n, qubits, p)
 
     def _relax(self, rho: np.ndarray, q: int, gamma: float, dephase: float) -> np.ndarray:
         return relaxation_channel_(rho, self.n, q, gamma, dephase)
@@ -467,6 +482,22 @@ def _common_prefix(a: list[tuple], b: list[tuple]) -> int:
     return i
 
 
+def _restart_points(shared: list[int], j: int, start: int) -> list[int]:
+    """Prefix lengths of circuit ``j`` (in sorted order) at which a later circuit restarts:
+    circuit ``k + 1`` restarts at ``shared[k]``, reached through circuit ``j`` when it is at
+    most every ``shared[j..k]``, i.e. the running minima of ``shared[j:]`` above ``start``
+    (returned in increasing order)."""
+    points: list[int] = []
+    low = None
+    for m in shared[j:]:
+        low = m if low is None else min(low, m)
+        if low <= start:
+            break
+        if not points or low < points[-1]:
+            points.append(low)
+    return points[::-1]
+
+
 def simulate_distributions(
     circuits: Sequence[Circuit],
     noise: NoiseModel,
@@ -526,9 +557,8 @@ def simulate_distributions(
             stack.pop()
         top = stack[-1]
         pos = _Position(backend.copy(top.state), top.free_ns.copy(), top.n_gates)
-        nxt = shared[j] if j < len(shared) else 0
-        if nxt > pos.n_gates:  # the next circuit shares more of this one: keep that state
-            pos = _advance(backend, pos, gates, nxt)
+        for stop in _restart_points(shared, j, pos.n_gates):
+            pos = _advance(backend, pos, gates, stop)
             stack.append(_Position(backend.copy(pos.state), pos.free_ns.copy(), pos.n_gates))
         pos = _advance(backend, pos, gates, len(gates))
         out[i] = _finish(backend, pos)
