@@ -212,7 +212,15 @@ class DetSpace:
         if h1e.shape != (self.norb, self.norb):
             raise ValueError(f"h1e has shape {h1e.shape}, expected {(self.norb, self.norb)}")
         self._h2e = direct_spin1.absorb_h1e(h1e, eri, self.norb, self.nelec, 0.5)
+        self._h1e_eri = (h1e, eri)
         self.e_core = float(e_core)
+
+    def hamiltonian_diagonal(self) -> np.ndarray:
+        """Diagonal of ``H`` (electronic part) over the determinants (PySCF ``make_hdiag``)."""
+        if self._h2e is None:
+            raise RuntimeError("no Hamiltonian set on this DetSpace")
+        h1e, eri = self._h1e_eri
+        return np.asarray(direct_spin1.make_hdiag(h1e, eri, self.norb, self.nelec)).reshape(-1)
 
     @property
     def has_hamiltonian(self) -> bool:
@@ -342,6 +350,16 @@ class DetSpace:
             detkernels.rotate(
                 self._matrix(vec), gate.kind, a_map, b_map, np.cos(phi), np.sin(phi) * gate.sign
             )
+
+    def apply_s2(self, vec: np.ndarray) -> np.ndarray:
+        """``S^2|vec>`` for a flat real CI vector (PySCF ``fci.spin_op.contract_ss``),
+        single-threaded below :data:`SINGLE_THREAD_DIM` like :meth:`apply_h` (OpenMP start-up
+        dominated the small sectors by 40x on a shared machine)."""
+        from pyscf.fci import spin_op
+
+        with lib.with_omp_threads(self._threads):
+            out = spin_op.contract_ss(vec, self.norb, self.nelec)
+        return np.asarray(out).reshape(-1)
 
     def apply_excitation(
         self, gate: ExcitationGate, vec: np.ndarray, adjoint: bool = False

@@ -943,14 +943,25 @@ def run_states(
         ``trans_rdm1`` of the two CI vectors; qEOM: its commutator amplitude),
         ``natural_occupations``, ``evaluations``, ``params``.
     """
+    from pyscf import lib
+
+    from .detspace import SINGLE_THREAD_DIM
+
+    m = _resolve_methods(ansatz, optimizer, {"name": "exact"}, "jordan_wigner", None)
+    nelec = (int(nelec[0]), int(nelec[1]))
+    space = DetSpace(int(norb), nelec, np.asarray(h1e, float), np.asarray(eri, float), e_core)
+    # small sectors run single-threaded, as DetSpace.apply_h does (OpenMP start-up dominates)
+    with lib.with_omp_threads(1 if space.dim < SINGLE_THREAD_DIM else None):
+        return _run_states(m, space, states, ground_params, seed, dipole_parts)
+
+
+def _run_states(m: _Methods, space: DetSpace, states: dict, ground_params, seed, dipole_parts):
     from pyscf.fci import direct_spin1
 
     from ..chem.properties import transition_dipole
     from .excited import qeom, ssvqe, vqd
 
-    m = _resolve_methods(ansatz, optimizer, {"name": "exact"}, "jordan_wigner", None)
-    nelec = (int(nelec[0]), int(nelec[1]))
-    space = DetSpace(int(norb), nelec, np.asarray(h1e, float), np.asarray(eri, float), e_core)
+    nelec = space.nelec
     built = _build_fermionic(m, space, None, int(seed))
     name, n = states["name"], int(states["n_states"])
     mu = 0.0 if states["spin"] == "all" else float(states.get("spin_penalty", 0.0))
@@ -968,7 +979,13 @@ def run_states(
         )
     elif name == "ssvqe":
         found = ssvqe(
-            built.ansatz, n, m.optimizer, weights=states["weights"], mu=mu, seed=int(seed)
+            built.ansatz,
+            n,
+            m.optimizer,
+            weights=states["weights"],
+            mu=mu,
+            seed=int(seed),
+            start_scale=states["start_scale"],
         )
     elif name == "qeom":
         found = qeom(
