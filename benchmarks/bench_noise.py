@@ -17,8 +17,8 @@ error for both.
 
 Usage::
 
-    python benchmarks/bench_noise.py [--shots 16000] [--baseline-src /tmp/es-base]
-        [--baseline-timeout 600] [--json out.json]
+    python benchmarks/bench_noise.py [--shots 16000] [--scale-factors 1,3,5]
+        [--baseline-src /tmp/es-base] [--baseline-timeout 600] [--json out.json]
 """
 
 from __future__ import annotations
@@ -83,7 +83,7 @@ def _problem(folder: Path) -> dict:
     }
 
 
-def _worker(folder: Path, shots: int) -> dict:
+def _worker(folder: Path, shots: int, scales: tuple[int, ...]) -> dict:
     """Device run + reconcile of the stored point with whatever eigensweep is importable."""
     from eigensweep.circuit import Circuit
     from eigensweep.device.manifest import build_job
@@ -97,7 +97,9 @@ def _worker(folder: Path, shots: int) -> dict:
     circ = Circuit(int(spec["n_qubits"]))
     for name, qubits, params in spec["gates"]:
         circ.append(name, tuple(qubits), tuple(params))
-    job = build_job(circ, ham, shots_total=shots, job_name="bench-lih", meta={})
+    job = build_job(
+        circ, ham, shots_total=shots, scale_factors=scales, job_name="bench-lih", meta={}
+    )
     cpu0, t0 = time.process_time(), time.perf_counter()
     counts = run_synthetic_device(job, seed=1, **DEVICE_NOISE)
     t_device = time.perf_counter() - t0
@@ -115,11 +117,14 @@ def _worker(folder: Path, shots: int) -> dict:
     }
 
 
-def _run_child(folder: Path, shots: int, src: str | None, timeout: float | None) -> dict:
+def _run_child(
+    folder: Path, shots: int, scales: str, src: str | None, timeout: float | None
+) -> dict:
     env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
     if src:
         env["PYTHONPATH"] = str(Path(src) / "src") + os.pathsep + env.get("PYTHONPATH", "")
     args = [sys.executable, __file__, "--worker", str(folder), "--shots", str(shots)]
+    args += ["--scale-factors", scales]
     try:
         proc = subprocess.run(
             args, env=env, capture_output=True, text=True, check=False, timeout=timeout
@@ -144,25 +149,29 @@ def _line(label: str, row: dict) -> str:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--shots", type=int, default=16000)
+    ap.add_argument("--scale-factors", default="1,3,5", help="noise-scale factors of the job")
     ap.add_argument("--baseline-src", default=None)
     ap.add_argument("--baseline-timeout", type=float, default=600.0)
     ap.add_argument("--json", default=None)
     ap.add_argument("--worker", default=None, help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.worker:
-        print(json.dumps(_worker(Path(args.worker), args.shots)))
+        scales = tuple(int(k) for k in args.scale_factors.split(","))
+        print(json.dumps(_worker(Path(args.worker), args.shots, scales)))
         return
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         point = _problem(folder)
-        current = _run_child(folder, args.shots, None, None)
+        current = _run_child(folder, args.shots, args.scale_factors, None, None)
         baseline = None
         if args.baseline_src:
-            baseline = _run_child(folder, args.shots, args.baseline_src, args.baseline_timeout)
+            baseline = _run_child(
+                folder, args.shots, args.scale_factors, args.baseline_src, args.baseline_timeout
+            )
     print(
         f"LiH STO-3G tapered: {point['n_qubits']} qubits, {point['n_gates']} gates"
         f" ({point['cnot_count']} CNOTs) per state circuit, exact energy {point['energy']:.6f} Eh,"
-        f" {args.shots} shots"
+        f" {args.shots} shots, noise-scale factors {args.scale_factors}"
     )
     print(
         f"{'code':<10} {'circuits':>8} {'device_s':>9} {'reconcile_s':>11} {'wall_s':>7}"

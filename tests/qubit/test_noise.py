@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from functools import reduce
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -17,6 +18,8 @@ from eigensweep.qubit.noise import (
     relaxation_channel_,
     simulate_distributions,
 )
+
+REPO = Path(__file__).resolve().parents[2]
 
 PAULI = [
     np.eye(2),
@@ -227,3 +230,35 @@ def test_shared_prefixes_give_the_same_distributions_as_separate_runs():
     together = simulate_distributions([a, b, base], nm)
     apart = np.array([simulate_distributions([x], nm)[0] for x in (a, b, base)])
     np.testing.assert_allclose(together, apart, atol=1e-14)
+
+
+def test_native_two_qubit_gates_of_the_targets_act_on_both_indices():
+    # reference: the statevector simulation of the same circuit (no noise: rho = |psi><psi|)
+    from eigensweep.qubit.statevector import simulate
+
+    c = Circuit(3)
+    c.append("h", (0,))
+    c.append("rxx", (0, 2), (0.7,))
+    c.append("h", (1,))
+    c.append("cz", (1, 2))
+    c.append("ry", (2,), (0.4,))
+    probs = simulate_distributions([c], NoiseModel())[0]
+    np.testing.assert_allclose(probs, np.abs(simulate(c)) ** 2, atol=1e-12)
+
+
+def test_example_targets_give_their_noise_model_in_one_call():
+    # reference: the example target files read here with plain YAML
+    import yaml
+
+    from eigensweep.target import load_target
+
+    for path in sorted(REPO.glob("config/targets/*.yaml")):
+        raw = yaml.safe_load(path.read_text())
+        nm = NoiseModel.from_mapping(load_target(path).to_dict())
+        for name, entry in raw["gates"].items():
+            arity = 2 if name in ("cx", "cz", "rxx") else 1
+            assert nm.gate_noise(name, arity) == GateNoise(entry["error"], entry["duration_ns"])
+        assert list(nm.t1_us) == pytest.approx(raw["qubits"]["t1_us"])
+        layout = [3, 1, 0]
+        sub = nm.for_qubits(layout)
+        assert sub.readout_p10 == tuple(raw["qubits"]["readout_p10"][q] for q in layout)

@@ -76,7 +76,7 @@ __all__ = [
 #: Largest register simulated with a density matrix; trajectories above.
 MAX_DENSITY_QUBITS = 10
 #: Gate names read as two-qubit gates in a noise mapping (all others act on one qubit).
-TWO_QUBIT_NAMES = frozenset(TWO_QUBIT | {"cz", "cy", "ecr", "swap", "iswap", "rxx", "ryy", "rzz"})
+TWO_QUBIT_NAMES = frozenset(TWO_QUBIT | {"cy", "ecr", "swap", "iswap", "ryy", "rzz"})
 
 _PAULIS = (None, GATE_MATRICES["x"], GATE_MATRICES["y"], GATE_MATRICES["z"])
 
@@ -207,6 +207,15 @@ class NoiseModel:
             readout_p01=readout_p01,
             readout_p10=readout_p10,
         )
+
+    def for_qubits(self, physical: Sequence[int]) -> NoiseModel:
+        """The model of a sub-register: logical qubit ``k`` sits on ``physical[k]`` (a layout),
+        so per-qubit lists are picked at those positions (scalars stay)."""
+        picked = {}
+        for key in ("t1_us", "t2_us", "readout_p01", "readout_p10"):
+            value = getattr(self, key)
+            picked[key] = value if np.isscalar(value) else tuple(value[int(q)] for q in physical)
+        return NoiseModel(self.gates, self.default_1q, self.default_2q, **picked)
 
     def gate_noise(self, name: str, arity: int) -> GateNoise:
         """The noise of gate ``name`` acting on ``arity`` qubits."""

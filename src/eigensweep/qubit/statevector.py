@@ -393,6 +393,15 @@ def apply_gate_density_(rho: np.ndarray, gate: Gate, n_qubits: int, work: np.nda
         c, t = gate.qubits
         apply_cx(rho, c, t, out=work)
         return apply_cx(work, n + c, n + t, out=rho)
+    if gate.name == "cz":  # real: the same kernel on both indices
+        a, b = gate.qubits
+        rho[...] = apply_cz(apply_cz(rho, a, b), n + a, n + b)
+        return rho
+    if gate.name == "rxx":  # conj(rxx(t)) = rxx(-t)
+        a, b = gate.qubits
+        t = gate.params[0]
+        rho[...] = apply_rxx(apply_rxx(rho, a, b, t), n + a, n + b, -t)
+        return rho
     m = gate_matrix(gate)
     q = gate.qubits[0]
     apply_matrix_1q(rho, q, m, out=work)
