@@ -326,7 +326,7 @@ def _profile_dir(profile: str | None) -> Path:
     prof_dir = Path(profile) if Path(profile).is_dir() else repo_root() / "profiles" / profile
     if not (prof_dir / "config.yaml").is_file():
         raise EigensweepError(
-            f"--profile {profile}: no such profile; use default, slurm or a folder with config.yaml"
+            f"--profile {profile}: no such profile; use default, slurm, slurm-batch or a folder with config.yaml"
         )
     return prof_dir
 
@@ -359,6 +359,8 @@ def _snakemake_cmd(
     ]
     prof_dir = _profile_dir(args.profile)
     cmd += ["--workflow-profile", str(prof_dir)]
+    if (prof_dir / "jobscript.sh").is_file():  # a cluster profile's job script template
+        cmd += ["--jobscript", str(prof_dir / "jobscript.sh")]
     if unlock:
         return [*cmd, "--unlock"]
     cmd += ["--cores", str(args.cores or os.cpu_count() or 1)]
@@ -817,7 +819,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--config", help=f"sweep configuration (YAML); default {DEFAULT_CONFIG}")
     p.add_argument("--cores", type=int, help="cores to use (default: all)")
     p.add_argument(
-        "--profile", help="Snakemake profile: default (local machine), slurm, or a folder"
+        "--profile",
+        help="Snakemake profile: default (local machine), slurm (Slurm executor plugin), "
+        "slurm-batch (one interpreter per Slurm job), or a folder",
     )
     p.add_argument("-n", "--dry-run", action="store_true", help="show what would run")
     p.add_argument("--force", action="store_true", help="run problems above the config's limits")
