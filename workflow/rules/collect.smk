@@ -20,6 +20,11 @@ rule collect:
             caption="../report/summary.rst",
             category="Summary",
         ),
+        states=report(
+            get_study_file("states.csv"),
+            caption="../report/summary.rst",
+            category="Summary",
+        ),
         readme=get_study_file("README.md"),
         plots=[
             report(f, caption="../report/plots.rst", category="Plots")
