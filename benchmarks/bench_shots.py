@@ -109,19 +109,19 @@ def lih_optimizers(budget: int) -> dict[str, tuple[dict, int]]:
     """name -> (optimizer with ``max_shots = budget``, shots per energy or shifted circuit).
 
     SPSA runs with the schema defaults (Spall 1998 calibration, see config/README.md) and with
-    the ``first_step`` config/README.md advises for LiH at 1000 shots; its gain
+    the former default ``first_step`` 0.003 for comparison; its gain
     schedule depends on its length, so its ``maxiter`` is what the budget buys (two
     evaluations per iteration, about 1150 shots each after the estimator's rounding per group).
     """
     return {
         "spsa": ({"name": "spsa", "maxiter": max(budget // 2400, 10), "max_shots": budget}, 1000),
-        # the first step config/README.md advises for LiH-sized runs at 1000 shots
-        "spsa_first_step_0.001": (
+        # the former default first step, for comparison (config/README.md)
+        "spsa_first_step_0.003": (
             {
                 "name": "spsa",
                 "maxiter": max(budget // 2400, 10),
                 "max_shots": budget,
-                "first_step": 0.001,
+                "first_step": 0.003,
             },
             1000,
         ),

@@ -94,7 +94,7 @@ def test_noisy_estimator_biases_as_modelled():
 @pytest.mark.parametrize(
     "optimizer",
     [
-        {"name": "spsa", "maxiter": 300, "iterate_average": 30},
+        {"name": "spsa", "maxiter": 300, "iterate_average": 30, "first_step": 0.01},
         {"name": "rbf_surrogate", "maxiter": 120, "smoothing": 0.1},
     ],
 )
@@ -125,7 +125,7 @@ def test_fermionic_ansatz_with_shots_and_noise():
     m = active_integrals("H2")
     common = dict(
         ansatz={"name": "uccsd"},
-        optimizer={"name": "spsa", "maxiter": 60},
+        optimizer={"name": "spsa", "maxiter": 60, "first_step": 0.01},
         seed=1,
     )
     res = run_optimize(

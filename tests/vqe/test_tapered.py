@@ -141,7 +141,7 @@ def test_shots_on_tapered_problem_sample_the_tapered_hamiltonian():
     res = run_optimize(
         **problem(name)["ints"],
         ansatz={"name": "uccsd"},
-        optimizer={"name": "spsa", "maxiter": 200},
+        optimizer={"name": "spsa", "maxiter": 40, "first_step": 0.01},
         estimator={"name": "shots", "shots": 4000, "final_shots": 40000},
         mapping=mapping,
         tapering=tapering(name, mapping),
