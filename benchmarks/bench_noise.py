@@ -40,24 +40,13 @@ DEVICE_NOISE = {"readout_error": (0.02, 0.04), "depolarizing_1q": 0.001, "depola
 
 def _problem(folder: Path) -> dict:
     """Build the tapered LiH point with the current code; store circuit and Hamiltonian."""
-    from pyscf import ao2mo, gto, scf
+    from _molecules import rhf_integrals
 
     from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
     from eigensweep.vqe import circuit_from_meta, run_optimize
 
-    mol = gto.M(atom="Li 0 0 0; H 0 0 1.595", basis="sto-3g", symmetry=True, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    norb = c.shape[1]
-    ints = {
-        "h1e": c.T @ mf.get_hcore() @ c,
-        "eri": ao2mo.restore(1, ao2mo.kernel(mol, c), norb),
-        "e_core": float(mol.energy_nuc()),
-        "norb": int(norb),
-        "nelec": (int(mol.nelec[0]), int(mol.nelec[1])),
-    }
+    ints, _ = rhf_integrals("Li 0 0 0; H 0 0 1.595")
+    norb = ints["norb"]
     mapping = "jordan_wigner"
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], mapping)
     tap = reduce_to_sector(ham, reference_bits(ints["nelec"], norb, mapping))

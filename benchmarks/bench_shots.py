@@ -31,7 +31,8 @@ import math
 import time
 
 import numpy as np
-from pyscf import ao2mo, fci, gto, scf
+from _molecules import rhf_integrals
+from pyscf import fci
 
 from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
 from eigensweep.vqe import engine, run_optimize
@@ -41,19 +42,7 @@ GEOMETRY = {"H2": "H 0 0 0; H 0 0 0.74", "LiH": "Li 0 0 0; H 0 0 1.595"}
 
 
 def problem(name: str) -> tuple[dict, float, object]:
-    mol = gto.M(atom=GEOMETRY[name], basis="sto-3g", symmetry=True, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    norb = c.shape[1]
-    ints = {
-        "h1e": c.T @ mf.get_hcore() @ c,
-        "eri": ao2mo.restore(1, ao2mo.kernel(mol, c), norb),
-        "e_core": float(mol.energy_nuc()),
-        "norb": int(norb),
-        "nelec": (int(mol.nelec[0]), int(mol.nelec[1])),
-    }
+    ints, mf = rhf_integrals(GEOMETRY[name])
     e_fci = float(fci.FCI(mf).kernel()[0])
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], "jordan_wigner")
     tap = reduce_to_sector(ham, reference_bits(ints["nelec"], ints["norb"], "jordan_wigner"))

@@ -23,7 +23,7 @@ import argparse
 import time
 from pathlib import Path
 
-from pyscf import ao2mo, gto, scf
+from _molecules import rhf_integrals
 
 from eigensweep.device.compile import compile_for_target, estimate_cost
 from eigensweep.qubit import map_hamiltonian, reduce_to_sector, reference_bits
@@ -43,17 +43,8 @@ TARGETS = ("chain12-demo", "grid3x4-demo", "ion12-demo")
 def uccsd_circuit(name: str):
     """The UCCSD circuit of ``name`` (see the module docstring) and its qubit count."""
     atoms, tapered = GEOMETRIES[name]
-    mol = gto.M(atom=atoms, basis="sto-3g", symmetry=True, verbose=0)
-    mf = scf.RHF(mol).run()
-    c = mf.mo_coeff
-    norb = c.shape[1]
-    ints = {
-        "h1e": c.T @ mf.get_hcore() @ c,
-        "eri": ao2mo.restore(1, ao2mo.kernel(mol, c), norb),
-        "e_core": float(mol.energy_nuc()),
-        "norb": int(norb),
-        "nelec": (int(mol.nelec[0]), int(mol.nelec[1])),
-    }
+    ints, _ = rhf_integrals(atoms, conv_tol=None)
+    norb = ints["norb"]
     ham = map_hamiltonian(ints["h1e"], ints["eri"], ints["e_core"], "jordan_wigner")
     bits = reference_bits(ints["nelec"], norb, "jordan_wigner")
     tap = reduce_to_sector(ham, bits) if tapered else None
