@@ -22,7 +22,7 @@ def test_key_is_sha256_of_canonical_identity():
     # (the key definition in DESIGN.md), independent of stage_table.canonical_json
     params = {"mapping": "parity", "b": [1, 2.5]}
     blob = json.dumps(
-        {"stage": "hamiltonian", "version": 1, "params": params, "parents": {"integrals": "a"}},
+        {"stage": "hamiltonian", "version": 2, "params": params, "parents": {"integrals": "a"}},
         sort_keys=True,
         separators=(",", ":"),
     )

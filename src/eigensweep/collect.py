@@ -503,6 +503,19 @@ def state_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
             tdm = np.zeros((1, 3))
             noon = np.asarray(a.get("natural_occupations", np.zeros(0)), float).reshape(1, -1)
         e_ex, s2_ex, dip_ex, tdm_ex = _exact_roots(ints.arrays, spin)
+        sector_note = ""
+        if (
+            "states/energy" in a
+            and opt.meta.get("tapered")
+            and opt.meta.get("n_qubits", 0) < 2 * int(ints.meta.get("norb", 0))
+        ):
+            # tapered: the states of the reference's symmetry sector only; the stored roots
+            # (all symmetries) are compared with the ground state alone
+            e_ex, s2_ex, dip_ex, tdm_ex = e_ex[:1], s2_ex[:1], dip_ex[:1], tdm_ex[:1]
+            sector_note = (
+                "tapered: states of the reference's symmetry sector only; the stored exact "
+                "roots are not resolved by symmetry, so excited states have no energy_exact"
+            )
         for k, e in enumerate(energies):
             has = k < len(e_ex)
             ex = float(e_ex[k]) if has else math.nan
@@ -531,9 +544,8 @@ def state_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
                     ),
                     "natural_occupations": " ".join(f"{x:.6f}" for x in noon[k]),
                     "key": row["key"],
-                    "notes": _other_spin_note(
-                        ints.arrays, spin, ex, float(s2_ex[k]) if has else 0.0
-                    ),
+                    "notes": (sector_note if k else "")
+                    or _other_spin_note(ints.arrays, spin, ex, float(s2_ex[k]) if has else 0.0),
                     **_scan_columns(row),
                     "converged": opt.meta.get("converged", ""),  # figures ring the others
                 }

@@ -395,9 +395,10 @@ def check_combination(
 
     Independent of taper and mapping (checked when ``optimizer``/``estimator`` are given):
     the gradient optimizers ``lbfgs``/``bfgs`` and the ``adapt`` ansatz need the ``exact``
-    estimator. Excited-state methods (``states`` other than ``ground``) run in determinant
-    space: ``uccsd`` or ``kupccgsd``, ``taper: false``, the ``exact`` estimator, and for
-    ``vqd``/``ssvqe`` a gradient optimizer (:mod:`eigensweep.vqe.excited`).
+    estimator. Excited-state methods (``states`` other than ``ground``) run where the ground
+    state runs (determinant space untapered, the tapered statevector tapered): ``uccsd`` or
+    ``kupccgsd``, the ``exact`` estimator, and for ``vqd``/``ssvqe`` a gradient optimizer
+    (:mod:`eigensweep.vqe.excited`).
     """
     a_cfg = complete_method("ansatz", ansatz)
     if not isinstance(taper, bool) and type(taper).__name__ != "bool_":
@@ -422,10 +423,10 @@ def _check_states(
 ) -> None:
     if states == "ground":
         return
-    if ansatz not in ("uccsd", "kupccgsd") or taper:
+    if ansatz not in ("uccsd", "kupccgsd"):
         raise ConfigError(
-            f"states.name: {states!r} runs in determinant space: use ansatz uccsd or kupccgsd "
-            "with methods.taper false"
+            f"states.name: {states!r} needs a fermionic ansatz (determinant space, or the "
+            "tapered statevector with taper true): use ansatz uccsd or kupccgsd"
         )
     if estimator not in (None, "exact"):
         raise ConfigError(f"states.name: {states!r} needs the exact estimator")

@@ -71,15 +71,15 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "hamiltonian",
-        1,
+        2,
         "run_hamiltonian",
         {"integrals": "integrals"},
         ("stage",),
-        "fermion-to-qubit mapping, number and S_z operators, measurement costs",
+        "fermion-to-qubit mapping, number, S_z and S^2 operators, measurement costs",
     ),
     _spec(
         "taper",
-        2,
+        3,
         "run_taper",
         {"hamiltonian": "hamiltonian", "integrals": "integrals"},
         ("stage",),

@@ -99,13 +99,15 @@ def sector_check(ham, ints, mapping: str, key: str, taper=None) -> dict:
 def run_hamiltonian(
     node: Node, inputs: dict[str, str], output: str, progress: Progress = None
 ) -> None:
-    """Map the active-space Hamiltonian to qubits; number and S_z operators; measurement costs."""
+    """Map the active-space Hamiltonian to qubits; number, S_z and S^2 operators; measurement
+    costs."""
     from .qubit import (
         map_hamiltonian,
         number_operator,
         qwc_groups,
         reference_bits,
         shots_for_precision,
+        spin_square_operator,
         sz_operator,
     )
 
@@ -116,6 +118,7 @@ def run_hamiltonian(
         n_qubits = ham.n_qubits
         num = number_operator(n_qubits, mapping)
         sz = sz_operator(n_qubits, mapping)
+        s2 = spin_square_operator(n_qubits, mapping)
         ref = reference_bits(ints.nelec, ints.norb, mapping)
         groups = qwc_groups(ham)
         shots = shots_for_precision(ham, groups=groups)
@@ -124,6 +127,7 @@ def run_hamiltonian(
         **ham.to_store("hamiltonian/"),
         **num.to_store("number/"),
         **sz.to_store("spin_z/"),
+        **s2.to_store("spin_square/"),
         "reference_bits": np.asarray(ref, dtype=np.uint8),
     }
     meta = {
@@ -138,15 +142,20 @@ def run_hamiltonian(
         "norb": ints.norb,
     }
     _say(progress, f"hamiltonian {node.key}: {mapping}, {n_qubits} qubits, {ham.n_terms} terms")
-    units = {"hamiltonian/coeffs": "hartree", "spin_z/coeffs": "hbar"}
+    units = {
+        "hamiltonian/coeffs": "hartree",
+        "spin_z/coeffs": "hbar",
+        "spin_square/coeffs": "hbar^2",
+    }
     _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
 def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progress = None) -> None:
     """Z2 tapering (or the identity stage that records 'no tapering').
 
-    Reads the Hamiltonian, reference bits and number / S_z operators the hamiltonian stage
-    stored; writes the (tapered) problem, the tapered number and S_z operators, and the Z2
+    Reads the Hamiltonian, reference bits and number / S_z / S^2 operators the hamiltonian
+    stage stored; writes the (tapered) problem, the tapered number, S_z and S^2 operators
+    (the excited-state methods' spin penalty and ``<S^2>``, ``<N>``), and the Z2
     generators with their sector (``z2/``, also when tapering is off) for later stages.
     """
     from .qubit import (
@@ -171,6 +180,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
             z2, _, z2_sector = diagonal_symmetries(ham, ref)
         number = res.taper_operator(PauliExpansion.from_store(sd.arrays, "number/"))
         spin_z = res.taper_operator(PauliExpansion.from_store(sd.arrays, "spin_z/"))
+        spin_square = res.taper_operator(PauliExpansion.from_store(sd.arrays, "spin_square/"))
         # measurement cost of the problem the optimizer and the device will see
         tham = res.hamiltonian
         groups = qwc_groups(tham)
@@ -187,6 +197,7 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         **res.to_store("taper/"),
         **number.to_store("number/"),
         **spin_z.to_store("spin_z/"),
+        **spin_square.to_store("spin_square/"),
         **z2.to_store("z2/generators/"),
         "z2/sector": np.asarray(z2_sector, dtype=np.int8),
     }
@@ -209,7 +220,11 @@ def run_taper(node: Node, inputs: dict[str, str], output: str, progress: Progres
         ),
     }
     _say(progress, f"taper {node.key}: {res.n_qubits_before} -> {res.hamiltonian.n_qubits} qubits")
-    units = {"taper/hamiltonian_coeffs": "hartree", "spin_z/coeffs": "hbar"}
+    units = {
+        "taper/hamiltonian_coeffs": "hartree",
+        "spin_z/coeffs": "hbar",
+        "spin_square/coeffs": "hbar^2",
+    }
     _write(node, output, arrays=arrays, meta=meta, units=units, wall_s=t.seconds)
 
 
@@ -309,12 +324,19 @@ STATE_ARRAYS = {
 
 
 def _run_states(node: Node, inputs: dict[str, str], output: str, progress: Progress) -> None:
-    """Excited states on top of the ``ground`` parent's optimized ground state."""
+    """Excited states on top of the ``ground`` parent's optimized ground state, in the
+    taper parent's frame (its reduction, tapered number and S^2 operators)."""
+    from .qubit import PauliExpansion
     from .vqe.engine import run_states
 
     p = node.params
     ints = load_integrals(inputs["integrals"])
     ground = read_stage(inputs["ground"], stage="optimize")
+    tap, tap_sd = load_taper(inputs["taper"])
+    operators = {
+        name: PauliExpansion.from_store(tap_sd.arrays, f"{name}/")
+        for name in ("number", "spin_square")
+    }
     with Timer() as t:
         found = run_states(
             h1e=ints.h1e,
@@ -328,6 +350,9 @@ def _run_states(node: Node, inputs: dict[str, str], output: str, progress: Progr
             ground_params=ground.arrays["params"],
             seed=p["seed"],
             dipole_parts=(ints.dipole_active, ints.dipole_core, ints.dipole_nuclear),
+            mapping=tap_sd.meta["mapping"],
+            tapering=tap,
+            operators=operators,
         )
     arrays = dict(ground.arrays)
     for name in STATE_ARRAYS:

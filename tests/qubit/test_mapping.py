@@ -198,3 +198,34 @@ def test_schema_mapping_names_are_the_implemented_mappings():
 
     enum = load_schema()["properties"]["methods"]["properties"]["mapping"]["items"]["enum"]
     assert tuple(enum) == MAPPINGS
+
+
+@pytest.mark.parametrize("mapping", ["jordan_wigner", "bravyi_kitaev", "parity"])
+def test_spin_square_operator_matches_pyscf_spin_square_of_fci_roots(mapping):
+    from pyscf import ao2mo, fci, gto, scf
+
+    from eigensweep.qubit import reduce_to_sector, spin_square_operator
+    from eigensweep.qubit.mapping import encode_state
+    from eigensweep.vqe.detspace import to_qubit_state
+
+    mol = gto.M(atom="H 0 0 0; H 0 0 2.0", basis="6-31g", symmetry=True, verbose=0)
+    mf = scf.RHF(mol).run(conv_tol=1e-12)
+    c = mf.mo_coeff
+    h1 = c.T @ mf.get_hcore() @ c
+    eri = ao2mo.restore(1, ao2mo.kernel(mol, c), mol.nao)
+    _, roots = fci.direct_spin1.FCI(mol).kernel(h1, eri, mol.nao, mol.nelec, nroots=4)
+    s2 = spin_square_operator(2 * mol.nao, mapping)
+    ham = map_hamiltonian(h1, eri, mol.energy_nuc(), mapping)
+    tap = reduce_to_sector(ham, reference_bits(mol.nelec, mol.nao, mapping))
+    s2_tapered = tap.taper_operator(s2)  # commutes with every Z2 symmetry: taperable
+    seen = set()
+    for v in roots:
+        ref = fci.spin_square(v, mol.nao, mol.nelec)[0]
+        seen.add(round(ref))
+        psi = encode_state(to_qubit_state(v, mol.nao, mol.nelec), mapping)
+        # reference: PySCF fci.spin_square of the FCI root (singlets 0, the triplet 2)
+        assert expectation(psi, s2) == pytest.approx(ref, abs=1e-8)
+        phi = tap.taper_state(psi)
+        if np.vdot(phi, phi).real > 0.5:  # roots inside the reference's sector
+            assert expectation(phi, s2_tapered) == pytest.approx(ref, abs=1e-8)
+    assert seen == {0, 2}

@@ -23,6 +23,7 @@ from .mapping import (
     map_hamiltonian,
     number_operator,
     reference_bits,
+    spin_square_operator,
     sz_operator,
 )
 from .pauli import PauliExpansion
@@ -68,6 +69,7 @@ __all__ = [
     "sector_ground_energy",
     "shots_for_precision",
     "simulate",
+    "spin_square_operator",
     "sz_operator",
     "reduce_to_sector",
     "diagonal_symmetries",

@@ -44,6 +44,7 @@ __all__ = [
     "map_hamiltonian",
     "map_fermion_operator",
     "number_operator",
+    "spin_square_operator",
     "sz_operator",
     "reference_bits",
     "check_mapping",
@@ -306,6 +307,40 @@ def sz_operator(n_qubits: int, mapping: str) -> PauliExpansion:
     op = FermionOperator()
     for k in range(n):
         op += FermionOperator(((k, 1), (k, 0)), 0.5 if k % 2 == 0 else -0.5)
+    return map_fermion_operator(op, n, mapping)
+
+
+def spin_square_operator(n_qubits: int, mapping: str) -> PauliExpansion:
+    """Total spin ``S^2 = S_- S_+ + S_z (S_z + 1)`` (interleaved alpha/beta) under ``mapping``.
+
+    ``S_+ = sum_p a^+_{2p} a_{2p+1}``, ``S_- = S_+^dagger`` and ``S_z`` as in
+    :func:`sz_operator` (Helgaker, Jorgensen, Olsen, Molecular Electronic-Structure Theory
+    (2000), section 2.4 - from memory). It conserves ``N_alpha`` and ``N_beta`` and every
+    orbital's occupation, so it commutes with the Z2 symmetries of a molecular Hamiltonian and
+    can be tapered like ``N`` and ``S_z``.
+
+    Args:
+        n_qubits: number of spin orbitals (even).
+        mapping: one of :data:`MAPPINGS`.
+
+    Returns:
+        The mapped operator (terms ``|c| <= 1e-12`` dropped).
+    """
+    from openfermion import FermionOperator, normal_ordered
+
+    n = _check_n_qubits(n_qubits)
+    if n % 2:
+        raise ConfigError(f"S^2 needs an even number of spin orbitals, got {n}")
+    s_plus = FermionOperator()
+    s_z = FermionOperator()
+    for p in range(n // 2):
+        s_plus += FermionOperator(((2 * p, 1), (2 * p + 1, 0)))
+        s_z += FermionOperator(((2 * p, 1), (2 * p, 0)), 0.5)
+        s_z += FermionOperator(((2 * p + 1, 1), (2 * p + 1, 0)), -0.5)
+    s_minus = FermionOperator()
+    for p in range(n // 2):
+        s_minus += FermionOperator(((2 * p + 1, 1), (2 * p, 0)))
+    op = normal_ordered(s_minus * s_plus + s_z * s_z + s_z)
     return map_fermion_operator(op, n, mapping)
 
 

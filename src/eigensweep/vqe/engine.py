@@ -925,17 +925,27 @@ def run_states(
     ground_params: np.ndarray,
     seed: int = 0,
     dipole_parts: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    mapping: str = "jordan_wigner",
+    tapering: SectorReduction | None = None,
+    operators: dict[str, PauliExpansion] | None = None,
 ) -> list[dict]:
     """Excited states of one job (:mod:`eigensweep.vqe.excited`) with their properties.
 
+    The frame is chosen as :func:`run_optimize` chooses it for the ground state: determinant
+    space for an untapered problem, the tapered statevector when ``tapering`` has generators.
+
     Args:
         h1e, eri, e_core, norb, nelec: active-space integrals.
-        ansatz, optimizer: the job's method configs (a fermionic ansatz, determinant space).
+        ansatz, optimizer: the job's method configs (a fermionic ansatz).
         states: the completed ``methods.states`` entry (``vqd``, ``ssvqe`` or ``qeom``).
         ground_params: optimized parameters of the ground-state job (VQD's state 0, qEOM's
-            ground state).
+            ground state); on a tapered problem those of the tapered ansatz.
         seed: seed of the VQD starting points.
         dipole_parts: ``(dipole_active, dipole_core, dipole_nuclear)`` of the integrals.
+        mapping: the problem's mapping (the taper stage's).
+        tapering: the taper stage's reduction.
+        operators: ``{"number": N, "spin_square": S^2}`` in the tapered frame, as the taper
+            stage stored them (needed when ``tapering`` has generators).
 
     Returns:
         One dict per state (state 0 first): ``energy``, ``spin_square``, ``n_electrons``,
@@ -946,77 +956,91 @@ def run_states(
     from pyscf import lib
 
     from .detspace import SINGLE_THREAD_DIM
+    from .excited import DetFrame, QubitFrame
 
-    m = _resolve_methods(ansatz, optimizer, {"name": "exact"}, "jordan_wigner", None)
+    m = _resolve_methods(ansatz, optimizer, {"name": "exact"}, mapping, tapering)
     nelec = (int(nelec[0]), int(nelec[1]))
     space = DetSpace(int(norb), nelec, np.asarray(h1e, float), np.asarray(eri, float), e_core)
+    if m.tapered:
+        if operators is None or not {"number", "spin_square"} <= set(operators):
+            raise ConfigError("operators: a tapered problem needs the stored number and S^2")
+        frame: Any = QubitFrame(
+            space,
+            tapering.hamiltonian,
+            operators["spin_square"],
+            operators["number"],
+            m.mapping,
+            tapering,
+        )
+    else:
+        frame = DetFrame(space)
+    built = _build_fermionic(m, space, tapering, int(seed))
     # small sectors run single-threaded, as DetSpace.apply_h does (OpenMP start-up dominates)
     with lib.with_omp_threads(1 if space.dim < SINGLE_THREAD_DIM else None):
-        return _run_states(m, space, states, ground_params, seed, dipole_parts)
+        found = _find_states(m, built, frame, states, ground_params, seed, dipole_parts)
+        return [_state_properties(frame, found, k, dipole_parts) for k in range(len(found))]
 
 
-def _run_states(m: _Methods, space: DetSpace, states: dict, ground_params, seed, dipole_parts):
-    from pyscf.fci import direct_spin1
-
-    from ..chem.properties import transition_dipole
+def _find_states(
+    m: _Methods, built: _Built, frame, states: dict, ground_params, seed, dipole_parts
+):
+    """The states of the method (:mod:`eigensweep.vqe.excited`), vectors in ``frame``."""
     from .excited import qeom, ssvqe, vqd
 
-    nelec = space.nelec
-    built = _build_fermionic(m, space, None, int(seed))
     name, n = states["name"], int(states["n_states"])
     mu = 0.0 if states["spin"] == "all" else float(states.get("spin_penalty", 0.0))
     g = np.asarray(ground_params, dtype=float)
-    if name == "vqd":
-        found = vqd(
-            built.ansatz,
-            n,
-            g,
-            m.optimizer,
-            weights=states["weights"],
-            mu=mu,
-            seed=int(seed),
-            start_scale=states["start_scale"],
-        )
-    elif name == "ssvqe":
-        found = ssvqe(
-            built.ansatz,
-            n,
-            m.optimizer,
-            weights=states["weights"],
-            mu=mu,
-            seed=int(seed),
-            start_scale=states["start_scale"],
-        )
-    elif name == "qeom":
+    if name in ("vqd", "ssvqe"):
+        common = {
+            "weights": states["weights"],
+            "mu": mu,
+            "seed": int(seed),
+            "start_scale": states["start_scale"],
+            "frame": frame,
+        }
+        if name == "vqd":
+            return vqd(built.ansatz, n, g, m.optimizer, **common)
+        return ssvqe(built.ansatz, n, m.optimizer, **common)
+    if name == "qeom":
         found = qeom(
-            space,
-            built.ansatz.state(g),
+            frame.space,
+            frame.civec(built.ansatz.state(g)),
             n,
             spin_filter=states["spin"] != "all",
             dipole_active=None if dipole_parts is None else dipole_parts[0],
+            allowed=frame.allows,
         )
-    else:
-        raise ConfigError(f"states.name: {name!r} is not an excited-state method")
-    out = []
-    for k, st in enumerate(found):
-        rdm1 = state_rdm1(st.vector, space.norb, nelec)
-        props = _properties(rdm1, dipole_parts)
-        tdm = np.zeros(3)
-        if k and st.transition_dipole is not None:
-            tdm = np.asarray(st.transition_dipole, float)
-        elif k and dipole_parts is not None:
-            t = direct_spin1.trans_rdm1(found[0].vector, st.vector, space.norb, nelec)
-            tdm = transition_dipole(t, dipole_parts[0])
-        out.append(
-            {
-                "energy": float(st.energy),
-                "spin_square": float(st.spin_square),
-                "n_electrons": float(sum(nelec)),
-                "dipole": np.asarray(props.get("dipole", np.full(3, np.nan)), float),
-                "transition_dipole": tdm,
-                "natural_occupations": props.get("natural_occupations", np.zeros(0)),
-                "evaluations": int(st.evaluations),
-                "params": np.asarray(st.params, float),
-            }
-        )
-    return out
+        for st in found:  # back into the frame: <S^2> and <N> from the frame's operators
+            st.vector = frame.carry(st.vector)
+            st.spin_square = frame.spin_square(st.vector)
+            st.n_electrons = frame.n_electrons(st.vector)
+        return found
+    raise ConfigError(f"states.name: {name!r} is not an excited-state method")
+
+
+def _state_properties(frame, found: list, k: int, dipole_parts) -> dict:
+    """Energy, ``<S^2>``, ``<N>``, dipole, transition dipole from state 0 and natural
+    occupations of state ``k`` (1-RDMs of the CI vectors)."""
+    from pyscf.fci import direct_spin1
+
+    from ..chem.properties import transition_dipole
+
+    space, st = frame.space, found[k]
+    civec = frame.civec(st.vector)
+    props = _properties(state_rdm1(civec, space.norb, space.nelec), dipole_parts)
+    tdm = np.zeros(3)
+    if k and st.transition_dipole is not None:
+        tdm = np.asarray(st.transition_dipole, float)
+    elif k and dipole_parts is not None:
+        t = direct_spin1.trans_rdm1(frame.civec(found[0].vector), civec, space.norb, space.nelec)
+        tdm = transition_dipole(t, dipole_parts[0])
+    return {
+        "energy": float(st.energy),
+        "spin_square": float(st.spin_square),
+        "n_electrons": float(st.n_electrons),
+        "dipole": np.asarray(props.get("dipole", np.full(3, np.nan)), float),
+        "transition_dipole": tdm,
+        "natural_occupations": props.get("natural_occupations", np.zeros(0)),
+        "evaluations": int(st.evaluations),
+        "params": np.asarray(st.params, float),
+    }

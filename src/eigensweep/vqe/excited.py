@@ -1,7 +1,21 @@
-"""Excited states in determinant space: VQD, weighted SSVQE and qEOM (exact estimator).
+"""Excited states: VQD, weighted SSVQE and qEOM (exact estimator).
 
-All three run on the determinant-space emulator (:mod:`eigensweep.vqe.detspace`) with a
-fermionic ansatz (UCCSD, k-UpCCGSD) and exact expectation values:
+All three take a fermionic ansatz (UCCSD, k-UpCCGSD) and run in one of two frames, chosen as
+the ground-state optimizer chooses (:mod:`eigensweep.vqe.engine`):
+
+* :class:`DetFrame` - the determinant-space emulator (:mod:`eigensweep.vqe.detspace`), for
+  untapered problems;
+* :class:`QubitFrame` - the qubit statevector (:mod:`eigensweep.qubit.statevector`) of the
+  mapping's encoding, Z2-tapered when the problem is (the ansatz is then
+  :class:`~eigensweep.vqe.tapered.TaperedFermionicAnsatz`). Energies, the spin penalty,
+  ``<S^2>`` and ``<N>`` use the qubit operators the hamiltonian and taper stages stored; every
+  state stays in the reference's symmetry sector (tapering keeps one sector only, so the
+  states found are the lowest ones *of that sector*, e.g. only the ``Sigma_g^+`` singlets of
+  H2). Initial states, VQD gap-bound vectors and the qEOM manifold are built in determinant
+  space (the one excitation builder) and carried into the frame by the encoding and the
+  taper stage's Clifford (:meth:`QubitFrame.carry`); those outside the sector are dropped.
+  qEOM's matrices are formed from the optimized statevector decoded to its CI vector
+  (:meth:`QubitFrame.civec`) with the symmetry-allowed excitations only.
 
 * ``vqd`` - variational quantum deflation (Higgott, Wang, Brierley, Quantum 3, 156 (2019)):
   state ``k`` minimises ``<H'> + sum_{j<k} beta_j |<psi_j|psi_k>|^2`` over the lower states
@@ -38,6 +52,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from pyscf import lib
@@ -45,11 +60,17 @@ from pyscf.fci import direct_spin1
 
 from ..chem.exact import civec_spin_square
 from .detspace import DetSpace
-from .fermionic import FermionicAnsatz, sd_excitation_terms
+from .fermionic import sd_excitation_terms
 from .optimizers import minimize
 
+if TYPE_CHECKING:
+    from ..qubit.pauli import PauliExpansion
+    from ..qubit.taper import SectorReduction
+
 __all__ = [
+    "DetFrame",
     "ExcitedState",
+    "QubitFrame",
     "VQD_MARGIN_EH",
     "gap_bound_weights",
     "qeom",
@@ -76,6 +97,7 @@ class ExcitedState:
             qEOM: empty).
         evaluations: objective evaluations spent on this state.
         transition_dipole: qEOM's ``<0|mu|n>`` (e a0), else None (formed from vectors).
+        n_electrons: ``<N>`` of ``vector``.
     """
 
     energy: float
@@ -84,6 +106,7 @@ class ExcitedState:
     params: np.ndarray = field(default_factory=lambda: np.zeros(0))
     evaluations: int = 0
     transition_dipole: np.ndarray | None = None
+    n_electrons: float = math.nan
 
 
 def _target_s2(space: DetSpace) -> float:
@@ -91,34 +114,183 @@ def _target_s2(space: DetSpace) -> float:
     return s * (s + 1)
 
 
-def penalised(space: DetSpace, mu: float) -> Callable[[np.ndarray], np.ndarray]:
-    """``psi -> (H + mu (S^2 - S(S+1))) psi`` (electronic part; module docstring)."""
-    target = _target_s2(space)
+class DetFrame:
+    """States as flat real CI vectors of the ``(N_alpha, N_beta)`` sector of ``space``.
+
+    ``apply_h`` is the electronic part; ``e_core`` is added to expectation values."""
+
+    def __init__(self, space: DetSpace) -> None:
+        self.space = space
+        self.e_core = float(space.e_core)
+        self.target_s2 = _target_s2(space)
+
+    def apply_h(self, psi: np.ndarray) -> np.ndarray:
+        return self.space.apply_h(psi)
+
+    def apply_s2(self, psi: np.ndarray) -> np.ndarray:
+        return self.space.apply_s2(psi)
+
+    def inner(self, bra: np.ndarray, ket: np.ndarray) -> float:
+        return float(bra @ ket)
+
+    def energy(self, psi: np.ndarray) -> float:
+        return self.space.energy(psi)
+
+    def spin_square(self, psi: np.ndarray) -> float:
+        return civec_spin_square(psi, self.space.norb, self.space.nelec)
+
+    def n_electrons(self, psi: np.ndarray) -> float:
+        return float(sum(self.space.nelec))
+
+    def carry(self, civec: np.ndarray) -> np.ndarray | None:
+        """A CI vector in this frame (itself)."""
+        return civec
+
+    def civec(self, psi: np.ndarray) -> np.ndarray:
+        """The CI vector of a state of this frame (itself)."""
+        return np.asarray(psi, float)
+
+    def allows(self, term) -> bool:
+        """Every excitation keeps a determinant-space state in the frame."""
+        return True
+
+
+class QubitFrame:
+    """States as statevectors of ``mapping``'s encoding, tapered by ``tapering`` when it has
+    generators (module docstring).
+
+    Args:
+        space: the determinant space of the integrals (the order of determinants by diagonal
+            energy, and the CI vectors states are decoded to).
+        hamiltonian: the qubit Hamiltonian of the frame (constant included: ``e_core`` is 0).
+        spin_square, number: ``S^2`` and ``N`` in the frame (the taper stage's operators).
+        mapping: the encoding.
+        tapering: the taper stage's reduction (None or no generators: untapered).
+    """
+
+    def __init__(
+        self,
+        space: DetSpace,
+        hamiltonian: PauliExpansion,
+        spin_square: PauliExpansion,
+        number: PauliExpansion,
+        mapping: str,
+        tapering: SectorReduction | None = None,
+    ) -> None:
+        for name, op in (("spin_square", spin_square), ("number", number)):
+            if op.n_qubits != hamiltonian.n_qubits:
+                raise ValueError(
+                    f"{name} acts on {op.n_qubits} qubits, the Hamiltonian on "
+                    f"{hamiltonian.n_qubits}"
+                )
+        self.space = space
+        self.hamiltonian, self._s2, self._number = hamiltonian, spin_square, number
+        self.mapping = mapping
+        self.tapering = tapering if tapering is not None and tapering.generators.n_terms else None
+        self.e_core = 0.0
+        self.target_s2 = _target_s2(space)
+        self._allowed: dict = {}
+
+    def apply_h(self, psi: np.ndarray) -> np.ndarray:
+        from ..qubit.statevector import apply_pauli_expansion
+
+        return apply_pauli_expansion(psi, self.hamiltonian)
+
+    def apply_s2(self, psi: np.ndarray) -> np.ndarray:
+        from ..qubit.statevector import apply_pauli_expansion
+
+        return apply_pauli_expansion(psi, self._s2)
+
+    def inner(self, bra: np.ndarray, ket: np.ndarray) -> complex:
+        return complex(np.vdot(bra, ket))
+
+    def energy(self, psi: np.ndarray) -> float:
+        from ..qubit.statevector import expectation
+
+        return float(expectation(psi, self.hamiltonian))
+
+    def spin_square(self, psi: np.ndarray) -> float:
+        from ..qubit.statevector import expectation
+
+        return float(expectation(psi, self._s2))
+
+    def n_electrons(self, psi: np.ndarray) -> float:
+        from ..qubit.statevector import expectation
+
+        return float(expectation(psi, self._number))
+
+    def carry(self, civec: np.ndarray) -> np.ndarray | None:
+        """The statevector of a normalised CI vector: encoded, then tapered with the taper
+        stage's Clifford and sector; None when the vector lies (partly) outside the sector."""
+        from ..qubit.mapping import encode_state
+        from .detspace import to_qubit_state
+
+        space = self.space
+        psi = encode_state(to_qubit_state(civec, space.norb, space.nelec), self.mapping)
+        if self.tapering is None:
+            return psi
+        out = self.tapering.taper_state(psi)
+        norm2 = float(np.vdot(out, out).real)
+        return out if abs(norm2 - float(np.vdot(psi, psi).real)) < 1e-8 else None
+
+    def civec(self, psi: np.ndarray) -> np.ndarray:
+        """The real CI vector of a state of the frame (:func:`~eigensweep.vqe.reference.state_civec`)."""
+        from .reference import state_civec
+
+        space = self.space
+        return state_civec(psi, space.norb, space.nelec, self.mapping, self.tapering)
+
+    def allows(self, term) -> bool:
+        """Whether the excitation ``term`` keeps states in the sector (commutes with every
+        symmetry generator; :func:`~eigensweep.vqe.tapered.taper_excitation`)."""
+        if self.tapering is None:
+            return True
+        if term not in self._allowed:
+            from .tapered import taper_excitation
+
+            self._allowed[term] = taper_excitation(term, self.mapping, self.tapering) is not None
+        return self._allowed[term]
+
+
+Frame = DetFrame | QubitFrame
+
+
+def penalised(frame: Frame, mu: float) -> Callable[[np.ndarray], np.ndarray]:
+    """``psi -> (H + mu (S^2 - S(S+1))) psi`` (``H`` as the frame applies it; module
+    docstring)."""
+    target = frame.target_s2
     if mu == 0.0:
-        return space.apply_h
+        return frame.apply_h
 
     def apply(psi: np.ndarray) -> np.ndarray:
-        return space.apply_h(psi) + mu * (space.apply_s2(psi) - target * psi)
+        return frame.apply_h(psi) + mu * (frame.apply_s2(psi) - target * psi)
 
     return apply
 
 
 def gap_bound_weights(
-    space: DetSpace, lower_energies: list[float], mu: float, margin: float = VQD_MARGIN_EH
+    frame: Frame, lower_energies: list[float], mu: float, margin: float = VQD_MARGIN_EH
 ) -> list[float]:
     """VQD weights ``beta_j = U_k - E_j + margin`` for state ``k = len(lower_energies)``.
 
     ``U_k``: largest eigenvalue of the penalised Hamiltonian in the span of the ``k + 1``
-    determinants of lowest ``<D|H|D>``: an upper bound of its ``k``-th eigenvalue
-    (Courant-Fischer: the ``k``-th eigenvalue is at most the largest Rayleigh quotient of any
-    ``k + 1``-dimensional subspace),
+    determinants of lowest ``<D|H|D>`` (of those inside the frame's symmetry sector): an upper
+    bound of its ``k``-th eigenvalue (Courant-Fischer: the ``k``-th eigenvalue is at most the
+    largest Rayleigh quotient of any ``k + 1``-dimensional subspace),
     so ``beta_j > E_k - E_j``, the sufficient condition of Higgott et al. (2019).
     """
     k = len(lower_energies)
-    apply = penalised(space, mu)
-    idx = np.argsort(space.hamiltonian_diagonal(), kind="stable")[: k + 1]
-    block = np.array([[_unit(space, i) @ apply(_unit(space, j)) for j in idx] for i in idx])
-    upper = float(np.linalg.eigvalsh(0.5 * (block + block.T))[-1]) + space.e_core
+    apply = penalised(frame, mu)
+    space = frame.space
+    vecs = []
+    for i in np.argsort(space.hamiltonian_diagonal(), kind="stable"):
+        v = frame.carry(_unit(space, int(i)))
+        if v is not None:
+            vecs.append(v)
+        if len(vecs) == k + 1:
+            break
+    block = np.array([[frame.inner(a, apply(b)) for b in vecs] for a in vecs])
+    upper = float(np.linalg.eigvalsh(0.5 * (block + block.conj().T))[-1]) + frame.e_core
     return [max(upper - e, 0.0) + margin for e in lower_energies]
 
 
@@ -141,7 +313,7 @@ def _optimize(
 
 
 def vqd(
-    ansatz: FermionicAnsatz,
+    ansatz: Any,
     n_states: int,
     ground_params: np.ndarray,
     optimizer: dict,
@@ -150,11 +322,13 @@ def vqd(
     mu: float = 1.0,
     seed: int = 0,
     start_scale: float = 0.1,
+    frame: Frame | None = None,
 ) -> list[ExcitedState]:
     """VQD (module docstring): states ``0..n_states-1``; state 0 is the given ground state.
 
     Args:
-        ansatz: the fermionic ansatz (determinant space).
+        ansatz: the fermionic ansatz of the frame (determinant space, or its Pauli rotations
+            on the (tapered) qubits).
         n_states: states to return, ground included.
         ground_params: the ground state's optimized parameters (reused, not re-optimized).
         optimizer: validated gradient-optimizer config (``lbfgs``/``bfgs``).
@@ -162,24 +336,25 @@ def vqd(
             None = :func:`gap_bound_weights`.
         mu: spin penalty (0 = all spins of the S_z sector).
         seed: starts of state ``k`` are ``ground_params + start_scale * N(0,1)`` (seed + k).
+        frame: where the states live (default: the determinant space of ``ansatz``).
     """
-    space = ansatz.space
-    apply_h = penalised(space, mu)
+    frame = DetFrame(ansatz.space) if frame is None else frame
+    apply_h = penalised(frame, mu)
     g = np.asarray(ground_params, float)
     psi0 = ansatz.state(g)
-    states = [_state(space, psi0, g)]
+    states = [_state(frame, psi0, g)]
     for k in range(1, n_states):
         lower = [s.vector for s in states]
-        lower_e = [float(s.vector @ apply_h(s.vector)) + space.e_core for s in states]
+        lower_e = [float(np.real(frame.inner(v, apply_h(v)))) + frame.e_core for v in lower]
         if weights is None:
-            beta = gap_bound_weights(space, lower_e, mu)
+            beta = gap_bound_weights(frame, lower_e, mu)
         else:
             beta = [float(weights[min(j, len(weights) - 1)]) for j in range(k)]
 
         def apply(psi: np.ndarray, lower=lower, beta=beta) -> np.ndarray:
             out = apply_h(psi)
             for b, phi in zip(beta, lower, strict=True):
-                out = out + b * (phi @ psi) * phi
+                out = out + b * frame.inner(phi, psi) * phi
             return out
 
         x0 = g + start_scale * np.random.default_rng(seed + k).standard_normal(g.size)
@@ -190,25 +365,32 @@ def vqd(
             seed + k,
         )
         x = np.asarray(res.x, float)
-        states.append(_state(space, ansatz.state(x), x, res.n_evaluations))
+        states.append(_state(frame, ansatz.state(x), x, res.n_evaluations))
     return states
 
 
-def _state(space: DetSpace, psi: np.ndarray, params: np.ndarray, n_eval: int = 0) -> ExcitedState:
-    psi = np.asarray(psi, float)
+def _state(frame: Frame, psi: np.ndarray, params: np.ndarray, n_eval: int = 0) -> ExcitedState:
+    psi = np.asarray(psi)
     return ExcitedState(
-        energy=space.energy(psi),
+        energy=frame.energy(psi),
         vector=psi,
-        spin_square=civec_spin_square(psi, space.norb, space.nelec),
+        spin_square=frame.spin_square(psi),
         params=np.asarray(params, float),
         evaluations=int(n_eval),
+        n_electrons=frame.n_electrons(psi),
     )
 
 
-def ssvqe_initial_states(space: DetSpace, n_states: int, spin_adapted: bool) -> list[np.ndarray]:
+def ssvqe_initial_states(
+    space: DetSpace, n_states: int, spin_adapted: bool, frame: Frame | None = None
+) -> list[np.ndarray]:
     """HF and its lowest single excitations ``i -> a`` (ordered by ``a - i``, then ``i``
     descending), as orthonormal CI vectors; spin-adapted (``(E_ai alpha + E_ai beta)/sqrt 2``
-    on a closed shell) when ``spin_adapted``, else alpha excitations then beta."""
+    on a closed shell) when ``spin_adapted``, else alpha excitations then beta. With a
+    ``frame`` only vectors inside its symmetry sector are kept, returned in the frame; when
+    the singles run out (a sector holds few of them: H2 6-31G's ``Sigma_g^+`` one), the
+    paired doubles ``i i -> a a`` follow in the same order."""
+    frame = DetFrame(space) if frame is None else frame
     hf = space.hf_state()
     na, nb = space.nelec
     out = [hf]
@@ -216,13 +398,18 @@ def ssvqe_initial_states(space: DetSpace, n_states: int, spin_adapted: bool) -> 
         ((i, a) for i in range(max(na, nb)) for a in range(min(na, nb), space.norb) if a != i),
         key=lambda p: (p[1] - p[0], -p[0]),
     )
-    for i, a in pairs:
+    for kind, (i, a) in [("single", p) for p in pairs] + [("paired", p) for p in pairs]:
         vecs = []
-        for spin, n in ((0, na), (1, nb)):
-            if i < n and a >= n:
-                gate = space.cached_gate(((2 * a + spin, 1), (2 * i + spin, 0)))
-                vecs.append(space.apply_excitation(gate, hf))
-        cands = [sum(vecs)] if spin_adapted else vecs
+        if kind == "paired":
+            if i < min(na, nb) and a >= max(na, nb):
+                term = ((2 * a, 1), (2 * a + 1, 1), (2 * i + 1, 0), (2 * i, 0))
+                vecs.append(space.apply_excitation(space.cached_gate(term), hf))
+        else:
+            for spin, n in ((0, na), (1, nb)):
+                if i < n and a >= n:
+                    gate = space.cached_gate(((2 * a + spin, 1), (2 * i + spin, 0)))
+                    vecs.append(space.apply_excitation(gate, hf))
+        cands = [sum(vecs)] if spin_adapted and vecs else vecs
         for v in cands:
             for u in out:
                 v = v - (u @ v) * u
@@ -234,14 +421,16 @@ def ssvqe_initial_states(space: DetSpace, n_states: int, spin_adapted: bool) -> 
                     > 1e-6
                 ):
                     continue
+                if frame.carry(v / norm) is None:
+                    continue
                 out.append(v / norm)
         if len(out) == n_states:
             break
-    return out
+    return [frame.carry(v) for v in out]
 
 
 def ssvqe(
-    ansatz: FermionicAnsatz,
+    ansatz: Any,
     n_states: int,
     optimizer: dict,
     *,
@@ -249,14 +438,16 @@ def ssvqe(
     mu: float = 1.0,
     seed: int = 0,
     start_scale: float = 0.1,
+    frame: Frame | None = None,
 ) -> list[ExcitedState]:
     """Weighted SSVQE (module docstring); states sorted by energy.
 
     The start is ``start_scale * N(0, 1)`` (seeded): from zero, the symmetric start of a
-    k-UpCCGSD unitary stalls in a local minimum (H2/6-31G at 1.2 A: 9 mHa on state 1)."""
-    space = ansatz.space
-    apply = penalised(space, mu)
-    refs = ssvqe_initial_states(space, n_states, spin_adapted=mu != 0.0)
+    k-UpCCGSD unitary stalls in a local minimum (H2/6-31G at 1.2 A: 9 mHa on state 1).
+    ``frame``: where the states live (default: the determinant space of ``ansatz``)."""
+    frame = DetFrame(ansatz.space) if frame is None else frame
+    apply = penalised(frame, mu)
+    refs = ssvqe_initial_states(frame.space, n_states, spin_adapted=mu != 0.0, frame=frame)
     n = len(refs)
     w = [float(n - j) for j in range(n)] if weights is None else [float(x) for x in weights[:n]]
 
@@ -271,7 +462,7 @@ def ssvqe(
     x0 = start_scale * np.random.default_rng(seed).standard_normal(ansatz.n_params)
     res = _optimize(value_grad, x0, optimizer, seed)
     x = np.asarray(res.x, float)
-    states = [_state(space, ansatz.state_from(x, ref), x, res.n_evaluations) for ref in refs]
+    states = [_state(frame, ansatz.state_from(x, ref), x, res.n_evaluations) for ref in refs]
     return sorted(states, key=lambda s: s.energy)
 
 
@@ -288,8 +479,11 @@ def qeom(
     *,
     spin_filter: bool = True,
     dipole_active: np.ndarray | None = None,
+    allowed: Callable[[Any], bool] | None = None,
 ) -> list[ExcitedState]:
-    """qEOM on the optimized ground state ``ground`` (module docstring).
+    """qEOM on the optimized ground state ``ground`` (module docstring); ``allowed(term)``
+    selects the excitations of the manifold (default all: a tapered frame keeps those that
+    stay in its symmetry sector, :meth:`QubitFrame.allows`).
 
     Returns:
         ``[ground, excited_1, ...]`` up to ``n_states`` states: energies ``E_0 + w_n``, the
@@ -303,7 +497,8 @@ def qeom(
     hpsi = space.apply_h(psi)
     e0 = float(psi @ hpsi) + space.e_core
     doubles, singles = sd_excitation_terms(space.norb, space.nelec)
-    gates = [space.cached_gate(t) for t in singles + doubles]
+    terms = [t for t in singles + doubles if allowed is None or allowed(t)]
+    gates = [space.cached_gate(t) for t in terms]
     u = np.array([space.apply_excitation(g, psi) for g in gates])  # E_m |0>
     d = np.array([space.apply_excitation(g, psi, adjoint=True) for g in gates])  # E_m^+ |0>
     w = np.array([space.apply_excitation(g, hpsi) for g in gates])  # E_m H|0>
@@ -322,7 +517,7 @@ def qeom(
     vals, vecs = scipy.linalg.eig(a, b)
     n_op = len(gates)
     target = _target_s2(space)
-    states = [_state(space, psi, np.zeros(0))]
+    states = [_state(DetFrame(space), psi, np.zeros(0))]
     order = np.argsort(np.where(np.isfinite(vals.real), vals.real, np.inf))
     for i in order:
         om = vals[i]
@@ -353,6 +548,7 @@ def qeom(
                 vector=vec,
                 spin_square=s2,
                 transition_dipole=tdm,
+                n_electrons=float(sum(space.nelec)),
             )
         )
         if len(states) == n_states:

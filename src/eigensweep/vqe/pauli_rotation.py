@@ -9,7 +9,7 @@ through Z2 tapering are built on it. ``circuit`` compiles with
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -116,12 +116,22 @@ class PauliRotationAnsatz:
         """Complex statevector (qubit 0 = most significant bit)."""
         return self.state_at_angles(self.angles(theta))
 
-    def state_at_angles(self, angles: np.ndarray) -> np.ndarray:
-        """Statevector with gate ``k`` at rotation angle ``angles[k]`` (parameter shifts)."""
-        psi = sv.basis_state(self.reference)
+    def state_at_angles(self, angles: np.ndarray, start: np.ndarray | None = None) -> np.ndarray:
+        """Statevector with gate ``k`` at rotation angle ``angles[k]`` (parameter shifts),
+        the gates acting on ``start`` (default the reference basis state)."""
+        if start is None:
+            psi = sv.basis_state(self.reference)
+        else:
+            psi = np.array(start, dtype=np.complex128).reshape(-1)
+            if psi.size != 1 << self._n_qubits:
+                raise ValueError(f"start has {psi.size} amplitudes, expected {1 << self._n_qubits}")
         for k, a in enumerate(np.asarray(angles, dtype=float)):
             psi = self._rotate(psi, k, float(a))
         return psi
+
+    def state_from(self, theta: np.ndarray, start: np.ndarray) -> np.ndarray:
+        """The ansatz's gates at ``theta`` applied to another statevector ``start``."""
+        return self.state_at_angles(self.angles(theta), start)
 
     def state_energy(self, psi: np.ndarray) -> float:
         """Exact ``<psi|H|psi>`` of a state of this ansatz's qubits."""
@@ -149,9 +159,20 @@ class PauliRotationAnsatz:
     def energy_and_gradient(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Energy and exact gradient (adjoint sweep)."""
         ham = self._ham()
+        return self.expectation_and_gradient(theta, lambda psi: sv.apply_pauli_expansion(psi, ham))
+
+    def expectation_and_gradient(
+        self,
+        theta: np.ndarray,
+        apply: Callable[[np.ndarray], np.ndarray],
+        start: np.ndarray | None = None,
+    ) -> tuple[float, np.ndarray]:
+        """``<psi|A|psi>`` and its adjoint gradient for a Hermitian operator ``A``
+        (``apply``: ``psi -> A psi``), the gates acting on ``start`` (default the reference):
+        the energy, and the penalised objectives of :mod:`eigensweep.vqe.excited`."""
         angles = self.angles(theta)
-        psi = self.state(theta)
-        lam = sv.apply_pauli_expansion(psi, ham)
+        psi = self.state_at_angles(angles, start)
+        lam = apply(psi)
         energy = float(np.vdot(psi, lam).real)
         da = np.zeros(len(self.gates))
         for k in range(len(self.gates) - 1, -1, -1):

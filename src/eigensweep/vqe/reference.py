@@ -42,6 +42,7 @@ __all__ = [
     "MOMENTS_MAX_QUBITS",
     "SECTOR_CHECK_MAX_QUBITS",
     "check_qubit_problem",
+    "state_civec",
     "state_moments",
     "state_rdm1",
 ]
@@ -206,6 +207,38 @@ def _encoded_blocks(psi: np.ndarray, norb: int, mapping: str):
             block = psi[enc] * space.interleave_signs().reshape(-1)
             if float(np.vdot(block, block).real) >= 1e-14:
                 yield (na, nb), block
+
+
+def state_civec(
+    state: np.ndarray,
+    norb: int,
+    nelec: tuple[int, int],
+    mapping: str,
+    tapering: SectorReduction | None = None,
+) -> np.ndarray:
+    """The ``nelec`` block of a (tapered) statevector in ``mapping``'s encoding as a real flat
+    CI vector (PySCF string order): tapering undone, the global phase of the largest
+    amplitude removed (number-conserving real ansätze give real CI vectors up to that phase).
+
+    Raises:
+        ValueError: the block is not real after removing the phase (then the state is no
+            real CI vector and the determinant-space tools do not apply).
+    """
+    psi = np.asarray(state, dtype=np.complex128).reshape(-1)
+    if tapering is not None and tapering.generators.n_terms > 0:
+        psi = tapering.untaper_state(psi)
+    want = (int(nelec[0]), int(nelec[1]))
+    for ne, block in _encoded_blocks(psi, int(norb), mapping):
+        if ne != want:
+            continue
+        big = block[int(np.argmax(np.abs(block)))]
+        block = block * (abs(big) / big)
+        if float(np.linalg.norm(block.imag)) > 1e-8 * max(1.0, float(np.linalg.norm(block))):
+            raise ValueError("the state's CI vector is not real up to a global phase")
+        return np.ascontiguousarray(block.real)
+    from .detspace import DetSpace
+
+    return np.zeros(DetSpace(int(norb), want).dim)
 
 
 def _encoded_moments(psi: np.ndarray, norb: int, mapping: str) -> tuple[float, float]:
