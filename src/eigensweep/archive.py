@@ -321,6 +321,7 @@ def make_archive(
             cfg["collect"]["accuracy_mha"],
             plan.exports,
             study=plan.study,
+            spectrum_point=cfg["collect"]["spectrum_point"],
         )
         generated = {
             "environment.lock": environment_lock(),
@@ -510,7 +511,12 @@ def _check_tables(archive: Path, root: Path, plan: Plan, cfg: dict, listed: set[
                 stage_path(node.stage, node.key, results), stage_path(node.stage, node.key, scratch)
             )
         files = collect(
-            plan.rows, scratch, cfg["collect"]["accuracy_mha"], plan.exports, study=plan.study
+            plan.rows,
+            scratch,
+            cfg["collect"]["accuracy_mha"],
+            plan.exports,
+            study=plan.study,
+            spectrum_point=cfg["collect"]["spectrum_point"],
         )
         for name in tables:
             new = (Path(tmp) / name).read_bytes()

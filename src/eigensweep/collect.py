@@ -616,8 +616,10 @@ def collect(
     accuracy_mha: float = 1.6,
     exports: list[dict] | None = None,
     study: str = "main",
+    spectrum_point: int | str = 0,
 ) -> list[Path]:
-    """Write the study's tables, README and figures; returns the written files.
+    """Write the study's tables, README and figures; returns the written files
+    (``spectrum_point``: the config's ``collect.spectrum_point``).
 
     The summary is written before any figure, so a plotting problem never loses it.
     """
@@ -652,6 +654,7 @@ def collect(
         accuracy_mha,
         seeds=seed_rows(summary, accuracy_mha),
         states=states,
+        spectrum_point=spectrum_point,
     )
     return files
 

@@ -627,14 +627,38 @@ def plot_states(rows: list[dict], stem: Path) -> list[Path]:
     return save(fig, stem)
 
 
-def plot_spectrum(rows: list[dict], stem: Path) -> list[Path]:
-    """Stick spectrum at the molecule's first scan point: oscillator strength against
-    excitation energy (eV) for every method with excited states, and the exact roots."""
+def spectrum_point(rows: list[dict], choice: int | str = 0) -> tuple[str, str]:
+    """The scan point of a molecule's stick spectrum (config ``collect.spectrum_point``) and a
+    note when the choice is not in this scan (then the first point is used).
+
+    Args:
+        rows: the molecule's ``states.csv`` rows (scan order).
+        choice: position in the scan (0 = first, -1 = last) or a point label as in the
+            ``point`` column (``"r=1.2"``).
+    """
+    points = list(dict.fromkeys(r["point"] for r in rows))
+    if not points:
+        return "", ""
+    if isinstance(choice, str):
+        if choice in points:
+            return choice, ""
+        return points[0], f"spectrum_point {choice!r} is not a point of this scan"
+    if -len(points) <= int(choice) < len(points):
+        return points[int(choice)], ""
+    return points[0], f"spectrum_point {choice} is outside this scan's {len(points)} points"
+
+
+def plot_spectrum(rows: list[dict], stem: Path, point_choice: int | str = 0) -> list[Path]:
+    """Stick spectrum at one scan point (``point_choice``, :func:`spectrum_point`; default the
+    first): oscillator strength against excitation energy (eV) for every method with excited
+    states, and the exact roots. Without excited states the figure says so in words."""
     plt = _plt()
-    fig, ax = plt.subplots(figsize=(7.5, 4.5))
-    point = rows[0]["point"] if rows else ""
+    point, note = spectrum_point(rows, point_choice)
     sel = [r for r in rows if r["point"] == point and int(r["state"]) > 0]
-    series, labels, _ = series_of(sel) if sel else ([], {}, "")
+    if not sel:
+        return _no_spectrum(plt, rows, stem, point, note)
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    series, labels, _ = series_of(sel)
     for i, s in enumerate(series):
         mine = [r for r in sel if tuple(str(r.get(k, "")) for k in SERIES_KEYS) == s]
         x = np.array([_f(r["excitation_energy_eh"]) for r in mine]) * HARTREE_EV
@@ -644,17 +668,46 @@ def plot_spectrum(rows: list[dict], stem: Path) -> list[Path]:
     ex = {}
     for r in sel:
         ex[(r["spin"], int(r["state"]))] = r
-    if ex:
-        xs = np.array([_exact_de(rows, r) for r in ex.values()]) * HARTREE_EV
-        fs = np.array([_f(r["oscillator_strength_exact"]) for r in ex.values()])
+    xs = np.array([_exact_de(rows, r) for r in ex.values()]) * HARTREE_EV
+    fs = np.array([_f(r["oscillator_strength_exact"]) for r in ex.values()])
+    if np.isfinite(xs).any():
         ax.vlines(xs, 0, fs, color="k", lw=0.8, ls="--", label="exact roots (PySCF)")
-    else:
-        ax.text(0.5, 0.5, "no excited states in this study", ha="center", transform=ax.transAxes)
     ax.set_xlabel("excitation energy (eV)")
     ax.set_ylabel("oscillator strength f")
-    what = f"stick spectrum at {point}" if point else "stick spectrum"
-    ax.set_title(_title(rows, what) if rows else what, fontsize=10)
+    what = f"stick spectrum at {point}" + (f" ({note}; first point shown)" if note else "")
+    ax.set_title(_title(rows, what), fontsize=10)
     _legend_outside(ax)
+    return save(fig, stem)
+
+
+def _no_spectrum(plt, rows: list[dict], stem: Path, point: str, note: str) -> list[Path]:
+    """A figure that says in words why there is no stick spectrum (no empty axes)."""
+    fig, ax = plt.subplots(figsize=(7.5, 2.6))
+    ax.axis("off")
+    has_any = any(int(r["state"]) > 0 for r in rows)
+    mol = f"{pretty(rows[0]['molecule'])} ({pretty(rows[0].get('basis', ''))})" if rows else ""
+    if has_any:
+        head = f"No excited states of {mol} at {point}"
+        hint = "they were computed at other scan points: set collect.spectrum_point to one of them"
+    else:
+        head = f"No excited states{' of ' + mol if mol else ''} in this study"
+        hint = (
+            "methods.states holds only 'ground': add vqd, ssvqe or qeom "
+            "(with references.nroots >= n_states) for a stick spectrum"
+        )
+    lines = [head, hint] + ([f"({note}; first point used)"] if note else [])
+    ax.text(0.5, 0.62, lines[0], ha="center", va="center", fontsize=13, transform=ax.transAxes)
+    ax.text(
+        0.5,
+        0.32,
+        "\n".join(lines[1:]),
+        ha="center",
+        va="center",
+        fontsize=9,
+        color="0.3",
+        transform=ax.transAxes,
+    )
+    ax.set_title("stick spectrum (oscillator strength vs excitation energy)", fontsize=10)
     return save(fig, stem)
 
 
@@ -676,10 +729,12 @@ def study_figures(
     accuracy_mha: float = 1.6,
     seeds: list[dict] | None = None,
     states: list[dict] | None = None,
+    spectrum_point: int | str = 0,
 ) -> list[Path]:
     """All figures of a study; returns the written files. ``seeds``: the study's
     ``seeds.csv`` rows (:func:`eigensweep.collect.seed_rows`), ``states`` its ``states.csv``
-    rows (:func:`eigensweep.collect.state_rows`), passed in by collect."""
+    rows (:func:`eigensweep.collect.state_rows`), passed in by collect; ``spectrum_point``
+    the config's ``collect.spectrum_point`` (:func:`spectrum_point`)."""
     files: list[Path] = []
     for mol in dict.fromkeys(r["molecule"] for r in summary):
         rows = [r for r in summary if r["molecule"] == mol]
@@ -688,7 +743,7 @@ def study_figures(
         files += plot_convergence(rows, folder / f"{mol}_convergence", Path(results), accuracy_mha)
         mol_states = [r for r in states or [] if r["molecule"] == mol]
         files += plot_states(mol_states, folder / f"{mol}_states")
-        files += plot_spectrum(mol_states, folder / f"{mol}_spectrum")
+        files += plot_spectrum(mol_states, folder / f"{mol}_spectrum", spectrum_point)
     if summary:
         files += plot_resources(summary, folder / "resources")
     files += plot_shots_error(seeds or [], folder / "shots_error", accuracy_mha)

@@ -153,6 +153,7 @@ def collect_job(params, log) -> None:
                 params.accuracy_mha,
                 params.exports,
                 study=params.study,
+                spectrum_point=params.spectrum_point,
             )
         except EigensweepError as exc:
             raise _fail(fh, exc, "collect") from None

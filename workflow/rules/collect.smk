@@ -49,6 +49,7 @@ rule collect:
     params:
         rows=get_rows(),
         accuracy_mha=get_accuracy_mha(),
+        spectrum_point=get_spectrum_point(),
         exports=get_exports(),
         study=get_study(),
     run:

@@ -127,6 +127,10 @@ def get_accuracy_mha(wildcards=None):
     return CFG["collect"]["accuracy_mha"]
 
 
+def get_spectrum_point(wildcards=None):
+    return CFG["collect"]["spectrum_point"]
+
+
 def get_study(wildcards=None):
     return PLAN.study
 
