@@ -136,6 +136,26 @@ def test_apply_pauli_rotation_matches_expm():
         assert np.allclose(apply_pauli_rotation(psi, p.x[0], p.z[0], angle), ref, atol=1e-13)
 
 
+def test_rotate_batch_matches_expm():
+    # reference: SciPy expm of each string's OpenFermion matrix computed at test time, one
+    # batch row per angle (single-qubit X, Y, Z strings take the reshaped-view kernel)
+    from eigensweep.qubit.statevector import PauliStrings
+
+    rng = np.random.default_rng(7)
+    n = 4
+    labels = ["XYZI", "IIYI", "ZIII", "IIIX", "YZZX"]
+    strings = [PauliExpansion.from_strings([lab], [1.0]) for lab in labels]
+    kernels = PauliStrings([(p.x[0], p.z[0]) for p in strings], n)
+    psis = np.array([random_state(rng, n) for _ in range(3)])
+    for k, p in enumerate(strings):
+        angles = rng.uniform(-3, 3, size=3)
+        mat = of.get_sparse_operator(p.to_openfermion(), n).toarray()
+        ref = np.array(
+            [scipy.linalg.expm(-0.5j * a * mat) @ v for a, v in zip(angles, psis, strict=True)]
+        )
+        assert np.allclose(kernels.rotate_batch(psis, k, angles), ref, atol=1e-13)
+
+
 def test_simulate_matches_kronecker_products():
     # reference: explicit Kronecker products (NumPy at test time), OpenQASM 3 stdgates meaning
     n = 4

@@ -556,9 +556,14 @@ class _Objective:
         self.to_qubit = to_qubit  # ansatz state -> the statevector the estimator samples
         #: per-gate angles -> what parameter-shift energies measure (state, or circuit)
         self.at_angles: Callable = ans.state_at_angles
+        #: batch of per-gate angle rows -> statevectors (None: one state at a time)
+        self.states_at_angles: Callable | None = getattr(ans, "states_at_angles", None)
         self.count = 0
         self.last_shots = 0
         self.purpose = "energy"
+        #: (theta, state) of the last sampled point when the sampled statevector is the
+        #: ansatz's own state, so the trace monitor's exact energy there needs no second run
+        self._last: tuple[np.ndarray, np.ndarray] | None = None
         #: () -> non-identity 1-norm of the measured qubit operator (set by run_optimize)
         self.operator_norm: Callable[[], float] = lambda: 1.0
 
@@ -571,7 +576,10 @@ class _Objective:
         self.purpose = name
 
     def sampled(self, theta: np.ndarray) -> float:
-        estimate = self.est.estimate(self.qubit_state(theta), purpose=self.purpose)
+        psi = self.qubit_state(theta)
+        if self.qubit_state == self.ans.state:
+            self._last = (np.array(theta, dtype=float, copy=True), psi)
+        estimate = self.est.estimate(psi, purpose=self.purpose)
         self.last_shots = estimate.shots
         self._report(estimate.value)
         return estimate.value
@@ -611,7 +619,13 @@ class _Objective:
                 f"next gradient needs {cost})"
             )
         grad = parameter_shift_gradient(
-            units, ans.angles(theta), ans.n_params, self.at_angles, energy, n
+            units,
+            ans.angles(theta),
+            ans.n_params,
+            self.at_angles,
+            energy,
+            n,
+            states_at_angles=self.states_at_angles,
         )
         self._report(math.nan)
         return math.nan, grad
@@ -619,7 +633,12 @@ class _Objective:
     def monitor(self, theta: np.ndarray) -> dict:
         """Trace fields: exact energy at the point (diagnostic) and the job's shots so far."""
         total = self.est.ledger.total if self.est is not None else 0
-        return {"energy_exact": float(self.ans.energy(theta)), "shots_cumulative": int(total)}
+        last = self._last
+        if last is not None and np.array_equal(last[0], theta):
+            e = self.ans.state_energy(last[1])  # = ans.energy(theta), state already computed
+        else:
+            e = self.ans.energy(theta)
+        return {"energy_exact": float(e), "shots_cumulative": int(total)}
 
 
 def _start_point(ans: Any, initial_params: np.ndarray | None) -> np.ndarray:
@@ -867,6 +886,7 @@ def run_optimize(
             mapping = m.mapping
             obj.to_qubit = lambda circuit: circuit
             obj.at_angles = lambda angles: ans.circuit_at_angles(angles, mapping)
+            obj.states_at_angles = None
         obj.operator_norm = lambda: _measured_operator(est, ans, prob, m).one_norm_nonidentity
         run = _optimize_with_restarts(m.optimizer, obj, _start_point(ans, initial_params), seed)
     energy, stderr, e_exact_params = _final_energy(m, built, est, qubit_state, run.params)

@@ -134,6 +134,8 @@ class MeasurementPlan:
         self.weights = np.array([np.abs(c).sum() for c in self.coeffs])
         self._bases_cache: np.ndarray | None = None
         self._table: np.ndarray | None = None
+        self._tree: list[tuple[np.ndarray, np.ndarray, np.ndarray]] | None = None
+        self._group_nodes = np.zeros(0, dtype=np.intp)
 
     @property
     def n_groups(self) -> int:
@@ -165,17 +167,44 @@ class MeasurementPlan:
         return p / p.sum()
 
     def all_probabilities(self, psi: np.ndarray) -> np.ndarray:
-        """Outcome distributions of every group, ``(n_groups, 2**n)``: one batched basis change
-        per qubit and letter instead of one per group (same numbers as :meth:`probabilities`)."""
-        phi = np.broadcast_to(psi, (self.n_groups, psi.size)).copy()
-        bases = self._bases_matrix
-        for q in range(self.n_qubits):
-            for letter, mat in ((1, _H), (3, _HSDG)):
-                rows = np.flatnonzero(bases[:, q] == letter)
+        """Outcome distributions of every group, ``(n_groups, 2**n)`` (the same numbers as
+        :meth:`probabilities`, bit for bit).
+
+        The basis changes are shared along a prefix tree of the groups' bases (qubit 0
+        first, ``I`` and ``Z`` alike): a state is rotated once per distinct prefix, not once
+        per group, and each qubit's ``h`` / ``sdg h`` is one batched call over the prefixes.
+        """
+        cur = psi[None, :]
+        for q, (parents, x_nodes, y_nodes) in enumerate(self._prefix_tree):
+            nxt = cur[parents]
+            for rows, mat in ((x_nodes, _H), (y_nodes, _HSDG)):
                 if rows.size:
-                    phi[rows] = apply_matrix_1q(phi[rows], q, mat)
-        p = np.abs(phi) ** 2
+                    nxt[rows] = apply_matrix_1q(nxt[rows], q, mat)
+            cur = nxt
+        p = np.abs(cur[self._group_nodes]) ** 2
         return p / p.sum(axis=1, keepdims=True)
+
+    @property
+    def _prefix_tree(self) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """Per qubit ``q``: parent index of every distinct basis prefix of length ``q + 1``
+        and the prefixes ending in X and in Y; ``_group_nodes`` maps groups to the leaves."""
+        if self._tree is None:
+            letters = np.where(self._bases_matrix % 2 == 1, self._bases_matrix, 0)
+            tree = []
+            node = np.zeros(self.n_groups, dtype=np.intp)  # each group's node at this level
+            for q in range(self.n_qubits):
+                keys = np.stack([node, letters[:, q]], axis=1)
+                uniq, node = np.unique(keys, axis=0, return_inverse=True)
+                node = node.reshape(-1)
+                tree.append(
+                    (
+                        uniq[:, 0].astype(np.intp),
+                        np.flatnonzero(uniq[:, 1] == 1),
+                        np.flatnonzero(uniq[:, 1] == 3),
+                    )
+                )
+            self._tree, self._group_nodes = tree, node
+        return self._tree
 
     @property
     def _bases_matrix(self) -> np.ndarray:

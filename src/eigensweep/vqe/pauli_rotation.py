@@ -133,6 +133,17 @@ class PauliRotationAnsatz:
         """The ansatz's gates at ``theta`` applied to another statevector ``start``."""
         return self.state_at_angles(self.angles(theta), start)
 
+    def states_at_angles(self, angles: np.ndarray) -> np.ndarray:
+        """Statevectors ``(B, 2**n)`` of a batch of per-gate angle rows ``(B, n_gates)``: row
+        ``b`` equals :meth:`state_at_angles` ``(angles[b])`` bit for bit
+        (:meth:`~eigensweep.qubit.statevector.PauliStrings.rotate_batch`)."""
+        angles = np.asarray(angles, dtype=float).reshape(-1, len(self.gates))
+        psi = np.broadcast_to(sv.basis_state(self.reference), (angles.shape[0], 1 << self.n_qubits))
+        psi = np.ascontiguousarray(psi)
+        for k in range(len(self.gates)):
+            psi = self._kernels.rotate_batch(psi, k, angles[:, k])
+        return psi
+
     def state_energy(self, psi: np.ndarray) -> float:
         """Exact ``<psi|H|psi>`` of a state of this ansatz's qubits."""
         return sv.expectation(psi, self._ham())
