@@ -509,12 +509,16 @@ def state_rows(rows: list[dict], results: str | Path = "results") -> list[dict]:
             and opt.meta.get("tapered")
             and opt.meta.get("n_qubits", 0) < 2 * int(ints.meta.get("norb", 0))
         ):
-            # tapered: the states of the reference's symmetry sector only; the stored roots
-            # (all symmetries) are compared with the ground state alone
-            e_ex, s2_ex, dip_ex, tdm_ex = e_ex[:1], s2_ex[:1], dip_ex[:1], tdm_ex[:1]
+            # tapered: only the states of the reference's symmetry sector are reachable, so
+            # they are compared with the stored roots of that symmetry
+            name = "exact_sz_roots" if spin == "all" else "exact_roots"
+            weight = np.asarray(ints.arrays[f"{name}_symmetry_weight"], float)
+            keep = np.flatnonzero(weight > 0.5)
+            e_ex, s2_ex, dip_ex, tdm_ex = e_ex[keep], s2_ex[keep], dip_ex[keep], tdm_ex[keep]
             sector_note = (
-                "tapered: states of the reference's symmetry sector only; the stored exact "
-                "roots are not resolved by symmetry, so excited states have no energy_exact"
+                "tapered: states of the reference's symmetry sector only, compared with the "
+                "exact roots of that symmetry"
+                + ("" if len(keep) >= len(energies) else "; raise references.nroots for more")
             )
         for k, e in enumerate(energies):
             has = k < len(e_ex)

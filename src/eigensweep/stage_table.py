@@ -63,7 +63,7 @@ def _spec(name, version, action, parents, outputs, description) -> StageSpec:
 STAGES: tuple[StageSpec, ...] = (
     _spec(
         "integrals",
-        3,
+        4,
         "run_integrals",
         {"guess": "integrals"},
         ("stage",),

@@ -72,7 +72,8 @@ def _tapered_run(atoms: str, basis: str, rs: tuple, states: str, ansatz: str, tm
             "taper": [True],
             "states": [json.loads(states)],
         },
-        "references": {"nroots": 3},
+        # the sector's three lowest singlets are among the eight lowest roots of all symmetries
+        "references": {"nroots": 8},
     }
     _, plan = run_plan(cfg, Path(tmp))
     return plan, state_rows(plan.rows, Path(tmp))
@@ -110,6 +111,10 @@ def test_tapered_statevector_states_match_pyscf_sector_roots(
             # <S^2> and <N> from the tapered operators the taper stage stored
             assert r["s2"] == pytest.approx(0.0, abs=1e-4)
             assert r["n_electrons"] == pytest.approx(sum(mol.nelec), abs=1e-8)
+            # the stored exact roots of the reference's irrep (symmetry weights of the
+            # integrals stage) are PySCF's sector roots
+            assert r["energy_exact_eh"] == pytest.approx(ref[r["state"]], abs=1e-8)
+            assert not r["below_exact"]
             opt = read_stage(Path(workdir) / f"{method}-{basis}" / "optimize" / f"{r['key']}.h5")
             # the states ran on the tapered qubits (fewer than 2 norb; Bravyi et al. 2017)
             assert opt.meta["tapered"] and opt.meta["n_qubits"] < 2 * mol.nao

@@ -225,7 +225,10 @@ def _compute(
         h1e, eri, e_core, ncas, nelecas, fci_max_determinants, threads, refs, notes, nroots
     )
     spin_square, exact_vectors = _ground_space(sol, notes)
-    roots = _root_properties(sol, ncas, nelecas, dip)
+    ids = orbsym_ids(mol, mo_coeff)
+    roots = _root_properties(
+        sol, ncas, nelecas, dip, None if ids is None else ids[ncore : ncore + ncas]
+    )
     nelec_full = ((plan.nelectron + plan.spin) // 2, (plan.nelectron - plan.spin) // 2)
     if ncore == 0 and ncas == nmo:
         refs["fci"] = refs["casci"]
@@ -236,7 +239,6 @@ def _compute(
     scf_method = "ROHF" if mol.spin else "RHF"
     label_ladder(refs, notes, scf_method)
 
-    ids = orbsym_ids(mol, mo_coeff)
     orbsym = (
         []
         if ids is None
@@ -301,9 +303,11 @@ def _root_properties(
     ncas: int,
     nelecas: tuple[int, int],
     dip: dict,
+    active_irreps: np.ndarray | None = None,
 ) -> dict:
-    """Energies, <S^2>, dipoles and transition dipoles (from the lowest root) of the stored
-    spin-fixed roots and of the all-spin S_z-sector roots (empty when CASCI was skipped)."""
+    """Energies, <S^2>, dipoles, transition dipoles (from the lowest root) and reference-irrep
+    weights (:func:`_symmetry_weights`) of the stored spin-fixed roots and of the all-spin
+    S_z-sector roots (empty when CASCI was skipped)."""
     from pyscf.fci import direct_spin1
 
     out: dict = {}
@@ -321,6 +325,7 @@ def _root_properties(
             out[f"{name}_spin_square"] = np.zeros(0)
             out[f"{name}_dipole"] = np.zeros((0, 3))
             out[f"{name}_transition_dipole"] = np.zeros((0, 3))
+            out[f"{name}_symmetry_weight"] = np.zeros(0)
             continue
         energies, vectors, s2 = found
         dipoles, tdms = [], []
@@ -333,7 +338,34 @@ def _root_properties(
         out[f"{name}_spin_square"] = np.asarray(s2, dtype=np.float64)
         out[f"{name}_dipole"] = np.array(dipoles).reshape(-1, 3)
         out[f"{name}_transition_dipole"] = np.array(tdms).reshape(-1, 3)
+        out[f"{name}_symmetry_weight"] = _symmetry_weights(vectors, ncas, nelecas, active_irreps)
     return out
+
+
+def _symmetry_weights(
+    vectors, norb: int, nelec: tuple[int, int], irreps: np.ndarray | None
+) -> np.ndarray:
+    """Weight of each CI vector on the determinants whose irrep is the reference
+    determinant's (lowest orbitals occupied); a determinant's irrep is the XOR of its occupied
+    orbitals' PySCF irrep ids (abelian groups, D2h and subgroups). All ones without symmetry.
+    Tapering keeps exactly that sector (with the spin parities, which every root shares)."""
+    from pyscf.fci import cistring
+
+    vectors = np.asarray(vectors, dtype=np.float64).reshape(len(vectors), -1)
+    if irreps is None or len(vectors) == 0:
+        return np.ones(len(vectors))
+    irreps = np.asarray(irreps, dtype=np.int64)
+
+    def string_irreps(n: int) -> np.ndarray:
+        strings = cistring.make_strings(range(norb), n)
+        out = np.zeros(len(strings), dtype=np.int64)
+        for p in range(norb):
+            out ^= np.where((strings >> p) & 1, irreps[p], 0)
+        return out
+
+    det = string_irreps(int(nelec[0]))[:, None] ^ string_irreps(int(nelec[1]))[None, :]
+    mask = (det == det[0, 0]).reshape(-1)
+    return np.array([float(v[mask] @ v[mask]) for v in vectors])
 
 
 _DIPOLE_PARTS = ("dipole_active", "dipole_core", "dipole_nuclear")

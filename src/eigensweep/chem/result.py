@@ -17,10 +17,10 @@ __all__ = ["ARRAY_UNITS", "REFERENCE_KEYS", "ROOT_SETS", "IntegralsResult"]
 REFERENCE_KEYS: tuple[str, ...] = ("hf", "mp2", "ccsd", "ccsd_t", "casci", "fci")
 
 _STORE_FORMAT = "eigensweep.integrals"
-_STORE_VERSION = 3
+_STORE_VERSION = 4
 #: Exact-root arrays: spin-fixed roots and the roots of the whole S_z sector (any spin).
 ROOT_SETS = ("exact_roots", "exact_sz_roots")
-_ROOT_SUFFIXES = ("", "_spin_square", "_dipole", "_transition_dipole")
+_ROOT_SUFFIXES = ("", "_spin_square", "_dipole", "_transition_dipole", "_symmetry_weight")
 _ARRAY_KEYS = (
     "h1e",
     "eri",
@@ -104,7 +104,10 @@ class IntegralsResult:
             ``exact_roots_spin_square``, ``exact_roots_dipole`` (nroots, 3) and
             ``exact_roots_transition_dipole`` (nroots, 3) ``<root 0|mu|root k>`` (sign
             arbitrary; row 0 is zero: no transition); empty when CASCI was skipped.
-        exact_sz_roots: the same four for the lowest roots of the whole S_z sector (any spin).
+            ``exact_roots_symmetry_weight``: each root's weight on the determinants of the
+            reference determinant's irrep (1 without point-group symmetry), the roots a
+            Z2-tapered problem (which keeps that sector) can reach.
+        exact_sz_roots: the same five for the lowest roots of the whole S_z sector (any spin).
     """
 
     norb: int
@@ -132,10 +135,12 @@ class IntegralsResult:
     exact_roots_spin_square: np.ndarray = field(default_factory=lambda: np.zeros(0))
     exact_roots_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
     exact_roots_transition_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    exact_roots_symmetry_weight: np.ndarray = field(default_factory=lambda: np.zeros(0))
     exact_sz_roots: np.ndarray = field(default_factory=lambda: np.zeros(0))
     exact_sz_roots_spin_square: np.ndarray = field(default_factory=lambda: np.zeros(0))
     exact_sz_roots_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
     exact_sz_roots_transition_dipole: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    exact_sz_roots_symmetry_weight: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def has_exact_vectors(self) -> bool:
