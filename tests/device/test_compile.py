@@ -10,9 +10,11 @@ from eigensweep.circuit import Circuit, Gate, inverse_gate
 from eigensweep.device.compile import (
     base_of_global_fold,
     circuit_from_rotations,
+    folded_measurement_circuit,
     globally_folded_circuit,
     group_basis,
     measurement_circuit,
+    split_folded_measurement,
 )
 from eigensweep.qubit.noise import NoiseModel, simulate_distributions
 from eigensweep.qubit.statevector import (
@@ -169,6 +171,28 @@ def test_fold_preserves_state_and_scales_gate_count(scale):
     assert folded.gates[: len(circ.gates)] == circ.gates  # invariant: starts with G
     assert np.max(np.abs(simulate(folded) - simulate(circ))) < 1e-12
     assert base_of_global_fold(folded, scale).gates == circ.gates
+
+
+@pytest.mark.parametrize("scale", [1, 3, 5])
+def test_state_folding_then_basis_change_measures_the_pauli_terms(scale):
+    # reference: <psi|P|psi> from dense matrices; folding only the state preparation
+    # (Giurgica-Tiron et al. 2020: G (G^dagger G)^k = G) leaves every parity unchanged
+    rng = np.random.default_rng(20 + scale)
+    n, basis = 3, "XYZ"
+    state = circuit_from_rotations([1, 0, 1], _random_rotations(n, 4, rng))
+    change = Circuit(n, measurement_circuit(Circuit(n), basis).gates)
+    circ = folded_measurement_circuit(state, change, scale)
+    assert len(circ.gates) == scale * len(state.gates) + len(change.gates)
+    probs = np.abs(simulate(circ)) ** 2
+    psi = simulate(state)
+    idx = np.arange(2**n)
+    parity = ((idx >> 2) ^ (idx >> 1) ^ idx) & 1
+    exact = float(np.real(np.vdot(psi, dense_pauli(basis) @ psi)))
+    assert abs(float(np.sum(probs * (1 - 2 * parity))) - exact) < 1e-12
+    back_state, back_change = split_folded_measurement(circ, scale, len(change.gates))
+    assert back_state.gates == state.gates and back_change.gates == change.gates
+    with pytest.raises(ValueError, match="not a global fold"):
+        split_folded_measurement(circ, scale + 2, len(change.gates))
 
 
 def test_fold_unfold_identity_and_inverse():

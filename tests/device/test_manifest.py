@@ -32,7 +32,7 @@ def h2_job():
 def test_records_have_documented_fields(h2_job):
     job, ham, circ = h2_job
     m = job.to_manifest()
-    assert m["format"] == "eigensweep-device-job" and m["format_version"] == 2
+    assert m["format"] == "eigensweep-device-job" and m["format_version"] == 3
     assert m["bit_order"] == BIT_ORDER == "qubit k = character k of the bitstring"
     assert m["meta"] == {"r": 0.7414}
     kinds = [r["kind"] for r in m["circuits"]]
@@ -61,18 +61,32 @@ def test_records_have_documented_fields(h2_job):
     assert abs(m["hamiltonian"]["identity"] - ham.identity_coeff) < 1e-14
 
 
-def test_folded_records_scale_gate_counts(h2_job):
-    # Giurgica-Tiron et al. 2020: folding scales the gate count by the odd factor
-    job, _, _ = h2_job
+def test_folded_records_scale_the_state_preparation_only(h2_job):
+    # Giurgica-Tiron et al. 2020 (arXiv:2005.10921): folding G -> G (G^dagger G)^k multiplies
+    # the folded part's gate count by the odd factor and keeps the unitary; here G is the
+    # state preparation and the group's basis change (its last basis_change_gates gates)
+    # follows unfolded, so every circuit of a job starts with the same state preparation
+    from eigensweep.qubit.statevector import simulate
+
+    job, _, circ = h2_job
     by_group = {}
     for r in job.records:
         if r.kind == "measure":
             by_group.setdefault(r.group, {})[r.scale_factor] = r
+    n_state = len(circ.gates)
     for recs in by_group.values():
-        for s in (3, 5):
-            assert recs[s].n_gates == s * recs[1].n_gates
-            assert recs[s].cnot_count == s * recs[1].cnot_count
+        for s in (1, 3, 5):
+            tail = recs[s].basis_change_gates
+            assert recs[s].n_gates == s * n_state + tail
+            assert recs[s].cnot_count == s * circ.cnot_count
             assert recs[s].ideal_distribution == recs[1].ideal_distribution
+            gates = job.circuits[recs[s].circuit_id].gates
+            assert gates[:n_state] == circ.gates  # the state preparation first
+            assert gates[len(gates) - tail :] == job.circuits[recs[1].circuit_id].gates[n_state:]
+            # same state as the unfolded circuit (statevector to 1e-10, a unitary identity)
+            psi_s = simulate(job.circuits[recs[s].circuit_id])
+            psi_1 = simulate(job.circuits[recs[1].circuit_id])
+            assert abs(abs(np.vdot(psi_1, psi_s)) - 1.0) < 1e-10
 
 
 def test_job_id_is_hash_of_sorted_circuit_hashes(h2_job):

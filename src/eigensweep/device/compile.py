@@ -9,7 +9,9 @@ the Z basis after ``h`` (X) or ``sdg`` then ``h`` (Y), because ``Sdg Y S = X`` a
 
 Global unitary folding ``G -> G (G^dagger G)^k`` with odd scale ``2k + 1`` follows
 Giurgica-Tiron, Hindy, LaRose, Mari, Zeng, "Digital zero noise extrapolation for quantum
-error mitigation", IEEE QCE 2020 (arXiv:2005.10921).
+error mitigation", IEEE QCE 2020 (arXiv:2005.10921). Device jobs fold the state preparation
+only and append each group's basis change after the fold (:func:`folded_measurement_circuit`),
+so all measurement circuits of one job share their (folded) state preparation as a prefix.
 """
 
 from __future__ import annotations
@@ -31,7 +33,9 @@ __all__ = [
     "base_of_global_fold",
     "CircuitCost",
     "CompiledCircuit",
-    "append_on_physical",
+    "basis_change_on_physical",
+    "folded_measurement_circuit",
+    "split_folded_measurement",
     "estimate_cost",
     "choose_region",
     "compile_for_target",
@@ -763,27 +767,55 @@ def compile_for_target(
     return CompiledCircuit(native, layout, final, sorted(region), swaps, target.name)
 
 
-def append_on_physical(compiled: CompiledCircuit, logical_gates: Circuit, target) -> Circuit:
-    """``compiled.circuit`` followed by one-qubit ``logical_gates`` on the final positions, native.
+def basis_change_on_physical(compiled: CompiledCircuit, basis: str, target) -> Circuit:
+    """The basis change measuring ``basis`` on the final physical positions, in native gates.
 
-    Used for measurement basis changes after the routed state preparation; the appended
-    gates merge with the circuit's last one-qubit gates (:func:`peephole`).
+    Logical qubit ``j``'s gates (:func:`measurement_circuit`: ``h`` for X, ``sdg h`` for Y) act
+    on physical qubit ``compiled.final_permutation[j]``; on a device target each qubit's gates
+    are merged into one native one-qubit sequence (:func:`peephole`). The result is on the
+    same register as ``compiled.circuit`` and follows it (and its folds) unchanged.
     """
+    logical = measurement_circuit(Circuit(len(compiled.final_permutation)), basis)
+    n_reg = compiled.circuit.n_qubits
     if target is None or compiled.target == "generic":
-        out = compiled.circuit.copy()
-        out.extend(logical_gates)
-        return out
-    extra = []
-    for g in logical_gates.gates:
-        if len(g.qubits) != 1:
-            raise ValueError("only one-qubit gates can follow the routed circuit")
-        extra.append(Gate(g.name, (compiled.final_permutation[g.qubits[0]],), g.params))
-    if not extra:
-        return compiled.circuit.copy()
-    gates = peephole(
-        list(compiled.circuit.gates) + extra, compiled.circuit.n_qubits, target.one_qubit_basis
-    )
-    return Circuit(compiled.circuit.n_qubits, gates)
+        return Circuit(n_reg, list(logical.gates))
+    extra = [
+        Gate(g.name, (compiled.final_permutation[g.qubits[0]],), g.params) for g in logical.gates
+    ]
+    return Circuit(n_reg, peephole(extra, n_reg, target.one_qubit_basis))
+
+
+def folded_measurement_circuit(state: Circuit, basis_change: Circuit, scale: int) -> Circuit:
+    """``G (G^dagger G)^((scale-1)/2) B``: the state preparation ``G`` folded, then ``B``.
+
+    Only the state preparation is folded (Giurgica-Tiron et al. 2020 fold any unitary; the
+    basis change is a layer of one-qubit gates whose noise is left unscaled), so every
+    measurement circuit of one scale shares the folded state preparation as a common prefix,
+    and the folds of lower scales are prefixes of the higher ones: the noise simulator
+    (:func:`eigensweep.qubit.noise.simulate_distributions`) computes each prefix once.
+    """
+    out = globally_folded_circuit(state, scale)
+    if basis_change.n_qubits != out.n_qubits:
+        raise ValueError(f"basis change on {basis_change.n_qubits} qubits, state on {out.n_qubits}")
+    out.gates.extend(basis_change.gates)
+    return out
+
+
+def split_folded_measurement(
+    circuit: Circuit, scale: int, basis_change_gates: int
+) -> tuple[Circuit, Circuit]:
+    """``(G, B)`` from :func:`folded_measurement_circuit` ``(G, B, scale)``.
+
+    ``basis_change_gates`` is the length of ``B`` (the manifest records it per circuit).
+    Raises ``ValueError`` if the circuit minus its last ``basis_change_gates`` gates is not a
+    global fold of scale ``scale`` (:func:`base_of_global_fold`).
+    """
+    m = int(basis_change_gates)
+    if not 0 <= m <= len(circuit.gates):
+        raise ValueError(f"basis_change_gates {m} outside 0..{len(circuit.gates)}")
+    cut = len(circuit.gates) - m
+    state = base_of_global_fold(Circuit(circuit.n_qubits, list(circuit.gates[:cut])), scale)
+    return state, Circuit(circuit.n_qubits, list(circuit.gates[cut:]))
 
 
 def native_gates_of(circuit: Circuit, target) -> Circuit:

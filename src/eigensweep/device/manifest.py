@@ -4,7 +4,7 @@ A job holds, for one optimized circuit and one qubit Hamiltonian,
 
 * one measurement circuit per qubit-wise-commuting (QWC) group and per odd noise-scale factor
   (global unitary folding, Giurgica-Tiron et al., IEEE QCE 2020, arXiv:2005.10921, of the
-  whole circuit including the basis change), and
+  state preparation, followed by the group's basis change unfolded), and
 * two readout-calibration circuits (prepare all zeros / all ones and measure), which give
   every qubit's 2x2 confusion matrix under the uncorrelated (per-qubit) readout-error model.
 
@@ -32,8 +32,9 @@ import numpy as np
 from eigensweep.circuit import Circuit
 from eigensweep.device.compile import (
     CompiledCircuit,
-    append_on_physical,
+    basis_change_on_physical,
     compile_for_target,
+    folded_measurement_circuit,
     globally_folded_circuit,
     group_basis,
     measurement_circuit,
@@ -64,7 +65,17 @@ __all__ = [
 ]
 
 JOB_FORMAT = "eigensweep-device-job"
-JOB_FORMAT_VERSION = 2  # 2: compiled for a target (target, layout, final_permutation)
+#: 2: compiled for a target (target, layout, final_permutation); 3: only the state preparation
+#: is folded, the basis change follows (records carry ``basis_change_gates``).
+JOB_FORMAT_VERSION = 3
+#: Manifest versions this eigensweep reads (reconcile needs counts, terms and bit order only,
+#: which version 3 left as they were).
+READABLE_JOB_FORMAT_VERSIONS = (2, 3)
+#: The folding rule, as the manifest states it.
+FOLDING_RULE = (
+    "global unitary folding of the state preparation G (G^dagger G)^((s-1)/2), then the "
+    "group's basis change (its last basis_change_gates gates, not folded), arXiv:2005.10921"
+)
 #: The job's human-readable summary, beside the circuits in the job folder.
 SUMMARY_FILE = "job-summary.md"
 BIT_ORDER = "qubit k = character k of the bitstring"
@@ -218,6 +229,7 @@ class CircuitRecord:
     bit_order: str = BIT_ORDER
     qasm2_sha256: str = ""
     two_qubit_count: int = 0
+    basis_change_gates: int | None = None
 
     def to_dict(self) -> dict:
         return {
@@ -239,6 +251,7 @@ class CircuitRecord:
             "two_qubit_count": self.two_qubit_count,
             "depth": self.depth,
             "n_gates": self.n_gates,
+            "basis_change_gates": self.basis_change_gates,
             "ideal_distribution": self.ideal_distribution,
         }
 
@@ -303,7 +316,7 @@ class DeviceJob:
             },
             "groups": self.groups,
             "scale_factors": list(self.scale_factors),
-            "folding": "global unitary folding G (G^dagger G)^((s-1)/2), arXiv:2005.10921",
+            "folding": FOLDING_RULE,
             "shots_total_requested": self.shots_total_requested,
             "shots_total": self.shots_total,
             "target_standard_error": self.target_standard_error,
@@ -356,9 +369,11 @@ def build_job(
 
     ``target`` (an :class:`eigensweep.target.Target`; ``None`` = the generic all-to-all one)
     compiles the state circuit once (:func:`~eigensweep.device.compile.compile_for_target`:
-    routing, natives, peephole); each group's basis change is appended on the final physical
-    positions and the whole circuit is folded (folding adds no swaps: ``G^dagger`` undoes
-    them, so one final permutation holds for every circuit). The OpenQASM files act on the
+    routing, natives, peephole); the state preparation is folded (folding adds no swaps:
+    ``G^dagger`` undoes them, so one final permutation holds for every circuit) and each
+    group's basis change follows on the final physical positions
+    (:func:`~eigensweep.device.compile.folded_measurement_circuit`), so all circuits of one
+    job share the folded state preparation as a prefix. The OpenQASM files act on the
     physical register; :attr:`DeviceJob.circuits` hold the same circuits relabelled to bit
     order (qubit ``k`` = physical ``measured_qubits[k]``), which is what a device returns.
     Ideal distributions are over logical bitstrings (character ``j`` = logical qubit ``j``).
@@ -427,7 +442,7 @@ def build_job(
     q3: dict[str, str] = {}
     q2: dict[str, str] = {}
 
-    def add(cid, kind, grp, scale, basis, pterms, shots, circ, ideal, prepared=None):
+    def add(cid, kind, grp, scale, basis, pterms, shots, circ, ideal, prepared=None, tail=None):
         label = f"eigensweep circuit {cid} of job {job_name} for target {target.name}"
         text3 = to_qasm3(circ, name=label, measured=measured)
         text2 = to_qasm2(circ, name=label, measured=measured)
@@ -453,6 +468,7 @@ def build_job(
                 n_gates=len(circ.gates),
                 prepared=prepared,
                 bit_order=bit_order,
+                basis_change_gates=tail,
             )
         )
 
@@ -461,9 +477,7 @@ def build_job(
     k = 0
     for gi in group_info:
         base = measurement_circuit(circuit, gi["basis"])
-        physical = append_on_physical(
-            compiled, measurement_circuit(Circuit(n), gi["basis"]), target
-        )
+        change = basis_change_on_physical(compiled, gi["basis"], target)
         probs = np.abs(simulate(base)) ** 2
         ideal = probabilities_to_distribution(probs / probs.sum(), n, IDEAL_CUTOFF)
         pterms = [
@@ -471,8 +485,10 @@ def build_job(
         ]
         for s in scales:
             cid = f"g{gi['group']:0{w}d}-fold{s}"
-            circ = globally_folded_circuit(physical, s)
-            add(cid, "measure", gi["group"], s, gi["basis"], pterms, meas_shots[k], circ, ideal)
+            circ = folded_measurement_circuit(compiled.circuit, change, s)
+            tail = len(change.gates)
+            args = (gi["group"], s, gi["basis"], pterms, meas_shots[k], circ, ideal)
+            add(cid, "measure", *args, tail=tail)
             k += 1
     if calibration:
         for bit, shots in zip("01", cal_shots, strict=True):
@@ -766,10 +782,11 @@ def load_manifest(path: str | Path) -> dict:
         raise StageFileError(f"{path}: manifest is not readable JSON ({msg}); {hint}") from None
     if not isinstance(data, dict) or data.get("format") != JOB_FORMAT:
         raise StageFileError(f"{path}: not an {JOB_FORMAT} manifest; {hint}")
-    if data.get("format_version") != JOB_FORMAT_VERSION:
+    if data.get("format_version") not in READABLE_JOB_FORMAT_VERSIONS:
+        readable = " and ".join(map(str, READABLE_JOB_FORMAT_VERSIONS))
         raise StageFileError(
             f"{path}: manifest format_version {data.get('format_version')!r} is not supported "
-            f"(this eigensweep reads {JOB_FORMAT_VERSION}); {hint}"
+            f"(this eigensweep reads {readable}); {hint}"
         )
     missing = [k for k in _MANIFEST_KEYS if k not in data]
     if missing or not isinstance(data["circuits"], list):
@@ -853,3 +870,4 @@ def logical_counts(counts: Mapping[str, int], manifest: Mapping) -> dict[str, in
         key = "".join(bits[p] for p in pos)
         out[key] = out.get(key, 0) + int(c)
     return out
+
