@@ -306,10 +306,24 @@ def _optimize(
     optimizer: dict,
     seed: int,
 ):
+    """The gradient optimizer from ``x0`` plus the optimizer's ``restarts`` extra starts
+    ``x0 + restart_scale * N(0, 1)`` (seeded by ``(seed, r)``), as for the ground state; the
+    lowest objective wins (evaluations of all starts are counted)."""
     method = optimizer["name"]
     skip = ("name", "restarts", "restart_scale", "max_shots")
     options = {k: v for k, v in optimizer.items() if k not in skip}
-    return minimize(value_grad, x0, method=method, grad=True, options=options, seed=seed)
+    scale = float(optimizer.get("restart_scale", 0.1))
+    best, n_eval = None, 0
+    for r in range(int(optimizer.get("restarts", 0)) + 1):
+        start = x0
+        if r:
+            start = x0 + scale * np.random.default_rng([seed, r]).standard_normal(x0.size)
+        res = minimize(value_grad, start, method=method, grad=True, options=options, seed=seed)
+        n_eval += int(res.n_evaluations)
+        if best is None or res.fun < best.fun:
+            best = res
+    best.n_evaluations = n_eval
+    return best
 
 
 def vqd(
