@@ -155,3 +155,47 @@ def test_two_targets_with_one_name_are_refused(tmp_path):
     b = _write(tmp_path, _good(), "b.yaml")
     with pytest.raises(ConfigError, match=r"export.targets\[1\].*chain12-demo"):
         build_plan(_cfg([str(a), str(b)]))
+
+
+def _noisy_cfg(target, export_targets: list[str]) -> dict:
+    est = {"name": "noisy", "shots": 500, "target": target}
+    return validate_config(
+        {
+            "molecules": [{"name": "h2", "atoms": "H 0 0 0; H 0 0 0.74"}],
+            "methods": {"estimator": [est], "optimizer": [{"name": "spsa", "maxiter": 5}]},
+            "export": {"select": [{"molecule": "h2"}], "targets": export_targets},
+        },
+        source="test",
+    )
+
+
+def test_estimator_target_is_planned_by_content_and_named_in_labels(tmp_path):
+    # the cache-key rule of export.targets (issue 17) for the noisy estimator's target: the
+    # optimize key follows the file's content (the YAML as PyYAML reads it), not its path
+    a = _write(tmp_path, _good(), "a.yaml")
+    b = tmp_path / "b.yaml"
+    b.write_text((TARGETS / "chain12-demo.yaml").read_text())  # same data, with comments
+    plan_a = build_plan(_noisy_cfg(str(a), [GENERIC]))
+    plan_b = build_plan(_noisy_cfg(str(b), [GENERIC]))
+    (opt_a,) = plan_a.by_stage("optimize")
+    (opt_b,) = plan_b.by_stage("optimize")
+    assert opt_a.key == opt_b.key
+    assert opt_a.params["estimator"]["target"]["gates"]["cx"] == _good()["gates"]["cx"]
+    assert plan_a.rows[0]["estimator"] == "noisy(shots=500,target=chain12-demo)"
+    edited = _good()
+    edited["qubits"]["readout_p01"] = 0.02
+    _write(tmp_path, edited, "a.yaml")
+    assert build_plan(_noisy_cfg(str(a), [GENERIC])).by_stage("optimize")[0].key != opt_a.key
+    missing = tmp_path / "nope.yaml"
+    with pytest.raises(ConfigError, match="methods.estimator target: .*nope.yaml"):
+        build_plan(_noisy_cfg(str(missing), [GENERIC]))
+
+
+def test_synthetic_device_of_a_target_export_takes_the_target_noise(tmp_path):
+    # issue 17: the synthetic device answers a target's export with that target's noise; the
+    # device keys are the generic target's only
+    chain = _write(tmp_path, _good(), "chain.yaml")
+    plan = build_plan(_noisy_cfg(None, [GENERIC, str(chain)]))
+    rec = {ex["target"]: plan.node(ex["key_reconcile"]).params for ex in plan.exports}
+    assert rec["chain12-demo"]["noise"] == "target" and "readout_error" not in rec["chain12-demo"]
+    assert rec[GENERIC]["readout_error"] == [0.02, 0.04] and "noise" not in rec[GENERIC]

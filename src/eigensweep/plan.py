@@ -198,6 +198,7 @@ def build_plan(
         return key
 
     refs = cfg["references"]
+    targets_read: dict[str, dict] = {}  # estimator target path -> its content
     sweeps = expand_sweeps(cfg, check_combination)
     rows: list[dict] = []
     for sweep, im, mol in _sweep_molecules(cfg, sweeps):
@@ -235,7 +236,7 @@ def build_plan(
                 opt_params = {
                     "ansatz": ansatz,
                     "optimizer": optimizer,
-                    "estimator": estimator,
+                    "estimator": estimator_with_target(estimator, base_dir, targets_read),
                     "seed": seed,
                     "warm_start": bool(sweep.warm_start and (ic, seed) in prev_opt),
                     "states": states,
@@ -266,7 +267,7 @@ def build_plan(
                         "tapered": taper,
                         "ansatz": method_label("ansatz", ansatz),
                         "optimizer": method_label("optimizer", optimizer),
-                        "estimator": method_label("estimator", estimator),
+                        "estimator": estimator_label(estimator, base_dir, targets_read),
                         "states": method_label("states", states),
                         "seed": seed,
                         "key": k_opt,
@@ -283,6 +284,43 @@ def build_plan(
         study=study_name(cfg, config_path),
         skipped=[line for sw in sweeps for line in sw.skipped],
     )
+
+
+def _estimator_target(path: str, base_dir: Path, cache: dict[str, dict]) -> dict:
+    """Canonical content of an estimator's target file (read once per plan)."""
+    from .target import GENERIC, resolve_target
+
+    if path not in cache:
+        try:
+            target = resolve_target(path, base_dir) if path != GENERIC else None
+        except ConfigError as exc:
+            raise ConfigError(f"methods.estimator target: {exc}") from None
+        if target is None:
+            raise ConfigError(
+                "methods.estimator target: 'generic' is not a file; leave target null for the "
+                "noise keys or name a target YAML file"
+            )
+        cache[path] = target.to_dict()
+    return cache[path]
+
+
+def estimator_with_target(estimator: dict, base_dir: Path, cache: dict[str, dict]) -> dict:
+    """The estimator entry with a ``target`` path replaced by the file's canonical content
+    (:meth:`eigensweep.target.Target.to_dict`): the optimize key covers what the target says,
+    not where the file lies, as for ``export.targets``."""
+    path = estimator.get("target")
+    if not isinstance(path, str):
+        return estimator
+    return {**estimator, "target": _estimator_target(path, base_dir, cache)}
+
+
+def estimator_label(estimator: dict, base_dir: Path, cache: dict[str, dict]) -> str:
+    """:func:`method_label` of an estimator, its target named by the target's name."""
+    path = estimator.get("target")
+    if not isinstance(path, str):
+        return method_label("estimator", estimator)
+    name = _estimator_target(path, base_dir, cache)["name"]
+    return method_label("estimator", {**estimator, "target": name})
 
 
 def _check_nroots(states: dict, refs: dict, where: str) -> None:
@@ -333,7 +371,8 @@ def _plan_device(
 
     Targets (``export.targets``) are a planning axis: each selected row gets one export node
     (and folder) per target. With ``device.kind: synthetic`` the reconcile stage samples the
-    built-in noisy device itself; with ``external`` a reconcile node exists only once returned
+    built-in noisy device itself, with the target's noise for a target file's export and the
+    ``device`` keys' noise for ``generic``; with ``external`` a reconcile node exists only once returned
     counts were imported to ``results/returned/<export key>.json``, and the file's SHA-256 is
     part of its key.
     """
@@ -375,7 +414,10 @@ def _plan_device(
                 "taper": row["key_taper"],
                 "integrals": row["key_integrals"],
             }
-            if dev["kind"] == "synthetic":
+            if dev["kind"] == "synthetic" and isinstance(target, dict):
+                # a device target's export: its noise comes from the target (in the export key)
+                rec_params["noise"] = "target"
+            elif dev["kind"] == "synthetic":
                 rec_params.update(
                     {k: dev[k] for k in ("readout_error", "depolarizing_1q", "depolarizing_2q")}
                 )

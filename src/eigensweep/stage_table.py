@@ -103,7 +103,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "reconcile",
-        4,
+        5,
         "run_reconcile",
         {"export": "export", "taper": "taper", "integrals": "integrals", "counts": RETURNED},
         ("stage",),

@@ -393,10 +393,11 @@ def _export_problem(int_params: dict, opt_params: dict) -> dict:
     files are labels outside the content key (one job serves every sweep that shares it);
     ``results/device_summary.csv`` and ``eigensweep plan`` tie the job to them."""
     keys = ("atoms", "unit", "basis", "charge", "multiplicity", "frozen_core", "active")
-    return {
-        **{k: int_params.get(k) for k in keys},
-        **{k: opt_params.get(k) for k in ("ansatz", "optimizer", "estimator")},
-    }
+    methods = {k: opt_params.get(k) for k in ("ansatz", "optimizer", "estimator")}
+    est = methods["estimator"]
+    if isinstance(est, dict) and isinstance(est.get("target"), dict):
+        methods["estimator"] = {**est, "target": est["target"]["name"]}  # the file's name
+    return {**{k: int_params.get(k) for k in keys}, **methods}
 
 
 def export_target(param, key: str):
@@ -469,7 +470,7 @@ def run_reconcile(
     node: Node, inputs: dict[str, str], output: str, progress: Progress = None
 ) -> None:
     """Returned counts -> energies with bootstrap intervals: raw, mitigated, verified, extrapolated."""
-    from .device import load_results, reconcile, run_synthetic_device
+    from .device import load_results, reconcile, run_synthetic_device, target_noise
 
     p = node.params
     exp = read_stage(inputs["export"], stage="export")
@@ -478,7 +479,15 @@ def run_reconcile(
     tap, tap_sd = load_taper(inputs["taper"])
     ints = load_integrals(inputs["integrals"])
     with Timer() as t:
-        if p["device"] == "synthetic":
+        if p["device"] == "synthetic" and p.get("noise") == "target":
+            returned = run_synthetic_device(
+                folder,
+                seed=p["seed"],
+                noise=target_noise(manifest),
+                device=f"eigensweep synthetic device ({manifest['target']['name']} noise)",
+            )
+            counts = {cid: r["counts"] for cid, r in returned["results"].items()}
+        elif p["device"] == "synthetic":
             returned = run_synthetic_device(
                 folder,
                 seed=p["seed"],

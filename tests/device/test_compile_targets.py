@@ -395,9 +395,11 @@ def test_sweep_with_targets_reports_costs_and_reconciles(tmp_path, capsys, monke
     with open(results / "t" / "device_summary.csv") as fh:
         raw_rows = {r["target"]: r for r in csv.DictReader(fh) if r["estimate"] == "raw"}
     assert set(raw_rows) == {"chain12-demo", "generic"}
-    for r in raw_rows.values():  # noise-free device: the sampled energy brackets FCI
-        lo, hi = float(r["ci_low_eh"]), float(r["ci_high_eh"])
-        assert lo - 1e-3 < e_fci < hi + 1e-3, (r["target"], lo, hi, e_fci)
+    # generic export, noise-free device keys: the sampled energy brackets FCI; the chain's
+    # export is answered with the chain12-demo target's own noise (issue 17), far above it
+    lo, hi = float(raw_rows["generic"]["ci_low_eh"]), float(raw_rows["generic"]["ci_high_eh"])
+    assert lo - 1e-3 < e_fci < hi + 1e-3, (lo, hi, e_fci)
+    assert float(raw_rows["chain12-demo"]["ci_low_eh"]) > e_fci + 0.05
 
 
 def test_cost_estimate_follows_the_documented_closed_form():

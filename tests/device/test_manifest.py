@@ -248,3 +248,19 @@ def test_build_job_without_calibration_and_single_scale(h2_job):
     assert all(r.kind == "measure" and r.scale_factor == 1 for r in job.records)
     assert job.shots_total == 5000
     assert np.isclose(sum(g["weight"] for g in job.groups), sum(abs(t["coeff"]) for t in job.terms))
+
+
+def test_logical_distributions_read_each_logical_bit_at_its_position():
+    # reference: the definition in docs/counts-format.md (logical qubit j = character
+    # logical_bit_positions[j] of the returned bitstring), applied bitstring by bitstring
+    from eigensweep.device.manifest import logical_distributions
+
+    rng = np.random.default_rng(4)
+    probs = rng.random((2, 8))
+    pos = [2, 0, 1]
+    want = np.zeros_like(probs)
+    for i in range(8):
+        bits = format(i, "03b")
+        j = int("".join(bits[p] for p in pos), 2)
+        want[:, j] += probs[:, i]
+    assert np.array_equal(logical_distributions(probs, pos), want)

@@ -108,3 +108,38 @@ def test_noisy_parameter_shift_optimizer_measures_circuits():
     )
     e_hf = UCCSD(space_of("H2")).energy(np.zeros(res.n_params))
     assert res.energy_exact_at_params < e_hf - 1e-3
+
+
+@pytest.mark.parametrize("tapered", [True, False])
+def test_noisy_estimator_with_a_target_agrees_with_that_targets_export_on_the_device(tapered):
+    # issue 17: optimize under a target's noise -> export for that target -> synthetic device;
+    # the estimator (estimator.target = the file) and the device (the export's stored
+    # target) see one model: raw energies within two standard errors; H2 tapered to 1 qubit,
+    # and untapered on 4 qubits of the chain (routed, bit order permuted)
+    from fixtures import h2_ansatz, h2_problem
+
+    from eigensweep.device.synthetic import target_noise
+    from eigensweep.target import load_target
+    from eigensweep.vqe import make_estimator
+
+    path = "config/targets/chain12-demo.yaml"
+    mapping = "jordan_wigner"
+    if tapered:
+        ham = tapering("H2", mapping).hamiltonian
+        res = tapered_uccsd("H2", mapping)
+        circ = circuit_from_meta(json.loads(json.dumps(res.ansatz_meta)), res.params, mapping)
+    else:
+        ham = h2_problem()[0]
+        circ = h2_ansatz()[2]
+    ideal = expectation(simulate(circ), ham)
+    cfg = {"name": "noisy", "shots": 40000, "seed": 11, "target": path}
+    est = make_estimator(cfg, ham, seed=0).estimate(circ)
+    job = build_job(
+        circ, ham, shots_total=44000, scale_factors=(1,), job_name="h2", target=load_target(path)
+    )
+    assert job.to_manifest()["target"]["name"] == "chain12-demo"
+    counts = run_synthetic_device(job, seed=5, noise=target_noise(job))
+    raw = reconcile(job.to_manifest(), counts, ham, bootstrap=400, seed=1).raw
+    se = math.hypot(est.stderr, raw.stderr)
+    assert abs(est.value - raw.value) < 2 * se, (est.value, raw.value, se)
+    assert abs(est.value - ideal) > 5 * est.stderr

@@ -157,3 +157,24 @@ def test_bad_noise_parameters(two_qubit_job, kw):
     job, _ = two_qubit_job
     with pytest.raises(ValueError):
         run_synthetic_device(job, seed=0, **kw)
+
+
+def test_target_noise_is_the_targets_numbers_on_the_measured_qubits():
+    # reference: the target YAML file as PyYAML reads it (chain12-demo, invented numbers)
+    from pathlib import Path
+
+    import yaml
+
+    from eigensweep.device.synthetic import target_noise
+    from eigensweep.target import load_target
+
+    path = Path(__file__).resolve().parents[2] / "config" / "targets" / "chain12-demo.yaml"
+    data = yaml.safe_load(path.read_text())
+    ham, circ = two_qubit_problem()[:2]
+    job = build_job(circ, ham, shots_total=2000, job_name="t", target=load_target(path))
+    measured = job.to_manifest()["measured_qubits"]
+    noise = target_noise(job)
+    for key in ("t1_us", "t2_us", "readout_p01", "readout_p10"):
+        assert list(getattr(noise, key)) == [data["qubits"][key][q] for q in measured]
+    assert noise.gate_noise("cx", 2).error == data["gates"]["cx"]["error"]
+    assert noise.gate_noise("sx", 1).duration_ns == data["gates"]["sx"]["duration_ns"]

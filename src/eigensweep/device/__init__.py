@@ -46,7 +46,7 @@ from eigensweep.device.reconcile import (
     plot_histograms,
     reconcile,
 )
-from eigensweep.device.synthetic import run_synthetic_device, write_results
+from eigensweep.device.synthetic import run_synthetic_device, target_noise, write_results
 
 __all__ = [
     "BIT_ORDER",
@@ -78,6 +78,7 @@ __all__ = [
     "plot_histograms",
     "reconcile",
     "run_synthetic_device",
+    "target_noise",
     "state_circuit",
     "to_qasm2",
     "to_qasm3",

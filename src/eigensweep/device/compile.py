@@ -17,7 +17,7 @@ so all measurement circuits of one job share their (folded) state preparation as
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -35,6 +35,7 @@ __all__ = [
     "CompiledCircuit",
     "basis_change_on_physical",
     "folded_measurement_circuit",
+    "measurement_circuits_on_target",
     "split_folded_measurement",
     "estimate_cost",
     "choose_region",
@@ -799,6 +800,23 @@ def folded_measurement_circuit(state: Circuit, basis_change: Circuit, scale: int
         raise ValueError(f"basis change on {basis_change.n_qubits} qubits, state on {out.n_qubits}")
     out.gates.extend(basis_change.gates)
     return out
+
+
+def measurement_circuits_on_target(
+    compiled: CompiledCircuit, bases: Sequence[str], target, scale: int = 1
+) -> list[Circuit]:
+    """One :func:`folded_measurement_circuit` per basis, on the target's physical register.
+
+    What the export stage sends and what the ``noisy`` estimator with a target simulates:
+    ``compiled.circuit`` (the state preparation compiled for ``target``) folded to ``scale``,
+    then the basis change of each group on the final physical positions.
+    """
+    return [
+        folded_measurement_circuit(
+            compiled.circuit, basis_change_on_physical(compiled, b, target), scale
+        )
+        for b in bases
+    ]
 
 
 def split_folded_measurement(

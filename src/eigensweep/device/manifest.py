@@ -61,6 +61,7 @@ __all__ = [
     "as_manifest",
     "bit_order_circuit",
     "logical_counts",
+    "logical_distributions",
     "atomic_write_text",
 ]
 
@@ -871,3 +872,18 @@ def logical_counts(counts: Mapping[str, int], manifest: Mapping) -> dict[str, in
         out[key] = out.get(key, 0) + int(c)
     return out
 
+
+def logical_distributions(probs: np.ndarray, positions: Sequence[int]) -> np.ndarray:
+    """Outcome distributions (last axis ``2**n``, physical bit order) over logical bitstrings.
+
+    The array form of :func:`logical_counts`: logical qubit ``j`` is bit ``positions[j]``
+    (``logical_bit_positions``) of the physical outcome; qubit 0 is the most significant bit.
+    """
+    p = np.asarray(probs, dtype=float)
+    n = len(positions)
+    if list(positions) == list(range(n)):
+        return p
+    lead = p.shape[:-1]
+    cube = p.reshape(*lead, *(2,) * n)
+    axes = list(range(len(lead))) + [len(lead) + int(k) for k in positions]
+    return np.ascontiguousarray(np.transpose(cube, axes)).reshape(*lead, 1 << n)

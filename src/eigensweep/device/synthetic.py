@@ -18,7 +18,8 @@ The older device keys map onto a :class:`~eigensweep.qubit.noise.NoiseModel` wit
 :meth:`~eigensweep.qubit.noise.NoiseModel.from_probabilities`: ``depolarizing_1q`` and
 ``depolarizing_2q`` are the error rates of every one- and two-qubit gate, ``readout_error =
 (p0to1, p1to0)`` the readout errors (scalars or per qubit); no durations, so no relaxation.
-Pass ``noise=`` (e.g. ``NoiseModel.from_mapping`` of a device target) for the full model.
+Pass ``noise=`` for the full model; :func:`target_noise` gives a job's own target's (the
+reconcile stage uses it for exports compiled for a device target).
 
 Conventions of :mod:`eigensweep.circuit`: qubit 0 is the most significant bit of the index,
 and bitstring character ``k`` is qubit ``k``.
@@ -37,6 +38,7 @@ from eigensweep.qubit.noise import NoiseModel, readout_distribution, simulate_di
 
 __all__ = [
     "run_synthetic_device",
+    "target_noise",
     "write_results",
 ]
 
@@ -49,6 +51,20 @@ def _circuits_of(job) -> tuple[dict, list[tuple[dict, Circuit]]]:
         manifest = job.to_manifest()
         return manifest, [(rec, job.circuits[rec["circuit_id"]]) for rec in manifest["circuits"]]
     return load_job_circuits(Path(job))
+
+
+def target_noise(manifest) -> NoiseModel:
+    """The noise of a job's device target on the job's bit-order register.
+
+    :meth:`NoiseModel.from_mapping` of the manifest's ``target`` (the target's content, as
+    the export stored it), restricted to the physical qubits the job measures: qubit ``k`` of
+    the job's circuits is physical qubit ``measured_qubits[k]`` (:meth:`NoiseModel.for_qubits`).
+    """
+    from eigensweep.device.manifest import as_manifest
+
+    m = as_manifest(manifest)
+    measured = m.get("measured_qubits") or list(range(int(m["n_qubits"])))
+    return NoiseModel.from_mapping(m["target"]).for_qubits(measured)
 
 
 def run_synthetic_device(

@@ -22,8 +22,13 @@
     config keys map onto a :class:`~eigensweep.qubit.noise.NoiseModel`: ``depolarizing`` is the
     depolarizing error rate of every two-qubit gate (one-qubit gates noiseless, no durations,
     so no relaxation), ``p01`` = P(read 1 | 0) and ``p10`` = P(read 0 | 1) (both default to
-    ``readout_error``); :func:`make_estimator` also takes a ``NoiseModel`` (e.g. a device
-    target's). No error mitigation is applied.
+    ``readout_error``). With ``target`` (a device target file) the noise is the target's
+    (:meth:`~eigensweep.qubit.noise.NoiseModel.from_mapping`, the keys above are then unused)
+    and the circuit is compiled for the target as the export stage compiles it (routing,
+    native gates, :func:`eigensweep.device.compile.measurement_circuits_on_target`), so an
+    optimization under a target's noise and the synthetic device's run of that target's export
+    see the same circuits and noise. :func:`make_estimator` also takes a ``NoiseModel``. No
+    error mitigation is applied.
 
 Shot accounting: every estimator carries a :class:`ShotLedger` that adds up the shots of
 each estimate by purpose (``energy``, ``gradient``, ``calibration``, ``selection`` of
@@ -60,6 +65,7 @@ __all__ = [
     "ShotEstimator",
     "ShotLedger",
     "make_estimator",
+    "estimator_target",
     "noise_of_estimator",
     "validate_estimator",
 ]
@@ -326,7 +332,10 @@ class NoisyEstimator(ShotEstimator):
     """Shots of a circuit run on the noise simulator (module docstring).
 
     :meth:`estimate` takes the state's :class:`~eigensweep.circuit.Circuit` (not a
-    statevector): local noise depends on the gates, not only on the state they prepare.
+    statevector): local noise depends on the gates, not only on the state they prepare. With
+    a device ``target`` (:class:`eigensweep.target.Target`) the circuit is first compiled for
+    it as the export stage compiles it (routing, native gates; ``noise`` then holds the
+    target's per-physical-qubit numbers, :meth:`NoiseModel.from_mapping` of the target).
     """
 
     name = "noisy"
@@ -339,26 +348,42 @@ class NoisyEstimator(ShotEstimator):
         noise: NoiseModel,
         *,
         trajectories: int = 200,
+        target=None,
     ) -> None:
         super().__init__(ham, shots, rng)
         self.noise = noise
+        self.target = target
         self.trajectories = int(trajectories)
         self.labels = ["".join("IXZY"[b] for b in basis) for basis in self.plan.bases]
 
+    def _circuits(self, circuit: Circuit, labels: list[str]):
+        """(circuits in bit order, their noise model, logical bit positions or None)."""
+        from ..device.compile import compile_for_target, measurement_circuit
+
+        if self.target is None:
+            return [measurement_circuit(circuit, lab) for lab in labels], self.noise, None
+        from ..device.compile import measurement_circuits_on_target
+        from ..device.manifest import bit_order_circuit
+
+        compiled = compile_for_target(circuit, self.target)
+        measured = compiled.measured_qubits
+        physical = measurement_circuits_on_target(compiled, labels, self.target)
+        circuits = [bit_order_circuit(c, measured) for c in physical]
+        return circuits, self.noise.for_qubits(measured), compiled.logical_bit_positions()
+
     def _simulate(self, circuit: Circuit, groups) -> np.ndarray:
         """Noisy outcome distributions (readout included) of the groups' measurement circuits."""
-        from ..device.compile import measurement_circuit
+        from ..device.manifest import logical_distributions
 
         if not isinstance(circuit, Circuit):
             raise TypeError(
                 "the noisy estimator measures a circuit (eigensweep.circuit.Circuit), got "
                 f"{type(circuit).__name__}"
             )
-        circuits = [measurement_circuit(circuit, self.labels[g]) for g in groups]
-        p = simulate_distributions(
-            circuits, self.noise, trajectories=self.trajectories, rng=self.rng
-        )
-        return readout_distribution(p, self.noise.readout_p01, self.noise.readout_p10)
+        circuits, noise, positions = self._circuits(circuit, [self.labels[g] for g in groups])
+        p = simulate_distributions(circuits, noise, trajectories=self.trajectories, rng=self.rng)
+        p = readout_distribution(p, noise.readout_p01, noise.readout_p10)
+        return p if positions is None else logical_distributions(p, positions)
 
     def _distributions(self, psi) -> np.ndarray:
         return self._simulate(psi, range(self.plan.n_groups))
@@ -367,8 +392,30 @@ class NoisyEstimator(ShotEstimator):
         return self._simulate(psi, [g])[0]
 
 
+def estimator_target(cfg: dict[str, Any]):
+    """The device target of a ``noisy`` estimator config, or ``None``.
+
+    ``target`` is a target file's path (library use; read with
+    :func:`eigensweep.target.load_target`) or, in a planned sweep, the file's canonical
+    content (:meth:`eigensweep.target.Target.to_dict`, filled in by the planner so that the
+    cache key follows what the target says).
+    """
+    from ..target import load_target, target_from_dict
+
+    raw = cfg.get("target")
+    if raw is None:
+        return None
+    if isinstance(raw, dict):
+        return target_from_dict(raw, f"estimator.target ({raw.get('name')})")
+    return load_target(raw)
+
+
 def noise_of_estimator(cfg: dict[str, Any]) -> NoiseModel:
-    """The :class:`NoiseModel` of a validated ``noisy`` estimator config (module docstring)."""
+    """The :class:`NoiseModel` of a validated ``noisy`` estimator config (module docstring):
+    the target's (:meth:`NoiseModel.from_mapping`) when ``target`` is set, else the keys."""
+    target = estimator_target(cfg)
+    if target is not None:
+        return NoiseModel.from_mapping(target.to_dict())
     p01 = cfg["p01"] if cfg["p01"] is not None else cfg["readout_error"]
     p10 = cfg["p10"] if cfg["p10"] is not None else cfg["readout_error"]
     return NoiseModel.from_probabilities(
@@ -394,4 +441,5 @@ def make_estimator(
     rng = np.random.default_rng(seed if s is None else s)
     if name == "shots":
         return ShotEstimator(ham, cfg["shots"], rng)
-    return NoisyEstimator(ham, cfg["shots"], rng, noise or noise_of_estimator(cfg))
+    target = estimator_target(cfg)
+    return NoisyEstimator(ham, cfg["shots"], rng, noise or noise_of_estimator(cfg), target=target)
