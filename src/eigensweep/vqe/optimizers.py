@@ -20,7 +20,8 @@ Methods (``method=``):
     Spall, IEEE Trans. Aerosp. Electron. Syst. 34, 817 (1998)). If ``a`` is not given it is
     calibrated so that the first step moves each parameter by about ``first_step`` on
     average, from ``gain_estimates`` gradient estimates at ``x0``. The returned point is
-    the mean of the last ``iterate_average`` iterates (iterate averaging; 1 = last iterate).
+    the mean of the last ``iterate_average`` iterates (iterate averaging of Polyak & Juditsky,
+    SIAM J. Control Optim. 30, 838 (1992), and Ruppert (1988); 1 = last iterate).
     SPSA has no convergence test: ``converged`` is always False (the gain schedule ran to its
     end; the optimize result's ``stop_reason`` says ``max_iterations``). Two safeguards of
     Spall (1998, sec. III): ``resamplings`` gradient estimates are averaged per iteration,
