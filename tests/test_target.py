@@ -199,3 +199,20 @@ def test_synthetic_device_of_a_target_export_takes_the_target_noise(tmp_path):
     rec = {ex["target"]: plan.node(ex["key_reconcile"]).params for ex in plan.exports}
     assert rec["chain12-demo"]["noise"] == "target" and "readout_error" not in rec["chain12-demo"]
     assert rec[GENERIC]["readout_error"] == [0.02, 0.04] and "noise" not in rec[GENERIC]
+
+
+def test_select_entry_targets_restrict_its_exports(tmp_path):
+    # config/README.md: a select entry's targets export its rows for those targets only
+    chain = _write(tmp_path, _good(), "chain.yaml")
+    raw = {
+        "molecules": [{"name": "h2", "atoms": "H 0 0 0; H 0 0 0.74"}],
+        "export": {
+            "select": [{"molecule": "h2", "targets": ["chain12-demo"]}],
+            "targets": [GENERIC, str(chain)],
+        },
+    }
+    plan = build_plan(validate_config(raw, source="test"))
+    assert [ex["target"] for ex in plan.exports] == ["chain12-demo"]
+    raw["export"]["select"][0]["targets"] = ["grid3x4-demo"]
+    with pytest.raises(ConfigError, match=r"export.select\[0\].targets: 'grid3x4-demo'"):
+        build_plan(validate_config(raw, source="test"))

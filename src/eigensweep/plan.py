@@ -380,7 +380,9 @@ def _plan_device(
     out: list[dict] = []
     seen: set[tuple[str, str]] = set()
     targets = export_targets(cfg, base_dir) if exp["select"] else []
-    for i, sel in enumerate(exp["select"]):
+    for i, entry in enumerate(exp["select"]):
+        sel = {k: v for k, v in entry.items() if k != "targets"}
+        wanted = _selected_targets(entry, targets, i)
         matched = [row for row in rows if _row_matches(sel, row)]
         if not matched:
             raise ConfigError(
@@ -388,7 +390,7 @@ def _plan_device(
                 "sweep; check its values against the summary columns (molecule, point, mapping, "
                 "tapered, ansatz, optimizer, estimator)"
             )
-        for row, (target_name, target) in itertools.product(matched, targets):
+        for row, (target_name, target) in itertools.product(matched, wanted):
             if (row["key"], target_name) in seen:
                 continue
             seen.add((row["key"], target_name))
@@ -433,6 +435,21 @@ def _plan_device(
             k_rec = add("reconcile", rec_params, parents)
             out.append({**row, "target": target_name, "key_export": k_exp, "key_reconcile": k_rec})
     return out
+
+
+def _selected_targets(entry: dict, targets: list, i: int) -> list:
+    """The ``(name, parameter)`` pairs of ``export.targets`` an ``export.select`` entry asks for."""
+    names = entry.get("targets")
+    if names is None:
+        return targets
+    known = [name for name, _ in targets]
+    for name in names:
+        if name not in known:
+            raise ConfigError(
+                f"export.select[{i}].targets: {name!r} is not a target of export.targets "
+                f"({', '.join(known)}); name one of them"
+            )
+    return [(name, t) for name, t in targets if name in names]
 
 
 def parent_files(node: Node, results: str = "results") -> dict[str, str]:
