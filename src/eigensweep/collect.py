@@ -702,7 +702,8 @@ TARGET_COST_METRICS: list[Column] = [
         "fidelity",
         "",
         "estimated circuit fidelity: product of gate fidelities times idle decay "
-        "exp(-t_idle/T1 - t_idle/T_phi) per used qubit (an estimate, not a guarantee)",
+        "exp(-t_idle/T1 - t_idle/T_phi) per used qubit times the readout assignment fidelity "
+        "1 - (p01 + p10)/2 per measured qubit (an estimate, not a guarantee)",
     ),
     _c("shots", "", "shots for `export.target_mha` from the group variances at the ideal state"),
     _c("shots_noisy", "", "the same divided by the estimated fidelity squared (rule of thumb)"),

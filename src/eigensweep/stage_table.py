@@ -95,7 +95,7 @@ STAGES: tuple[StageSpec, ...] = (
     ),
     _spec(
         "export",
-        6,
+        7,
         "run_export",
         {"optimize": "optimize", "taper": "taper", "integrals": "integrals"},
         ("stage", "jobs"),

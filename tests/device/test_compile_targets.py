@@ -418,5 +418,9 @@ def test_cost_estimate_follows_the_documented_closed_form():
     idle = t.gate_duration_ns("sx") / 1000.0
     t1, t2 = t.t1_us[1], t.t2_us[1]
     idle_f = math.exp(-idle / t1 - idle * max(0.0, 1 / t2 - 1 / (2 * t1)))
-    assert abs(cost.fidelity - gate_f * idle_f) < 1e-12
+    # readout: probability of reading the right bit, averaged over 0 and 1 (assignment
+    # fidelity, common practice), for both measured qubits
+    read_f = math.prod(1 - (t.readout_p01[q] + t.readout_p10[q]) / 2 for q in (0, 1))
+    assert abs(cost.idle_fidelity - idle_f) < 1e-12 and abs(cost.readout_fidelity - read_f) < 1e-12
+    assert abs(cost.fidelity - gate_f * idle_f * read_f) < 1e-12
     assert cost.two_qubit_count == 1 and cost.depth == 2

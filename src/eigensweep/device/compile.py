@@ -857,11 +857,12 @@ class CircuitCost:
     duration_ns: float
     gate_fidelity: float
     idle_fidelity: float
+    readout_fidelity: float = 1.0
 
     @property
     def fidelity(self) -> float:
-        """Estimated circuit fidelity: gate part times idle part."""
-        return self.gate_fidelity * self.idle_fidelity
+        """Estimated circuit fidelity: gate part times idle part times readout part."""
+        return self.gate_fidelity * self.idle_fidelity * self.readout_fidelity
 
     def to_dict(self) -> dict:
         return {
@@ -870,6 +871,7 @@ class CircuitCost:
             "duration_ns": self.duration_ns,
             "gate_fidelity": self.gate_fidelity,
             "idle_fidelity": self.idle_fidelity,
+            "readout_fidelity": self.readout_fidelity,
             "fidelity": self.fidelity,
         }
 
@@ -882,8 +884,10 @@ def estimate_cost(circuit: Circuit, target, qubits=None) -> CircuitCost:
     durations. The fidelity is ``prod_gates (1 - error_g)`` times, for every used qubit,
     ``exp(-t_idle / T1) exp(-t_idle / T_phi)`` with ``1/T_phi = max(0, 1/T2 - 1/(2 T1))``
     (amplitude damping and pure dephasing while the qubit waits; Nielsen & Chuang, ch. 8),
-    where ``t_idle`` is the duration minus the qubit's busy time. Crosstalk, leakage,
-    coherent errors and readout are not in it.
+    where ``t_idle`` is the duration minus the qubit's busy time, times the readout part
+    ``prod_qubits (1 - (p01 + p10) / 2)``, each measured qubit's assignment fidelity (the
+    probability of reading the right bit, averaged over 0 and 1). Crosstalk, leakage, coherent
+    errors and correlated readout errors are not in it.
 
     Args:
         circuit: native gates on the target's physical qubits.
@@ -908,15 +912,18 @@ def estimate_cost(circuit: Circuit, target, qubits=None) -> CircuitCost:
     duration = max(ready, default=0.0)
     used = sorted({q for g in circuit.gates for q in g.qubits}) if qubits is None else qubits
     log_idle = 0.0
+    log_read = 0.0
     for q in used:
         t_idle_us = (duration - busy[q]) / 1000.0
         t1, t2 = target.t1_us[q], target.t2_us[q]
         rate_phi = max(0.0, 1.0 / t2 - 1.0 / (2.0 * t1))
         log_idle -= t_idle_us * (1.0 / t1 + rate_phi)
+        log_read += math.log1p(-0.5 * (target.readout_p01[q] + target.readout_p10[q]))
     return CircuitCost(
         two_qubit_count=circuit.two_qubit_count,
         depth=circuit.depth,
         duration_ns=float(duration),
         gate_fidelity=float(math.exp(log_f)),
         idle_fidelity=float(math.exp(log_idle)),
+        readout_fidelity=float(math.exp(log_read)),
     )

@@ -555,7 +555,8 @@ def build_job(
 COST_MODEL = (
     "estimate, not a guarantee: ASAP schedule of the native state preparation, duration = "
     "critical path of gate durations, fidelity = prod(1 - gate error) x prod over used qubits "
-    "exp(-t_idle/T1 - t_idle/T_phi); shots from the group variances at the ideal state, "
+    "exp(-t_idle/T1 - t_idle/T_phi) x prod over measured qubits (1 - (p01 + p10)/2); shots "
+    "from the group variances at the ideal state, "
     "noisy shots divided by fidelity^2"
 )
 
@@ -703,7 +704,8 @@ def _cost_lines(job: DeviceJob) -> list[str]:
         f"- **estimated** cost of the state preparation on this target (native gates): "
         f"{c['two_qubit_count']} two-qubit gates, depth {c['depth']}, duration "
         f"{c['duration_ns'] / 1000.0:.4g} us, circuit fidelity {c['fidelity']:.3g} (gates "
-        f"{c['gate_fidelity']:.3g} x idle decay {c['idle_fidelity']:.3g})",
+        f"{c['gate_fidelity']:.3g} x idle decay {c['idle_fidelity']:.3g} x readout "
+        f"{c['readout_fidelity']:.3g})",
         f"- shots for a {eps:.3g} mHa standard error from the group variances at the ideal "
         f"state: {shots if shots is not None else 'n/a'}; with the signal shrunk by the "
         f"estimated fidelity (x 1/F^2): {noisy if noisy is not None else 'n/a'}",
