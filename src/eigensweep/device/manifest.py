@@ -380,148 +380,27 @@ def build_job(
     Ideal distributions are over logical bitstrings (character ``j`` = logical qubit ``j``).
     """
     n = int(circuit.n_qubits)
-    if int(ham.n_qubits) != n:
-        raise ValueError(f"Hamiltonian acts on {ham.n_qubits} qubits, circuit on {n}")
-    if shots_total < 1 or min_shots < 1:
-        raise ValueError("shots_total and min_shots must be positive")
-    if not 0 <= calibration_fraction < 1:
-        raise ValueError("calibration_fraction must lie in [0, 1)")
-    scales = tuple(int(s) for s in scale_factors)
-    if not scales or len(set(scales)) != len(scales):
-        raise ValueError(f"scale_factors must be distinct odd positive integers, got {scales}")
-    for s in scales:
-        globally_folded_circuit(Circuit(n), s)  # validates oddness / positivity
-    meta = dict(meta or {})
-    try:
-        json.dumps(meta, allow_nan=False)
-    except (TypeError, ValueError) as err:
-        raise ValueError(f"meta must be JSON-serialisable: {err}") from None
-
-    labels = pauli_labels(ham)
-    coeffs = _real_coeffs(ham)
-    identity_idx = {i for i, lab in enumerate(labels) if set(lab) == {"I"}}
-    identity = float(sum(coeffs[i] for i in identity_idx))
-    terms = [
-        {"index": i, "label": labels[i], "coeff": float(coeffs[i])}
-        for i in range(len(labels))
-        if i not in identity_idx
-    ]
-    group_idx = [np.asarray(g, dtype=int).reshape(-1) for g in (groups or default_groups(ham))]
-    group_idx = [g for g in group_idx if g.size]
-    seen = np.concatenate(group_idx) if group_idx else np.array([], dtype=int)
-    want = sorted(t["index"] for t in terms)
-    if sorted(seen.tolist()) != want:
-        raise ValueError("groups must contain every non-identity term index exactly once")
-
-    group_info = []
-    for g, idx in enumerate(group_idx):
-        basis = group_basis([labels[i] for i in idx], n)  # raises if not QWC
-        weight = float(np.sum(np.abs(coeffs[idx])))
-        group_info.append(
-            {"group": g, "basis": basis, "terms": [int(i) for i in idx], "weight": weight}
-        )
-
-    # ---- shots
-    n_cal = 2 if calibration else 0
-    cal_budget = int(round(calibration_fraction * shots_total)) if calibration else 0
-    cal_shots = allocate_shots(cal_budget, [1.0] * n_cal, min_shots) if n_cal else []
-    weights = [gi["weight"] for gi in group_info for _ in scales]
-    meas_shots = allocate_shots(max(shots_total - sum(cal_shots), 0), weights, min_shots)
-
-    # ---- circuits
+    scales, meta = _checked_job_inputs(
+        n, ham, shots_total, min_shots, calibration_fraction, scale_factors, meta
+    )
+    labels, coeffs = pauli_labels(ham), _real_coeffs(ham)
+    identity, terms = _identity_and_terms(labels, coeffs)
+    group_idx = _checked_groups(ham, groups, terms)
+    group_info = _group_info(group_idx, labels, coeffs, n)
+    cal_shots, meas_shots = _split_shots(
+        shots_total, calibration, calibration_fraction, min_shots, group_info, scales
+    )
     from eigensweep.target import generic_target
 
-    if target is None:
-        target = generic_target(n)
+    target = generic_target(n) if target is None else target
     compiled = compile_for_target(circuit, target)
-    measured = compiled.measured_qubits
-    routed = measured != list(range(n)) or compiled.final_permutation != list(range(n))
-    bit_order = PHYSICAL_BIT_ORDER if routed else BIT_ORDER
-    w = _id_width(len(group_info))
-    records: list[CircuitRecord] = []
-    circuits: dict[str, Circuit] = {}
-    q3: dict[str, str] = {}
-    q2: dict[str, str] = {}
-
-    def add(cid, kind, grp, scale, basis, pterms, shots, circ, ideal, prepared=None, tail=None):
-        label = f"eigensweep circuit {cid} of job {job_name} for target {target.name}"
-        text3 = to_qasm3(circ, name=label, measured=measured)
-        text2 = to_qasm2(circ, name=label, measured=measured)
-        circuits[cid], q3[cid], q2[cid] = bit_order_circuit(circ, measured), text3, text2
-        records.append(
-            CircuitRecord(
-                circuit_id=cid,
-                kind=kind,
-                group=grp,
-                scale_factor=scale,
-                n_qubits=n,
-                basis=basis,
-                pauli_terms=pterms,
-                shots=int(shots),
-                sha256=sha256_text(text3),
-                qasm3_file=f"{cid}.qasm",
-                qasm2_file=f"{cid}.qasm2",
-                qasm2_sha256=sha256_text(text2),
-                ideal_distribution=ideal,
-                cnot_count=circ.cnot_count,
-                two_qubit_count=circ.two_qubit_count,
-                depth=circ.depth,
-                n_gates=len(circ.gates),
-                prepared=prepared,
-                bit_order=bit_order,
-                basis_change_gates=tail,
-            )
-        )
-
-    from eigensweep.qubit.statevector import probabilities_to_distribution, simulate
-
-    k = 0
-    for gi in group_info:
-        base = measurement_circuit(circuit, gi["basis"])
-        change = basis_change_on_physical(compiled, gi["basis"], target)
-        probs = np.abs(simulate(base)) ** 2
-        ideal = probabilities_to_distribution(probs / probs.sum(), n, IDEAL_CUTOFF)
-        pterms = [
-            {"index": int(i), "label": labels[i], "coeff": float(coeffs[i])} for i in gi["terms"]
-        ]
-        for s in scales:
-            cid = f"g{gi['group']:0{w}d}-fold{s}"
-            circ = folded_measurement_circuit(compiled.circuit, change, s)
-            tail = len(change.gates)
-            args = (gi["group"], s, gi["basis"], pterms, meas_shots[k], circ, ideal)
-            add(cid, "measure", *args, tail=tail)
-            k += 1
+    out = _JobCircuits(n, job_name, target, compiled)
+    _add_measurement_circuits(out, circuit, group_info, labels, coeffs, scales, meas_shots)
     if calibration:
-        for bit, shots in zip("01", cal_shots, strict=True):
-            circ = Circuit(compiled.circuit.n_qubits)
-            if bit == "1":
-                for q in measured:
-                    circ.append("x", (q,))
-            circ = native_gates_of(circ, target)
-            add(
-                f"cal-{bit}",
-                "calibration",
-                None,
-                1,
-                "Z" * n,
-                [],
-                shots,
-                circ,
-                {bit * n: 1.0},
-                prepared=bit * n,
-            )
-
+        _add_calibration_circuits(out, cal_shots)
+    records = out.records
     job_id = hashlib.sha256("\n".join(sorted(r.sha256 for r in records)).encode()).hexdigest()
-
-    one_norm = float(sum(abs(t["coeff"]) for t in terms))
-    base_needed = math.ceil((one_norm / target_se) ** 2) if one_norm > 0 else 0
-    f_rich, f_lin = _extrapolation_variance_factors(scales)
-    shots_needed = {
-        "scale_1_only": int(base_needed),
-        "zne_linear": int(math.ceil(base_needed * f_lin)),
-    }
-    if len(scales) > 2:  # through two points Richardson is the straight line: one label
-        shots_needed["zne_richardson"] = int(math.ceil(base_needed * f_rich))
+    one_norm, shots_needed, f_lin, f_rich = _shots_needed(terms, target_se, scales)
     cost = _job_cost(circuit, ham, group_idx, group_info, compiled, target, target_se)
     job = DeviceJob(
         job_name=str(job_name),
@@ -541,15 +420,195 @@ def build_job(
             "depth": circuit.depth,
             "n_gates": len(circuit.gates),
         },
-        circuits=circuits,
-        qasm3=q3,
-        qasm2=q2,
+        circuits=out.circuits,
+        qasm3=out.qasm3,
+        qasm2=out.qasm2,
         compiled=compiled,
         target=target.to_dict(),
         cost=cost,
     )
     job.summary = _summary(job, one_norm, f_lin, f_rich)
     return job
+
+
+def _checked_job_inputs(
+    n: int, ham, shots_total, min_shots, calibration_fraction, scale_factors, meta
+) -> tuple[tuple[int, ...], dict]:
+    """The scale factors as a tuple and ``meta`` as a dict, after the checks of :func:`build_job`."""
+    if int(ham.n_qubits) != n:
+        raise ValueError(f"Hamiltonian acts on {ham.n_qubits} qubits, circuit on {n}")
+    if shots_total < 1 or min_shots < 1:
+        raise ValueError("shots_total and min_shots must be positive")
+    if not 0 <= calibration_fraction < 1:
+        raise ValueError("calibration_fraction must lie in [0, 1)")
+    scales = tuple(int(s) for s in scale_factors)
+    if not scales or len(set(scales)) != len(scales):
+        raise ValueError(f"scale_factors must be distinct odd positive integers, got {scales}")
+    for s in scales:
+        globally_folded_circuit(Circuit(n), s)  # validates oddness / positivity
+    meta = dict(meta or {})
+    try:
+        json.dumps(meta, allow_nan=False)
+    except (TypeError, ValueError) as err:
+        raise ValueError(f"meta must be JSON-serialisable: {err}") from None
+    return scales, meta
+
+
+def _identity_and_terms(labels: Sequence[str], coeffs: np.ndarray) -> tuple[float, list[dict]]:
+    """The identity coefficient and the manifest's other terms (``index``, ``label``, ``coeff``)."""
+    identity_idx = {i for i, lab in enumerate(labels) if set(lab) == {"I"}}
+    identity = float(sum(coeffs[i] for i in identity_idx))
+    terms = [
+        {"index": i, "label": labels[i], "coeff": float(coeffs[i])}
+        for i in range(len(labels))
+        if i not in identity_idx
+    ]
+    return identity, terms
+
+
+def _checked_groups(ham, groups, terms: list[dict]) -> list[np.ndarray]:
+    """Non-empty groups (default :func:`default_groups`) covering every term exactly once."""
+    group_idx = [np.asarray(g, dtype=int).reshape(-1) for g in (groups or default_groups(ham))]
+    group_idx = [g for g in group_idx if g.size]
+    seen = np.concatenate(group_idx) if group_idx else np.array([], dtype=int)
+    if sorted(seen.tolist()) != sorted(t["index"] for t in terms):
+        raise ValueError("groups must contain every non-identity term index exactly once")
+    return group_idx
+
+
+def _group_info(group_idx, labels, coeffs: np.ndarray, n: int) -> list[dict]:
+    """The manifest's ``groups``: index, measured basis (raises if not QWC), terms, weight."""
+    info = []
+    for g, idx in enumerate(group_idx):
+        basis = group_basis([labels[i] for i in idx], n)
+        weight = float(np.sum(np.abs(coeffs[idx])))
+        info.append({"group": g, "basis": basis, "terms": [int(i) for i in idx], "weight": weight})
+    return info
+
+
+def _split_shots(
+    shots_total, calibration, calibration_fraction, min_shots, group_info, scales
+) -> tuple[list[int], list[int]]:
+    """Calibration shots (two circuits) and measurement shots (group-major, then scale)."""
+    n_cal = 2 if calibration else 0
+    cal_budget = int(round(calibration_fraction * shots_total)) if calibration else 0
+    cal_shots = allocate_shots(cal_budget, [1.0] * n_cal, min_shots) if n_cal else []
+    weights = [gi["weight"] for gi in group_info for _ in scales]
+    meas_shots = allocate_shots(max(shots_total - sum(cal_shots), 0), weights, min_shots)
+    return cal_shots, meas_shots
+
+
+class _JobCircuits:
+    """The circuits of a job being built: records, bit-order circuits and OpenQASM texts."""
+
+    def __init__(self, n: int, job_name: str, target, compiled: CompiledCircuit) -> None:
+        self.n, self.job_name, self.target, self.compiled = n, job_name, target, compiled
+        self.measured = compiled.measured_qubits
+        ident = list(range(n))
+        routed = self.measured != ident or compiled.final_permutation != ident
+        self.bit_order = PHYSICAL_BIT_ORDER if routed else BIT_ORDER
+        self.records: list[CircuitRecord] = []
+        self.circuits: dict[str, Circuit] = {}
+        self.qasm3: dict[str, str] = {}
+        self.qasm2: dict[str, str] = {}
+
+    def add(self, circ: Circuit, **fields) -> None:
+        """Export ``circ`` (physical register) and record it with the given record fields."""
+        cid = fields["circuit_id"]
+        label = f"eigensweep circuit {cid} of job {self.job_name} for target {self.target.name}"
+        text3 = to_qasm3(circ, name=label, measured=self.measured)
+        text2 = to_qasm2(circ, name=label, measured=self.measured)
+        self.circuits[cid] = bit_order_circuit(circ, self.measured)
+        self.qasm3[cid], self.qasm2[cid] = text3, text2
+        self.records.append(
+            CircuitRecord(
+                n_qubits=self.n,
+                sha256=sha256_text(text3),
+                qasm3_file=f"{cid}.qasm",
+                qasm2_file=f"{cid}.qasm2",
+                qasm2_sha256=sha256_text(text2),
+                cnot_count=circ.cnot_count,
+                two_qubit_count=circ.two_qubit_count,
+                depth=circ.depth,
+                n_gates=len(circ.gates),
+                bit_order=self.bit_order,
+                **fields,
+            )
+        )
+
+
+def _ideal_distribution(circuit: Circuit, basis: str) -> dict[str, float]:
+    """Noise-free outcome probabilities of ``circuit`` measured in ``basis`` (logical bits)."""
+    from eigensweep.qubit.statevector import probabilities_to_distribution, simulate
+
+    probs = np.abs(simulate(measurement_circuit(circuit, basis))) ** 2
+    return probabilities_to_distribution(probs / probs.sum(), circuit.n_qubits, IDEAL_CUTOFF)
+
+
+def _add_measurement_circuits(
+    out: _JobCircuits, circuit, group_info, labels, coeffs, scales, meas_shots
+) -> None:
+    """One circuit per group and scale factor: the folded state preparation, then the basis
+    change (:func:`~eigensweep.device.compile.folded_measurement_circuit`)."""
+    w = _id_width(len(group_info))
+    shots = iter(meas_shots)
+    for gi in group_info:
+        change = basis_change_on_physical(out.compiled, gi["basis"], out.target)
+        ideal = _ideal_distribution(circuit, gi["basis"])
+        pterms = [
+            {"index": int(i), "label": labels[i], "coeff": float(coeffs[i])} for i in gi["terms"]
+        ]
+        for s in scales:
+            out.add(
+                folded_measurement_circuit(out.compiled.circuit, change, s),
+                circuit_id=f"g{gi['group']:0{w}d}-fold{s}",
+                kind="measure",
+                group=gi["group"],
+                scale_factor=s,
+                basis=gi["basis"],
+                pauli_terms=pterms,
+                shots=int(next(shots)),
+                ideal_distribution=ideal,
+                basis_change_gates=len(change.gates),
+            )
+
+
+def _add_calibration_circuits(out: _JobCircuits, cal_shots: Sequence[int]) -> None:
+    """``cal-0`` (measure all zeros) and ``cal-1`` (``x`` on every measured qubit, native)."""
+    n = out.n
+    for bit, shots in zip("01", cal_shots, strict=True):
+        circ = Circuit(out.compiled.circuit.n_qubits)
+        if bit == "1":
+            for q in out.measured:
+                circ.append("x", (q,))
+        out.add(
+            native_gates_of(circ, out.target),
+            circuit_id=f"cal-{bit}",
+            kind="calibration",
+            group=None,
+            scale_factor=1,
+            basis="Z" * n,
+            pauli_terms=[],
+            shots=int(shots),
+            ideal_distribution={bit * n: 1.0},
+            prepared=bit * n,
+        )
+
+
+def _shots_needed(
+    terms: list[dict], target_se: float, scales: tuple[int, ...]
+) -> tuple[float, dict[str, int], float, float]:
+    """1-norm, shots the 1-norm bound needs per estimate, and the extrapolation factors."""
+    one_norm = float(sum(abs(t["coeff"]) for t in terms))
+    base_needed = math.ceil((one_norm / target_se) ** 2) if one_norm > 0 else 0
+    f_rich, f_lin = _extrapolation_variance_factors(scales)
+    shots_needed = {
+        "scale_1_only": int(base_needed),
+        "zne_linear": int(math.ceil(base_needed * f_lin)),
+    }
+    if len(scales) > 2:  # through two points Richardson is the straight line: one label
+        shots_needed["zne_richardson"] = int(math.ceil(base_needed * f_rich))
+    return one_norm, shots_needed, f_lin, f_rich
 
 
 COST_MODEL = (

@@ -316,109 +316,165 @@ def reconcile(
     n = int(manifest["n_qubits"])
     identity = _check_hamiltonian(manifest, ham)
     records = manifest["circuits"]
-    missing = [r["circuit_id"] for r in records if r["circuit_id"] not in counts]
-    if missing:
-        raise ValueError(f"no counts for circuit {missing[0]!r}; load them with load_results")
     notes: list[str] = []
     rng = np.random.default_rng(np.random.SeedSequence([int(seed), 20180509]))
     n_boot = int(bootstrap)
+    vec, streams = _count_vectors(records, counts, n, rng)
+    draw = {cid: (lambda cid=cid: _resample(vec[cid], n_boot, streams[cid])) for cid in vec}
+    matrices = _readout_matrices(records, draw, n, notes)
+    symm = _symmetries(generators, sector, n_electrons, mapping, n, notes)
+    meas, scales = _measurement_records(records, notes)
+    sums = _EnergySums(scales, 1 + n_boot, identity)
+    for rec in meas:
+        sums.add(
+            rec, draw[rec["circuit_id"]](), matrices, symm, n, int(vec[rec["circuit_id"]].sum())
+        )
+    samples, kept_fraction = sums.samples(matrices is not None, bool(symm), notes)
+    per_scale = sums.e_mit if matrices is not None else sums.e_raw
+    samples.update(_zero_noise_samples(scales, per_scale, notes))
+    for s in scales:
+        samples[f"scale_{s}"] = per_scale[s]
+    diags = _diagnostics(records, vec, sums.kept_by_id, n, notes)
+    est = {k: _estimate(v) for k, v in samples.items() if not k.startswith("scale_")}
+    return ReconcileResult(
+        job_id=manifest["job_id"],
+        n_qubits=n,
+        raw=est["raw"],
+        readout_mitigated=est.get("readout_mitigated"),
+        symmetry_verified=est.get("symmetry_verified"),
+        zne_linear=est.get("zne_linear"),
+        zne_richardson=est.get("zne_richardson"),
+        kept_fraction=kept_fraction,
+        scale_factors=scales,
+        scale_energies=[_estimate(per_scale[s]) for s in scales],
+        zne_input="readout_mitigated" if matrices is not None else "raw",
+        calibration=None if matrices is None else matrices[0],
+        circuits=diags,
+        energy_sim=None if energy_sim is None else float(energy_sim),
+        energy_exact=None if energy_exact is None else float(energy_exact),
+        bootstrap=n_boot,
+        seed=int(seed),
+        notes=notes,
+        samples=samples,
+    )
 
+
+def _count_vectors(records, counts: Mapping, n: int, rng: np.random.Generator):
+    """Each circuit's counts as a ``2**n`` vector, and its own bootstrap stream (so memory
+    stays one circuit at a time)."""
+    missing = [r["circuit_id"] for r in records if r["circuit_id"] not in counts]
+    if missing:
+        raise ValueError(f"no counts for circuit {missing[0]!r}; load them with load_results")
     vec = {r["circuit_id"]: mit.counts_to_vector(counts[r["circuit_id"]], n) for r in records}
     for cid, v in vec.items():
         if v.sum() <= 0:
             raise ValueError(f"circuit {cid!r} has zero shots")
-    # each circuit gets its own bootstrap stream, so memory stays one circuit at a time
-    streams = dict(zip(vec, rng.spawn(len(vec)), strict=True))
+    return vec, dict(zip(vec, rng.spawn(len(vec)), strict=True))
 
-    # ---- readout calibration
+
+def _readout_matrices(records, draw, n: int, notes: list[str]) -> np.ndarray | None:
+    """Per-qubit confusion matrices (one set per replicate) from the calibration circuits."""
     cal = {r.get("prepared"): r["circuit_id"] for r in records if r["kind"] == "calibration"}
-    matrices = None
-    if "0" * n in cal and "1" * n in cal:
-        z_id, o_id = cal["0" * n], cal["1" * n]
-        matrices = mit.per_qubit_confusion_matrices(
-            _resample(vec[z_id], n_boot, streams[z_id]),
-            _resample(vec[o_id], n_boot, streams[o_id]),
-            n,
-        )
-        det = np.linalg.det(matrices)
-        if np.any(np.abs(det) < 1e-6):
-            notes.append("a readout confusion matrix is singular: no readout mitigation")
-            matrices = None
-    else:
+    if "0" * n not in cal or "1" * n not in cal:
         notes.append("no all-zeros/all-ones calibration circuits: no readout mitigation")
+        return None
+    matrices = mit.per_qubit_confusion_matrices(draw[cal["0" * n]](), draw[cal["1" * n]](), n)
+    if np.any(np.abs(np.linalg.det(matrices)) < 1e-6):
+        notes.append("a readout confusion matrix is singular: no readout mitigation")
+        return None
+    return matrices
 
-    symm = _symmetries(generators, sector, n_electrons, mapping, n, notes)
+
+def _measurement_records(records, notes: list[str]) -> tuple[list[dict], list[int]]:
+    """The measurement records and their sorted scale factors (the lowest gives ``raw``)."""
     meas = [r for r in records if r["kind"] == "measure"]
     if not meas:
         raise ValueError("the job has no measurement circuits; nothing to reconcile")
     scales = sorted({int(r["scale_factor"]) for r in meas})
     if 1 not in scales:
         notes.append(f"no scale-1 circuits: raw energy uses scale {scales[0]}")
-    s0 = scales[0]
+    return meas, scales
 
-    def group_energy(rec: dict, p: np.ndarray) -> np.ndarray:
-        labels = [t["label"] for t in rec["pauli_terms"]]
-        coeffs = np.array([t["coeff"] for t in rec["pauli_terms"]], dtype=float)
-        return mit.term_expectations(p, labels) @ coeffs
 
-    width = 1 + n_boot
-    e_raw = {s: np.full(width, identity) for s in scales}
-    e_mit = {s: np.full(width, identity) for s in scales}
-    e_sym = np.full(width, identity)
-    kept_tot, shots_tot = 0.0, 0.0
-    kept_by_id: dict[str, float] = {}
-    any_verified = False
-    for rec in meas:
-        cid, s = rec["circuit_id"], int(rec["scale_factor"])
-        p = _resample(vec[cid], n_boot, streams[cid])
-        e_raw[s] += group_energy(rec, p)
+def _group_energy(rec: dict, p: np.ndarray) -> np.ndarray:
+    """``sum_i c_i <P_i>`` of one circuit's terms, per replicate (rows of ``p``)."""
+    labels = [t["label"] for t in rec["pauli_terms"]]
+    coeffs = np.array([t["coeff"] for t in rec["pauli_terms"]], dtype=float)
+    return mit.term_expectations(p, labels) @ coeffs
+
+
+class _EnergySums:
+    """Energy replicates summed over the measurement circuits: raw and readout-mitigated per
+    scale factor, symmetry-verified at the lowest scale."""
+
+    def __init__(self, scales: list[int], width: int, identity: float) -> None:
+        self.s0 = scales[0]
+        self.e_raw = {s: np.full(width, identity) for s in scales}
+        self.e_mit = {s: np.full(width, identity) for s in scales}
+        self.e_sym = np.full(width, identity)
+        self.kept_by_id: dict[str, float] = {}
+        self.kept_tot, self.shots_tot = 0.0, 0.0
+        self.any_verified = False
+
+    def add(self, rec: dict, p: np.ndarray, matrices, symm, n: int, shots: int) -> None:
+        s = int(rec["scale_factor"])
+        self.e_raw[s] += _group_energy(rec, p)
         if matrices is not None:
-            e_mit[s] += group_energy(rec, mit.mitigate_readout(p, matrices))
-        if s == s0:
-            usable = [(lab, ev) for lab, ev in symm if _applicable(rec["basis"], lab)]
-            if usable:
-                any_verified = True
-                sup = [[ch != "I" for ch in lab] for lab, _ in usable]
-                mask = mit.symmetry_mask(sup, [ev for _, ev in usable], n)
-                kept = p[:, mask].sum(axis=1)
-                ps = np.where(mask[None, :], p, 0.0)
-                with np.errstate(invalid="ignore", divide="ignore"):
-                    ps = ps / kept[:, None]
-                e_sym += group_energy(rec, ps)  # NaN where nothing was kept
-                kept_by_id[cid] = float(kept[0])
-                kept_tot += float(kept[0]) * vec[cid].sum()
-                shots_tot += vec[cid].sum()
-            else:
-                e_sym += group_energy(rec, p)
-    samples: dict[str, np.ndarray] = {"raw": e_raw[s0]}
-    if matrices is not None:
-        samples["readout_mitigated"] = e_mit[s0]
-    kept_fraction = None
-    if any_verified:
-        samples["symmetry_verified"] = e_sym
-        kept_fraction = kept_tot / shots_tot
-        if not np.isfinite(e_sym[0]):
+            self.e_mit[s] += _group_energy(rec, mit.mitigate_readout(p, matrices))
+        if s != self.s0:
+            return
+        usable = [(lab, ev) for lab, ev in symm if _applicable(rec["basis"], lab)]
+        if not usable:
+            self.e_sym += _group_energy(rec, p)
+            return
+        self.any_verified = True
+        sup = [[ch != "I" for ch in lab] for lab, _ in usable]
+        mask = mit.symmetry_mask(sup, [ev for _, ev in usable], n)
+        kept = p[:, mask].sum(axis=1)
+        ps = np.where(mask[None, :], p, 0.0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ps = ps / kept[:, None]
+        self.e_sym += _group_energy(rec, ps)  # NaN where nothing was kept
+        self.kept_by_id[rec["circuit_id"]] = float(kept[0])
+        self.kept_tot += float(kept[0]) * shots
+        self.shots_tot += shots
+
+    def samples(self, mitigated: bool, any_symmetry: bool, notes: list[str]):
+        """(``raw``/``readout_mitigated``/``symmetry_verified`` replicates, kept fraction)."""
+        out: dict[str, np.ndarray] = {"raw": self.e_raw[self.s0]}
+        if mitigated:
+            out["readout_mitigated"] = self.e_mit[self.s0]
+        if not self.any_verified:
+            if any_symmetry:
+                notes.append(
+                    "no measured group is diagonal in a symmetry generator: no verification"
+                )
+            return out, None
+        out["symmetry_verified"] = self.e_sym
+        if not np.isfinite(self.e_sym[0]):
             notes.append("symmetry verification kept no shots in some circuit")
-    elif symm:
-        notes.append("no measured group is diagonal in a symmetry generator: no verification")
+        return out, self.kept_tot / self.shots_tot
 
-    zne_input = "readout_mitigated" if matrices is not None else "raw"
-    per_scale = e_mit if matrices is not None else e_raw
-    if len(scales) >= 2:
-        stack = np.stack([per_scale[s] for s in scales], axis=1)
-        samples["zne_linear"] = mit.line_fit_zero_noise_value(scales, stack)
-        if len(scales) > 2:
-            samples["zne_richardson"] = mit.richardson_zero_noise_value(scales, stack)
-        else:  # the polynomial of degree 1 through two points is the straight line
-            notes.append(
-                "two noise-scale factors: Richardson extrapolation is the linear one, "
-                "reported once as zne_linear"
-            )
-    else:
+
+def _zero_noise_samples(scales: list[int], per_scale, notes: list[str]) -> dict[str, np.ndarray]:
+    """Linear and (with three or more scales) Richardson zero-noise extrapolations."""
+    if len(scales) < 2:
         notes.append("one noise-scale factor only: no zero-noise extrapolation")
-    for s in scales:
-        samples[f"scale_{s}"] = per_scale[s]
+        return {}
+    stack = np.stack([per_scale[s] for s in scales], axis=1)
+    out = {"zne_linear": mit.line_fit_zero_noise_value(scales, stack)}
+    if len(scales) > 2:
+        out["zne_richardson"] = mit.richardson_zero_noise_value(scales, stack)
+    else:  # the polynomial of degree 1 through two points is the straight line
+        notes.append(
+            "two noise-scale factors: Richardson extrapolation is the linear one, "
+            "reported once as zne_linear"
+        )
+    return out
 
+
+def _diagnostics(records, vec, kept_by_id, n: int, notes: list[str]) -> list[CircuitDiagnostics]:
+    """Returned vs ideal distribution of every circuit (and a note on short shot counts)."""
     diags = []
     for rec in records:
         cid = rec["circuit_id"]
@@ -441,29 +497,7 @@ def reconcile(
         )
         if int(vec[cid].sum()) != int(rec["shots"]):
             notes.append(f"{cid}: {int(vec[cid].sum())} shots returned, {rec['shots']} requested")
-
-    est = {k: _estimate(v) for k, v in samples.items() if not k.startswith("scale_")}
-    return ReconcileResult(
-        job_id=manifest["job_id"],
-        n_qubits=n,
-        raw=est["raw"],
-        readout_mitigated=est.get("readout_mitigated"),
-        symmetry_verified=est.get("symmetry_verified"),
-        zne_linear=est.get("zne_linear"),
-        zne_richardson=est.get("zne_richardson"),
-        kept_fraction=kept_fraction,
-        scale_factors=scales,
-        scale_energies=[_estimate(per_scale[s]) for s in scales],
-        zne_input=zne_input,
-        calibration=None if matrices is None else matrices[0],
-        circuits=diags,
-        energy_sim=None if energy_sim is None else float(energy_sim),
-        energy_exact=None if energy_exact is None else float(energy_exact),
-        bootstrap=n_boot,
-        seed=int(seed),
-        notes=notes,
-        samples=samples,
-    )
+    return diags
 
 
 def plot_histograms(
