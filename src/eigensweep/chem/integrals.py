@@ -351,8 +351,10 @@ def _symmetry_weights(
     Tapering keeps exactly that sector (with the spin parities, which every root shares)."""
     from pyscf.fci import cistring
 
+    if len(vectors) == 0 or np.size(vectors) == 0:
+        return np.zeros(0)
     vectors = np.asarray(vectors, dtype=np.float64).reshape(len(vectors), -1)
-    if irreps is None or len(vectors) == 0:
+    if irreps is None:
         return np.ones(len(vectors))
     irreps = np.asarray(irreps, dtype=np.int64)
 
