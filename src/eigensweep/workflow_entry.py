@@ -12,6 +12,7 @@ partial stage file is left (the store writes atomically).
 
 from __future__ import annotations
 
+import importlib
 import os
 import sys
 import threading
@@ -96,6 +97,40 @@ def _fail(fh: TextIO, exc: BaseException, what: str) -> StageJobError:
     return StageJobError(line)
 
 
+_IMPORT_LOCK = threading.Lock()
+_IMPORTED: set[str] = set()
+# Modules stage actions import inside functions; OpenFermion only where a stage uses it.
+_SCIENCE = (
+    "eigensweep.stages",
+    "eigensweep.chem",
+    "eigensweep.qubit",
+    "eigensweep.vqe",
+    "eigensweep.vqe.detspace",
+    "eigensweep.device",
+)
+_STAGE_IMPORTS = {"hamiltonian": ("openfermion",)}
+
+
+def import_science(stage: str) -> None:
+    """Import the modules a stage job needs, one thread at a time.
+
+    Stage jobs run in threads of one Snakemake process (``force-use-threads``). Two threads
+    importing the same package tree at once can see a partially initialised module (Python's
+    import system locks modules one by one, so package ``__init__`` chains that import each
+    other can interleave): measured as ``cannot import name 'MAPPINGS' from partially
+    initialized module 'eigensweep.qubit.mapping'`` when a resumed sweep started a hamiltonian
+    and an optimize job together. Importing under one lock before the action removes the race.
+    """
+    wanted = _SCIENCE + _STAGE_IMPORTS.get(stage, ())
+    if _IMPORTED.issuperset(wanted):
+        return
+    with _IMPORT_LOCK:
+        for name in wanted:
+            if name not in _IMPORTED:
+                importlib.import_module(name)
+                _IMPORTED.add(name)
+
+
 def run_stage(node: Node, inputs: dict[str, str], output: str, store: str | None = None) -> bool:
     """Run one stage job into ``output`` (``results/<stage>/<key>.h5``), through the shared
     stage store ``store`` when given (:func:`eigensweep.store.produce_stage`: computed once
@@ -104,6 +139,7 @@ def run_stage(node: Node, inputs: dict[str, str], output: str, store: str | None
     Returns:
         True when the stage was computed (False: the store already held it).
     """
+    import_science(node.stage)
     from .stages import STAGE_ACTIONS
     from .store import produce_stage
 

@@ -537,12 +537,13 @@ class _JobCircuits:
         )
 
 
-def _ideal_distribution(circuit: Circuit, basis: str) -> dict[str, float]:
-    """Noise-free outcome probabilities of ``circuit`` measured in ``basis`` (logical bits)."""
+def _ideal_distribution(state: np.ndarray, n: int, basis: str) -> dict[str, float]:
+    """Noise-free outcome probabilities of the prepared ``state`` measured in ``basis``
+    (logical bits); only the basis change is simulated, the state is prepared once per job."""
     from eigensweep.qubit.statevector import probabilities_to_distribution, simulate
 
-    probs = np.abs(simulate(measurement_circuit(circuit, basis))) ** 2
-    return probabilities_to_distribution(probs / probs.sum(), circuit.n_qubits, IDEAL_CUTOFF)
+    probs = np.abs(simulate(measurement_circuit(Circuit(n), basis), initial=state)) ** 2
+    return probabilities_to_distribution(probs / probs.sum(), n, IDEAL_CUTOFF)
 
 
 def _add_measurement_circuits(
@@ -550,11 +551,14 @@ def _add_measurement_circuits(
 ) -> None:
     """One circuit per group and scale factor: the folded state preparation, then the basis
     change (:func:`~eigensweep.device.compile.folded_measurement_circuit`)."""
+    from eigensweep.qubit.statevector import simulate
+
     w = _id_width(len(group_info))
     shots = iter(meas_shots)
+    state = simulate(circuit)
     for gi in group_info:
         change = basis_change_on_physical(out.compiled, gi["basis"], out.target)
-        ideal = _ideal_distribution(circuit, gi["basis"])
+        ideal = _ideal_distribution(state, circuit.n_qubits, gi["basis"])
         pterms = [
             {"index": int(i), "label": labels[i], "coeff": float(coeffs[i])} for i in gi["terms"]
         ]
