@@ -665,9 +665,10 @@ def plot_spectrum(rows: list[dict], stem: Path, point_choice: int | str = 0) -> 
         f = np.array([_f(r["oscillator_strength"]) for r in mine])
         ax.vlines(x, 0, f, color=PALETTE[i % len(PALETTE)], lw=2.0, label=labels[s])
         ax.plot(x, f, MARKERS[i % len(MARKERS)], color=PALETTE[i % len(PALETTE)], mfc="none")
-    ex = {}
+    ex = {}  # one stick per exact root (a tapered series' state k is another root)
     for r in sel:
-        ex[(r["spin"], int(r["state"]))] = r
+        if math.isfinite(_f(r["energy_exact_eh"])):
+            ex[(r["spin"], round(_f(r["energy_exact_eh"]), 9))] = r
     xs = np.array([_exact_de(rows, r) for r in ex.values()]) * HARTREE_EV
     fs = np.array([_f(r["oscillator_strength_exact"]) for r in ex.values()])
     if np.isfinite(xs).any():

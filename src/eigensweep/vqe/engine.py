@@ -1031,7 +1031,10 @@ def _find_states(
             allowed=frame.allows,
         )
         for st in found:  # back into the frame: <S^2> and <N> from the frame's operators
-            st.vector = frame.carry(st.vector)
+            vec = frame.carry(st.vector)
+            if vec is None:  # the allowed excitations keep the sector: a bug if it happens
+                raise RuntimeError("a qEOM state left the problem's symmetry sector")
+            st.vector = vec
             st.spin_square = frame.spin_square(st.vector)
             st.n_electrons = frame.n_electrons(st.vector)
         return found
