@@ -610,15 +610,23 @@ def plot_states(rows: list[dict], stem: Path) -> list[Path]:
     col, xlabel = axis_of(rows)
     points = list(dict.fromkeys(r["point"] for r in rows))
     fig, ax = plt.subplots(figsize=(7.5, 4.5))
-    for spin, style in (("requested", "-"), ("all", ":")):
-        sel = [r for r in rows if r["spin"] == spin]
-        for k in sorted({int(r["state"]) for r in sel}):
+    # tapered excited states are compared with their symmetry sector's roots (collect)
+    sector = [str(r.get("notes", "")).startswith("tapered:") for r in rows]
+    for spin, in_sector, style in (
+        ("requested", False, "-"),
+        ("all", False, ":"),
+        ("requested", True, "-."),
+        ("all", True, (0, (1, 3))),
+    ):
+        sel = [r for r, t in zip(rows, sector, strict=True) if r["spin"] == spin and t == in_sector]
+        for n, k in enumerate(sorted({int(r["state"]) for r in sel})):
             first = {r["point"]: r for r in reversed(sel) if int(r["state"]) == k}
             pts = sorted(first, key=lambda p: _x([first[p]], col, points)[0])
             x = np.array([_x([first[p]], col, points)[0] for p in pts])
             y = np.array([_f(first[p]["energy_exact_eh"]) for p in pts])
-            lab = f"exact roots ({'requested spin' if spin == 'requested' else 'S_z sector'})"
-            ax.plot(x, y, color="0.4", ls=style, lw=1.0, label=lab if k == 0 else None)
+            what = "requested spin" if spin == "requested" else "S_z sector"
+            lab = f"exact roots ({what}{', tapered symmetry sector' if in_sector else ''})"
+            ax.plot(x, y, color="0.4", ls=style, lw=1.0, label=lab if n == 0 else None)
     _method_series(ax, rows, col, points, lambda r: _f(r["energy_eh"]))
     ax.set_xlabel(xlabel)
     ax.set_ylabel("energy (Eh)")
