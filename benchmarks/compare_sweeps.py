@@ -11,7 +11,7 @@
 
 Usage::
 
-    python benchmarks/compare_sweeps.py OLD/summary.csv NEW/summary.csv [--results NEW_RESULTS]
+    python benchmarks/compare_sweeps.py OLD/summary.csv NEW/summary.csv [--results NEW_RESULTS] [--allow-new]
 """
 
 from __future__ import annotations
@@ -51,14 +51,14 @@ def _key(row: dict, match: tuple[str, ...]) -> tuple:
     return tuple(row.get(k, "") for k in match)
 
 
-def compare_energies(old: list[dict], new: list[dict], tol: float) -> bool:
+def compare_energies(old: list[dict], new: list[dict], tol: float, allow_new: bool = False) -> bool:
     match = MATCH + (("seed",) if all("seed" in r for r in old + new) else ())
     old_by = {_key(r, match): r for r in old}
     new_by = {_key(r, match): r for r in new}
     common = sorted(set(old_by) & set(new_by))
     print(f"rows: old {len(old)}, new {len(new)}, matched {len(common)}")
-    ok = len(common) == len(old) == len(new)
-    if not ok:
+    ok = len(common) == len(old) and (allow_new or len(common) == len(new))
+    if len(common) != len(old) or len(common) != len(new):
         print("  unmatched old:", sorted(set(old_by) - set(new_by))[:5])
         print("  unmatched new:", sorted(set(new_by) - set(old_by))[:5])
     for name in ENERGIES:
@@ -106,10 +106,15 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("old", type=Path)
     ap.add_argument("new", type=Path)
     ap.add_argument("--tol", type=float, default=1e-9)
+    ap.add_argument(
+        "--allow-new",
+        action="store_true",
+        help="rows only the new sweep has (methods added since) are listed but not a failure",
+    )
     ap.add_argument("--results", type=Path, help="the newer run's results/ folder")
     args = ap.parse_args(argv)
     new = _rows(args.new)
-    ok = compare_energies(_rows(args.old), new, args.tol)
+    ok = compare_energies(_rows(args.old), new, args.tol, args.allow_new)
     if args.results:
         ok = compare_costs(new, args.results) and ok
     print("all equal" if ok else "DIFFERENCES FOUND")

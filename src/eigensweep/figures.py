@@ -592,11 +592,14 @@ def device_figures(
                 stem.with_suffix(".png"),
                 max_circuits=per_page,
                 start=page * per_page,
-                note=f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['tapered'])}: returned vs ideal, page {page + 1} of {pages}, circuits {page * per_page + 1}-{min(n, (page + 1) * per_page)} of {n}",
+                note=f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['tapered'])}, target {ex.get('target', 'generic')}: returned vs ideal, page {page + 1} of {pages}, circuits {page * per_page + 1}-{min(n, (page + 1) * per_page)} of {n}",
                 pdf=True,
             )
             files += [png, png.with_suffix(".pdf")]
-        label = f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['ansatz'])}, {pretty(ex['tapered'])}"
+        label = (
+            f"{pretty(ex['molecule'])} {ex['point']}, {pretty(ex['ansatz'])}, "
+            f"{pretty(ex['tapered'])}, target {ex.get('target', 'generic')}"
+        )
         files += plot_noise_scaling(
             res, folder / f"zne_{ex['key_export']}", f"{label}: zero-noise extrapolation"
         )
