@@ -34,6 +34,8 @@ __all__ = [
     "term_expectations",
     "per_qubit_confusion_matrices",
     "invert_confusion_per_qubit",
+    "confusion_inverse",
+    "apply_confusion_inverse",
     "project_to_simplex",
     "mitigate_readout",
     "symmetry_mask",
@@ -95,6 +97,33 @@ def per_qubit_confusion_matrices(zeros: np.ndarray, ones: np.ndarray, n_qubits: 
     return a
 
 
+def confusion_inverse(matrices: np.ndarray, batch: int) -> tuple[np.ndarray, np.ndarray]:
+    """``(A_0 (x) ... (x) A_{n-1})^{-1}`` as the pair ``(K_high, K_low)`` for ``batch`` rows.
+
+    ``K_high`` is the Kronecker product of the inverses of qubits ``0 .. n//2 - 1``, ``K_low``
+    of the others (qubit 0 most significant), each ``(batch, d, d)``: with the outcome index
+    split into its high and low bits, the inverse maps ``P`` to ``K_high P K_low^T``
+    (:func:`apply_confusion_inverse`). ``matrices`` has shape ``(n, 2, 2)`` or
+    ``(batch, n, 2, 2)``. Raises ``numpy.linalg.LinAlgError`` for a singular confusion matrix
+    (a qubit that reads 0 and 1 with the same probability).
+    """
+    n = matrices.shape[-3]
+    inv = np.linalg.inv(matrices)
+    if inv.ndim == 3:
+        inv = np.broadcast_to(inv, (batch,) + inv.shape)
+    h = n // 2
+    return _kron_batch(inv[:, :h]), _kron_batch(inv[:, h:])
+
+
+def apply_confusion_inverse(probs: np.ndarray, inverse: tuple[np.ndarray, np.ndarray]):
+    """``probs`` (shape ``(B, 2**n)``) times the inverse from :func:`confusion_inverse`."""
+    k_high, k_low = inverse
+    p = np.asarray(probs, dtype=float)
+    b = p.shape[0]
+    state = p.reshape(b, k_high.shape[-1], k_low.shape[-1])
+    return np.matmul(np.matmul(k_high, state), np.swapaxes(k_low, 1, 2)).reshape(b, -1)
+
+
 def invert_confusion_per_qubit(probs: np.ndarray, matrices: np.ndarray) -> np.ndarray:
     """Apply ``(A_0 (x) ... (x) A_{n-1})^{-1}`` to ``probs`` of shape ``(B, 2**n)``.
 
@@ -102,17 +131,18 @@ def invert_confusion_per_qubit(probs: np.ndarray, matrices: np.ndarray) -> np.nd
     for a singular confusion matrix (a qubit that reads 0 and 1 with the same probability).
     """
     p = np.asarray(probs, dtype=float)
-    b = p.shape[0]
-    n = matrices.shape[-3]
-    inv = np.linalg.inv(matrices)
-    if inv.ndim == 3:
-        inv = np.broadcast_to(inv, (b,) + inv.shape)
-    state = p.reshape((b,) + (2,) * n)
-    for k in range(n):
-        state = np.moveaxis(state, 1 + k, -1)
-        state = np.einsum("bij,b...j->b...i", inv[:, k], state)
-        state = np.moveaxis(state, -1, 1 + k)
-    return state.reshape(b, 2**n)
+    return apply_confusion_inverse(p, confusion_inverse(matrices, p.shape[0]))
+
+
+def _kron_batch(mats: np.ndarray) -> np.ndarray:
+    """``mats[:, 0] (x) mats[:, 1] (x) ...`` per batch entry: ``(B, k, 2, 2) -> (B, 2^k, 2^k)``."""
+    b = mats.shape[0]
+    out = np.ones((b, 1, 1))
+    for k in range(mats.shape[1]):
+        m = mats[:, k]
+        d = out.shape[1] * 2
+        out = np.einsum("bij,bkl->bikjl", out, m).reshape(b, d, d)
+    return out
 
 
 def project_to_simplex(v: np.ndarray) -> np.ndarray:

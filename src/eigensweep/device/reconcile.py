@@ -325,9 +325,10 @@ def reconcile(
     symm = _symmetries(generators, sector, n_electrons, mapping, n, notes)
     meas, scales = _measurement_records(records, notes)
     sums = _EnergySums(scales, 1 + n_boot, identity)
+    readout = None if matrices is None else mit.confusion_inverse(matrices, 1 + n_boot)
     for rec in meas:
         sums.add(
-            rec, draw[rec["circuit_id"]](), matrices, symm, n, int(vec[rec["circuit_id"]].sum())
+            rec, draw[rec["circuit_id"]](), readout, symm, n, int(vec[rec["circuit_id"]].sum())
         )
     samples, kept_fraction = sums.samples(matrices is not None, bool(symm), notes)
     per_scale = sums.e_mit if matrices is not None else sums.e_raw
@@ -416,11 +417,13 @@ class _EnergySums:
         self.kept_tot, self.shots_tot = 0.0, 0.0
         self.any_verified = False
 
-    def add(self, rec: dict, p: np.ndarray, matrices, symm, n: int, shots: int) -> None:
+    def add(self, rec: dict, p: np.ndarray, readout, symm, n: int, shots: int) -> None:
+        """Add one circuit's replicates ``p``; ``readout`` is :func:`mit.confusion_inverse`."""
         s = int(rec["scale_factor"])
         self.e_raw[s] += _group_energy(rec, p)
-        if matrices is not None:
-            self.e_mit[s] += _group_energy(rec, mit.mitigate_readout(p, matrices))
+        if readout is not None:
+            mitigated = mit.project_to_simplex(mit.apply_confusion_inverse(p, readout))
+            self.e_mit[s] += _group_energy(rec, mitigated)
         if s != self.s0:
             return
         usable = [(lab, ev) for lab, ev in symm if _applicable(rec["basis"], lab)]
