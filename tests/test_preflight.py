@@ -75,3 +75,24 @@ def test_chemistry_is_checked_once_per_composition_geometry_every_point(tmp_path
     monkeypatch.setattr(geometry, "check_geometry", count_geometry)
     preflight.check_plan_chemistry(plan)
     assert calls == {"molecule": 1, "geometry": 40}
+
+
+def test_points_already_computed_are_not_checked_again_the_others_are(tmp_path):
+    # the same impossible H2+ singlet as above (PySCF refuses it): with its integrals stage file
+    # present (a placeholder: the pre-flight only asks whether the point was computed) the
+    # point is skipped; a second, new point of the same molecule is still refused
+    from eigensweep.stage_table import stage_path
+
+    plan = _plan(
+        tmp_path,
+        {"name": "h2p", "atoms": "H 0 0 0; H 0 0 {r}", "scan": {"r": [0.7, 0.8]}, "charge": 1},
+    )
+    first, second = plan.by_stage("integrals")
+    results = tmp_path / "results"
+    for node in (first, second):
+        stage_path("integrals", node.key, results).parent.mkdir(parents=True, exist_ok=True)
+        stage_path("integrals", node.key, results).write_bytes(b"")
+    preflight.check_plan_chemistry(plan, results)  # both computed: nothing to check
+    stage_path("integrals", second.key, results).unlink()
+    with pytest.raises(ConfigError, match="h2p"):
+        preflight.check_plan_chemistry(plan, results)

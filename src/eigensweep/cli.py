@@ -67,7 +67,7 @@ def _load_plan(config: str | None, force: bool | None = None):
     plan = build_plan(cfg, base_dir=Path.cwd(), config_path=path)
     if force is not None:
         _gate(plan, cfg, path, force)
-    check_plan_chemistry(plan)
+    check_plan_chemistry(plan, Path("results"))
     return path, cfg, plan
 
 

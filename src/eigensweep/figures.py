@@ -118,15 +118,20 @@ def _plt():
 
 def save(fig, path_stem: Path) -> list[Path]:
     """Write a figure as ``<stem>.pdf`` and ``<stem>.png`` (300 dpi); returns both paths."""
+    plt = _plt()
     path_stem.parent.mkdir(parents=True, exist_ok=True)
+    # the tight bounding box once for both files (``bbox_inches="tight"`` would lay the figure
+    # out again for each format: a third of collect's time)
+    fig.set_dpi(DPI)
+    bbox = fig.get_tightbbox(fig.canvas.get_renderer()).padded(plt.rcParams["savefig.pad_inches"])
     out = []
     for ext in ("pdf", "png"):
         p = path_stem.with_suffix(f".{ext}")
         meta = {"CreationDate": None} if ext == "pdf" else None  # reproducible PDF bytes
         with atomic_path(p) as tmp:
-            fig.savefig(tmp, format=ext, dpi=DPI, bbox_inches="tight", metadata=meta)
+            fig.savefig(tmp, format=ext, dpi=DPI, bbox_inches=bbox, metadata=meta)
         out.append(p)
-    _plt().close(fig)
+    plt.close(fig)
     return out
 
 
