@@ -73,6 +73,15 @@ def alive(pid: int) -> bool:
     return state != "Z"
 
 
+def signal_if_alive(pid: int, sig: int) -> None:
+    """Send ``sig`` to ``pid`` unless it has ended (a short-lived child, such as a solver run
+    of Snakemake's scheduler, may end and be reaped between listing and signalling)."""
+    try:
+        os.kill(pid, sig)
+    except ProcessLookupError:
+        pass
+
+
 def wait_gone(pids: list[int], timeout: float = 60) -> list[int]:
     deadline = time.time() + timeout
     while time.time() < deadline and any(alive(p) for p in pids):
@@ -251,7 +260,7 @@ def test_deleted_snakemake_folder_cannot_start_a_second_run(reference_run, tmp_p
     # happen while it is running however slow the machine is
     engines = children(first.pid)
     for pid in engines:
-        os.kill(pid, signal.SIGSTOP)
+        signal_if_alive(pid, signal.SIGSTOP)
     try:
         shutil.rmtree(tmp_path / ".snakemake")  # what users are told they may delete
         # a plain snakemake in the same folder refuses in one line
@@ -275,7 +284,7 @@ def test_deleted_snakemake_folder_cannot_start_a_second_run(reference_run, tmp_p
             head.append(line)
     finally:
         for pid in engines:
-            os.kill(pid, signal.SIGCONT)
+            signal_if_alive(pid, signal.SIGCONT)
     outs = [first.communicate(timeout=900)[0], "".join(head) + second.communicate(timeout=900)[0]]
     assert [first.returncode, second.returncode] == [0, 0], outs
     assert "8 cached, 0 to run" in outs[1]  # it found the first sweep's work done
