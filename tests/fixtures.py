@@ -62,18 +62,25 @@ class Molecule:
     e_fci: float | None
 
 
-@functools.cache
-def pyscf_molecule(name: str, with_fci: bool = True) -> Molecule:
-    """RHF/STO-3G integrals in symmetry-adapted MOs, plus HF and FCI energies from PySCF."""
-    mol = gto.M(atom=GEOMETRIES[name.lower()], basis="sto-3g", symmetry=True, verbose=0)
+@cache
+def rhf_mo_integrals(atoms: str, basis: str, symmetry: bool = True):
+    """PySCF RHF (conv_tol 1e-12) and its MO integrals: ``(mol, mf, h1e, eri)``, eri in 1-fold."""
+    mol = gto.M(atom=atoms, basis=basis, symmetry=symmetry, verbose=0)
     mf = scf.RHF(mol)
     mf.conv_tol = 1e-12
     mf.kernel()
-    assert mf.converged
     c = mf.mo_coeff
-    norb = c.shape[1]
     h1e = c.T @ mf.get_hcore() @ c
-    eri = ao2mo.restore(1, ao2mo.kernel(mol, c), norb)
+    eri = ao2mo.restore(1, ao2mo.kernel(mol, c), c.shape[1])
+    return mol, mf, h1e, eri
+
+
+@functools.cache
+def pyscf_molecule(name: str, with_fci: bool = True) -> Molecule:
+    """RHF/STO-3G integrals in symmetry-adapted MOs, plus HF and FCI energies from PySCF."""
+    mol, mf, h1e, eri = rhf_mo_integrals(GEOMETRIES[name.lower()], "sto-3g")
+    assert mf.converged
+    norb = h1e.shape[0]
     e_fci = None
     if with_fci:
         # lowest state with these (N_alpha, N_beta), any irrep: the same sector the qubit code
@@ -89,14 +96,8 @@ def pyscf_molecule(name: str, with_fci: bool = True) -> Molecule:
 @cache
 def active_integrals(name: str, basis: str = "sto-3g") -> dict:
     """Active-space integrals of ``name`` as keyword arguments for ``run_optimize``."""
-    mol = gto.M(atom=GEOMETRIES[name.lower()], basis=basis, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    norb = c.shape[1]
-    h1e = c.T @ mf.get_hcore() @ c
-    eri = ao2mo.restore(1, ao2mo.kernel(mol, c), norb)
+    mol, _, h1e, eri = rhf_mo_integrals(GEOMETRIES[name.lower()], basis, symmetry=False)
+    norb = h1e.shape[0]
     return {
         "h1e": h1e,
         "eri": eri,
@@ -142,15 +143,11 @@ def h2_two_qubit() -> tuple[PauliExpansion, float]:
 @functools.cache
 def problem(name: str) -> dict:
     """Integrals and the PySCF FCI energy of ``name`` (symmetry-adapted RHF orbitals)."""
-    mol = gto.M(atom=GEOMETRIES[name.lower()], basis="sto-3g", symmetry=True, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    norb = c.shape[1]
+    mol, mf, h1e, eri = rhf_mo_integrals(GEOMETRIES[name.lower()], "sto-3g")
+    norb = h1e.shape[0]
     ints = {
-        "h1e": c.T @ mf.get_hcore() @ c,
-        "eri": ao2mo.restore(1, ao2mo.kernel(mol, c), norb),
+        "h1e": h1e,
+        "eri": eri,
         "e_core": float(mol.energy_nuc()),
         "norb": int(norb),
         "nelec": (int(mol.nelec[0]), int(mol.nelec[1])),

@@ -14,8 +14,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from fixtures import run_plan
-from pyscf import ao2mo, fci, gto, scf
+from fixtures import rhf_mo_integrals, run_plan
+from pyscf import fci, scf
 
 from eigensweep.collect import state_rows
 from eigensweep.config import complete_method
@@ -26,16 +26,8 @@ H2 = "H 0 0 0; H 0 0 {r}"
 CHEMICAL_ACCURACY_MHA = 1.6  # 1 kcal/mol in mHa (CODATA conversion)
 
 
-@cache
 def pyscf_problem(atoms: str, basis: str):
-    mol = gto.M(atom=atoms, basis=basis, symmetry=True, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    h1 = c.T @ mf.get_hcore() @ c
-    eri = ao2mo.restore(1, ao2mo.kernel(mol, c), mol.nao)
-    return mol, mf, h1, eri
+    return rhf_mo_integrals(atoms, basis)
 
 
 @cache

@@ -11,8 +11,8 @@ from functools import cache
 
 import numpy as np
 import pytest
-from fixtures import run_plan
-from pyscf import ao2mo, fci, gto, scf
+from fixtures import rhf_mo_integrals, run_plan
+from pyscf import fci, gto, scf
 
 from eigensweep.stages import load_integrals
 from eigensweep.store import read_stage
@@ -24,13 +24,7 @@ H2 = "H 0 0 0; H 0 0 {r}"
 @cache
 def pyscf_fci(atoms: str, basis: str, nroots: int = 8):
     """PySCF RHF + full-space FCI roots (no spin restriction) and AO->MO dipole integrals."""
-    mol = gto.M(atom=atoms, basis=basis, symmetry=True, verbose=0)
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-12
-    mf.kernel()
-    c = mf.mo_coeff
-    h1 = c.T @ mf.get_hcore() @ c
-    eri = ao2mo.restore(1, ao2mo.kernel(mol, c), mol.nao)
+    mol, mf, h1, eri = rhf_mo_integrals(atoms, basis)
     solver = fci.direct_spin1.FCI(mol)
     solver.conv_tol = 1e-12
     e, v = solver.kernel(h1, eri, mol.nao, mol.nelec, nroots=nroots)
